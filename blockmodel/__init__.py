@@ -1,0 +1,29 @@
+"""blockmodel: drillholes to a validated, classified block model and a grade-tonnage report.
+
+Public names
+------------
+Orientation
+    Three angles (azimuth, plunge, tilt) fixing an ellipsoid's axes.
+Structure, VariogramModel
+    Nested anisotropic variogram models (practical ranges).
+SearchEllipsoid
+    Oriented neighbourhood with sample, per-hole and octant limits.
+krige, estimate
+    Ordinary / simple kriging (point or block), inverse distance, nearest sample.
+"""
+
+from .kriging import discretisation_offsets, estimate, krige
+from .orientation import Orientation
+from .search import SearchEllipsoid
+from .variogram import Structure, VariogramModel
+
+__all__ = [
+    "Orientation",
+    "SearchEllipsoid",
+    "Structure",
+    "VariogramModel",
+    "discretisation_offsets",
+    "estimate",
+    "krige",
+]
+__version__ = "0.1.0"

@@ -1,0 +1,202 @@
+"""Kriging properties and the oracle: the batched fast path equals a plain per-block loop."""
+
+import numpy as np
+import pytest
+
+import blockmodel as bm
+
+O = bm.Orientation(40, 15, 10)
+MODEL = bm.VariogramModel(
+    0.2,
+    [
+        bm.Structure("spherical", 0.6, (80, 50, 20), O),
+        bm.Structure("exponential", 0.4, (200, 120, 40), O),
+    ],
+)
+SEARCH = bm.SearchEllipsoid((150, 100, 40), O, min_samples=3, max_samples=16)
+
+
+def _data(rng, n=400):
+    pts = rng.uniform([0, 0, 0], [300, 300, 100], size=(n, 3))
+    vals = rng.lognormal(0, 0.7, size=n)
+    holes = np.repeat(np.arange(n // 10), 10)
+    targets = rng.uniform([20, 20, 10], [280, 280, 90], size=(120, 3))
+    return pts, vals, holes, targets
+
+
+def _plain_loop(pts, vals, targets, model, search, block_size, disc):
+    """Reference: one block at a time, brute-force search, numpy solve of the bordered system."""
+    offsets = bm.discretisation_offsets(block_size, disc)
+    a = search.transform()
+    out = np.full((len(targets), 2), np.nan)
+    for b, t in enumerate(targets):
+        d = np.linalg.norm((pts - t) @ a.T, axis=1)
+        order = np.argsort(d, kind="stable")
+        near = order[d[order] <= 1.0][: search.max_samples]
+        if len(near) < search.min_samples:
+            continue
+        p = pts[near]
+        k = len(near)
+        lhs = np.ones((k + 1, k + 1))
+        lhs[k, k] = 0.0
+        lhs[:k, :k] = model.covariance((p[:, None, :] - p[None, :, :]).reshape(-1, 3)).reshape(k, k)
+        nodes = t + offsets
+        cbar = model.structured_covariance(
+            (p[:, None, :] - nodes[None, :, :]).reshape(-1, 3)
+        ).reshape(k, -1).mean(axis=1)
+        cvv = model.structured_covariance(
+            (offsets[:, None, :] - offsets[None, :, :]).reshape(-1, 3)
+        ).mean()
+        sol = np.linalg.solve(lhs, np.append(cbar, 1.0))
+        out[b] = sol[:k] @ vals[near], cvv - sol[:k] @ cbar - sol[k]
+    return out
+
+
+def test_fast_path_equals_plain_loop(rng):
+    pts, vals, _, targets = _data(rng)
+    table = bm.krige(pts, vals, targets, MODEL, SEARCH, block_size=(10, 10, 5), discretisation=(3, 3, 2))
+    ref = _plain_loop(pts, vals, targets, MODEL, SEARCH, (10, 10, 5), (3, 3, 2))
+    np.testing.assert_allclose(table.estimate, ref[:, 0], rtol=1e-9, atol=1e-12)
+    np.testing.assert_allclose(table.variance, ref[:, 1], rtol=1e-9, atol=1e-12)
+
+
+def test_weights_sum_to_one_and_slope_definition(rng):
+    pts, vals, _, targets = _data(rng)
+    table = bm.krige(pts, vals, targets, MODEL, SEARCH, block_size=(10, 10, 5))
+    ok = table.search_pass > 0
+    assert ok.sum() > 50
+    np.testing.assert_allclose(table.weight_sum[ok], 1.0, atol=1e-10)
+    cvv = (table.variance + MODEL.total_sill * 0)[ok]  # efficiency identity below
+    assert np.all(table.efficiency[ok] <= 1.0) and np.all(cvv >= 0)
+
+
+def test_exact_at_samples_point_support(rng):
+    pts, vals, _, _ = _data(rng, 200)
+    model = bm.VariogramModel(0.0, [bm.Structure("spherical", 1.0, (90, 60, 30), O)])
+    table = bm.krige(pts, vals, pts[:30], model, SEARCH)
+    np.testing.assert_allclose(table.estimate, vals[:30], rtol=1e-9)
+    np.testing.assert_allclose(table.variance, 0.0, atol=1e-9)
+
+
+def test_exact_at_samples_with_nugget_point_support(rng):
+    # Point kriging is an exact interpolator, nugget or not (Journel & Huijbregts 1978, V.A).
+    pts, vals, _, _ = _data(rng, 200)
+    table = bm.krige(pts, vals, pts[:30], MODEL, SEARCH)
+    np.testing.assert_allclose(table.estimate, vals[:30], rtol=1e-9)
+
+
+def test_translation_invariance(rng):
+    pts, vals, holes, targets = _data(rng)
+    kw = dict(block_size=(10, 10, 5), hole_ids=holes)
+    a = bm.krige(pts, vals, targets, MODEL, SEARCH, **kw)
+    shift = np.array([5e5, 7e6, 0.0])
+    b = bm.krige(pts + shift, vals, targets + shift, MODEL, SEARCH, **kw)
+    np.testing.assert_allclose(a.estimate, b.estimate, rtol=1e-9)
+    np.testing.assert_allclose(a.variance, b.variance, rtol=1e-8)
+    np.testing.assert_array_equal(a.n_samples, b.n_samples)
+
+
+def test_rotation_invariance(rng):
+    # Rotating data, targets and every orientation by the same bearing changes nothing.
+    pts, vals, _, targets = _data(rng)
+    theta = np.radians(33.0)
+    rot = np.array([[np.cos(theta), -np.sin(theta), 0], [np.sin(theta), np.cos(theta), 0], [0, 0, 1]])
+    # rows are new (x, y, z): a vector at bearing b goes to bearing b + 33
+    rot = np.array([[np.cos(theta), np.sin(theta), 0], [-np.sin(theta), np.cos(theta), 0], [0, 0, 1]])
+    o2 = bm.Orientation(O.azimuth + 33.0, O.plunge, O.tilt)
+    np.testing.assert_allclose(o2.axes(), O.axes() @ rot.T, atol=1e-12)
+    model2 = bm.VariogramModel(
+        0.2,
+        [bm.Structure(s.kind, s.sill, s.ranges, o2) for s in MODEL.structures],
+    )
+    search2 = bm.SearchEllipsoid((150, 100, 40), o2, min_samples=3, max_samples=16)
+    a = bm.krige(pts, vals, targets, MODEL, SEARCH)
+    b = bm.krige(pts @ rot.T, vals, targets @ rot.T, model2, search2)
+    np.testing.assert_allclose(a.estimate, b.estimate, rtol=1e-8)
+    np.testing.assert_allclose(a.variance, b.variance, rtol=1e-8)
+
+
+def test_block_estimate_is_mean_of_point_estimates(rng):
+    pts, vals, _, targets = _data(rng, 120)
+    wide = bm.SearchEllipsoid((1e5, 1e5, 1e5), min_samples=1, max_samples=500)
+    offsets = bm.discretisation_offsets((10, 10, 5), (4, 4, 2))
+    block = bm.krige(pts, vals, targets[:5], MODEL, wide, block_size=(10, 10, 5), discretisation=(4, 4, 2))
+    for b, t in enumerate(targets[:5]):
+        points = bm.krige(pts, vals, t + offsets, MODEL, wide)
+        assert block.estimate[b] == pytest.approx(points.estimate.mean(), rel=1e-10)
+
+
+def test_simple_kriging_one_sample():
+    # One sample: the weight is C(h)/C(0) and the mean takes the rest (common practice
+    # identity of simple kriging; Journel & Huijbregts 1978, V.A.1).
+    model = bm.VariogramModel(0.1, [bm.Structure("spherical", 0.9, (50, 50, 50))])
+    search = bm.SearchEllipsoid((100, 100, 100), max_samples=4)
+    h = np.array([[20.0, 0.0, 0.0]])
+    w = model.covariance(h)[0] / model.total_sill
+    table = bm.krige(np.zeros((1, 3)), [5.0], h, model, search, method="simple", mean=2.0)
+    assert table.estimate[0] == pytest.approx(2.0 + w * 3.0, rel=1e-12)
+    assert table.slope[0] == pytest.approx(1.0)
+
+
+def test_chunk_size_does_not_change_results(rng):
+    pts, vals, holes, targets = _data(rng)
+    s = bm.SearchEllipsoid((150, 100, 40), O, min_samples=3, max_samples=16, max_per_hole=3,
+                           max_per_octant=4)
+    a = bm.krige(pts, vals, targets, MODEL, s, block_size=(10, 10, 5), hole_ids=holes, chunk_size=7)
+    b = bm.krige(pts, vals, targets, MODEL, s, block_size=(10, 10, 5), hole_ids=holes, chunk_size=10**5)
+    for c in a.columns:
+        np.testing.assert_array_equal(a[c].to_numpy(), b[c].to_numpy(), err_msg=c)
+
+
+def test_search_limits_and_passes(rng):
+    pts, vals, holes, targets = _data(rng)
+    far = np.array([[5000.0, 5000.0, 50.0]])
+    targets = np.vstack([targets, far])
+    first = bm.SearchEllipsoid((40, 30, 15), O, min_samples=8, max_samples=12, max_per_hole=2)
+    second = bm.SearchEllipsoid((300, 200, 80), O, min_samples=3, max_samples=12, max_per_hole=2)
+    table = bm.krige(pts, vals, targets, MODEL, [first, second], hole_ids=holes)
+    assert set(table.search_pass.unique()) <= {0, 1, 2}
+    assert (table.search_pass == 2).any() and (table.search_pass == 1).any()
+    assert table.search_pass.iloc[-1] == 0 and np.isnan(table.estimate.iloc[-1])
+    assert table.n_samples.iloc[-1] == 0
+    est = table.search_pass > 0
+    # no more than 2 samples per hole: at least n_samples / 2 holes
+    assert np.all(table.n_holes[est] * 2 >= table.n_samples[est])
+
+
+def test_idw_and_nearest(rng):
+    pts, vals, _, targets = _data(rng)
+    nn = bm.krige(pts, vals, targets, None, SEARCH, method="nearest")
+    idw = bm.krige(pts, vals, targets, None, SEARCH, method="inverse_distance", power=2)
+    a = SEARCH.transform()
+    for b in range(10):
+        d = np.linalg.norm((pts - targets[b]) @ a.T, axis=1)
+        order = np.argsort(d)[:16]
+        order = order[d[order] <= 1]
+        if len(order) < 3:
+            continue
+        assert nn.estimate[b] == vals[order[0]]
+        w = 1 / d[order] ** 2
+        assert idw.estimate[b] == pytest.approx((w * vals[order]).sum() / w.sum(), rel=1e-12)
+
+
+def test_duplicates_are_merged_and_reported(rng):
+    pts, vals, _, targets = _data(rng, 100)
+    pts2 = np.vstack([pts, pts[:5]])
+    vals2 = np.concatenate([vals, vals[:5] + 1.0])
+    table = bm.krige(pts2, vals2, targets, MODEL, SEARCH)
+    assert table.attrs["merged_duplicates"] == 5
+    assert np.isfinite(table.estimate[table.search_pass > 0]).all()
+    assert not table.ill_conditioned.any()
+
+
+def test_bad_arguments(rng):
+    pts, vals, _, targets = _data(rng, 50)
+    with pytest.raises(ValueError, match="method"):
+        bm.krige(pts, vals, targets, MODEL, SEARCH, method="universal")
+    with pytest.raises(ValueError, match=r"\(n, 3\)"):
+        bm.krige(pts[:, :2], vals, targets, MODEL, SEARCH)
+    with pytest.raises(ValueError, match="mean"):
+        bm.krige(pts, vals, targets, MODEL, SEARCH, method="simple")
+    with pytest.raises(ValueError, match="min_samples"):
+        bm.SearchEllipsoid((10, 10, 10), min_samples=5, max_samples=2)
