@@ -1,0 +1,187 @@
+"""Experimental variograms in 3D: directional, omnidirectional and downhole.
+
+Pairs are found with KD-tree ball queries in chunks of samples, so memory is bounded by the
+pairs of one chunk, not of the whole data set.  Each unordered pair counts once; a
+direction accepts separations in both senses (h and -h).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.spatial import cKDTree
+from scipy.stats import norm
+
+__all__ = ["ExperimentalVariogram", "NormalScores", "direction_vector", "experimental_variogram", "normal_scores"]
+
+ESTIMATORS = ("semivariogram", "correlogram", "pairwise_relative")
+
+
+@dataclass(frozen=True)
+class ExperimentalVariogram:
+    """Per lag: pairs, mean distance (metres) and value (NaN where no pairs).
+
+    ``value`` is the semivariogram, ``1 - rho`` for the correlogram, or the pairwise
+    relative variogram.
+    """
+
+    pairs: np.ndarray
+    distance: np.ndarray
+    value: np.ndarray
+    estimator: str
+    label: str = ""
+
+
+def direction_vector(azimuth: float, plunge: float) -> np.ndarray:
+    """Unit vector at bearing ``azimuth`` and ``plunge`` below horizontal (degrees)."""
+    az, pl = np.radians(azimuth), np.radians(plunge)
+    return np.array([np.sin(az) * np.cos(pl), np.cos(az) * np.cos(pl), -np.sin(pl)])
+
+
+def _pairs(points, max_distance, chunk, same_group=None):
+    tree = cKDTree(points)
+    n = len(points)
+    for start in range(0, n, chunk):
+        rows = np.arange(start, min(n, start + chunk))
+        lists = tree.query_ball_point(points[rows], max_distance)
+        lengths = np.fromiter((len(x) for x in lists), dtype=np.int64, count=len(rows))
+        if lengths.sum() == 0:
+            continue
+        i = np.repeat(rows, lengths)
+        j = np.concatenate([np.asarray(x, dtype=np.int64) for x in lists])
+        keep = j > i
+        if same_group is not None:
+            keep &= same_group[i] == same_group[j]
+        yield i[keep], j[keep]
+
+
+def experimental_variogram(
+    points: np.ndarray,
+    values: np.ndarray,
+    *,
+    lag: float,
+    n_lags: int,
+    edges: np.ndarray | None = None,
+    direction: tuple[float, float] | None = None,
+    angular_tolerance: float = 22.5,
+    horizontal_bandwidth: float = np.inf,
+    vertical_bandwidth: float = np.inf,
+    estimator: str = "semivariogram",
+    weights: np.ndarray | None = None,
+    holes: np.ndarray | None = None,
+    chunk: int = 4096,
+    label: str = "",
+) -> ExperimentalVariogram:
+    """Experimental variogram of values at points.
+
+    Parameters
+    ----------
+    points : (n, 3) float64, metres
+    values : (n,) float64
+    lag : float, metres
+        Lag width; lag k holds pairs with ``(k - 1) lag < d <= k lag`` unless ``edges``.
+    n_lags : int
+    edges : (n_lags + 1,) float64, optional
+        Explicit lag bin edges (metres).
+    direction : (azimuth, plunge) degrees, optional
+        None for omnidirectional.
+    angular_tolerance : float, degrees
+    horizontal_bandwidth, vertical_bandwidth : float, metres
+        Largest offset of a pair from the direction line, measured horizontally and in
+        the vertical plane containing the direction.
+    estimator : {"semivariogram", "correlogram", "pairwise_relative"}
+    weights : (n,) float64, optional
+        Declustering weights; a pair weighs ``w_i w_j``.
+    holes : (n,) array, optional
+        When given, only pairs within one hole are used (downhole variogram).
+    chunk : int
+        Samples per KD-tree query batch; bounds memory.
+
+    Returns
+    -------
+    ExperimentalVariogram
+    """
+    if estimator not in ESTIMATORS:
+        raise ValueError(f"estimator must be one of {', '.join(ESTIMATORS)}; got {estimator!r}")
+    if lag <= 0 or n_lags < 1:
+        raise ValueError("lag must be positive and n_lags at least 1")
+    points = np.asarray(points, dtype=np.float64)
+    points = points - points.min(axis=0)
+    values = np.asarray(values, dtype=np.float64)
+    w = np.ones(len(values)) if weights is None else np.asarray(weights, dtype=np.float64)
+    edges = lag * np.arange(n_lags + 1) if edges is None else np.asarray(edges, dtype=np.float64)
+    nb = len(edges) - 1
+    group = None if holes is None else np.unique(np.asarray(holes), return_inverse=True)[1].ravel()
+    if direction is not None:
+        u = direction_vector(*direction)
+        e_h = np.array([np.cos(np.radians(direction[0])), -np.sin(np.radians(direction[0])), 0.0])
+        e_v = np.cross(e_h, u)
+        cos_tol = np.cos(np.radians(angular_tolerance))
+    sums = {k: np.zeros(nb) for k in ("w", "d", "g", "h", "t", "hh", "tt", "ht", "n")}
+    for i, j in _pairs(points, edges[-1], chunk, group):
+        h = points[j] - points[i]
+        d = np.linalg.norm(h, axis=1)
+        ok = d > 0
+        if direction is not None:
+            along = h @ u
+            perp = h - along[:, None] * u
+            ok &= (np.abs(along) >= cos_tol * d) & (np.abs(perp @ e_h) <= horizontal_bandwidth)
+            ok &= np.abs(perp @ e_v) <= vertical_bandwidth
+        b = np.searchsorted(edges, d, side="left") - 1
+        ok &= (b >= 0) & (b < nb)
+        i, j, d, b = i[ok], j[ok], d[ok], b[ok]
+        pw = w[i] * w[j]
+        zi, zj = values[i], values[j]
+        if estimator == "pairwise_relative":
+            s = (zi + zj) / 2
+            g = np.where(s != 0, (zi - zj) ** 2 / np.where(s != 0, s, 1) ** 2 / 2, 0.0)
+        else:
+            g = (zi - zj) ** 2 / 2
+        for key, x in (("w", pw), ("d", pw * d), ("g", pw * g), ("h", pw * zi), ("t", pw * zj),
+                       ("hh", pw * zi * zi), ("tt", pw * zj * zj), ("ht", pw * zi * zj), ("n", np.ones_like(d))):
+            sums[key] += np.bincount(b, weights=x, minlength=nb)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        wsum = sums["w"]
+        distance = sums["d"] / wsum
+        if estimator == "correlogram":
+            mh, mt = sums["h"] / wsum, sums["t"] / wsum
+            cov = sums["ht"] / wsum - mh * mt
+            # pairs counted once: make head and tail symmetric so rho is well defined
+            vh = sums["hh"] / wsum - mh**2
+            vt = sums["tt"] / wsum - mt**2
+            value = 1.0 - cov / np.sqrt(vh * vt)
+        else:
+            value = sums["g"] / wsum
+    return ExperimentalVariogram(sums["n"].astype(np.int64), distance, value, estimator, label)
+
+
+@dataclass(frozen=True)
+class NormalScores:
+    """Normal-score transform table: sorted original values and their normal scores."""
+
+    values: np.ndarray
+    scores: np.ndarray
+
+    def forward(self, z: np.ndarray) -> np.ndarray:
+        return np.interp(z, self.values, self.scores)
+
+    def back(self, y: np.ndarray) -> np.ndarray:
+        """Back-transform by linear interpolation in the table (clamped at its ends)."""
+        return np.interp(y, self.scores, self.values)
+
+
+def normal_scores(values: np.ndarray, weights: np.ndarray | None = None) -> tuple[np.ndarray, NormalScores]:
+    """Normal scores of values (declustering weights optional) and the transform table.
+
+    Ties get the score of their mean plotting position.
+    """
+    values = np.asarray(values, dtype=np.float64)
+    w = np.ones(len(values)) if weights is None else np.asarray(weights, dtype=np.float64)
+    order = np.argsort(values, kind="stable")
+    v, ww = values[order], w[order]
+    cdf = (np.cumsum(ww) - 0.5 * ww) / ww.sum()
+    uniq, first, inverse = np.unique(v, return_index=True, return_inverse=True)
+    mean_cdf = np.bincount(inverse.ravel(), weights=cdf) / np.bincount(inverse.ravel())
+    table = NormalScores(uniq, norm.ppf(mean_cdf))
+    return table.forward(values), table

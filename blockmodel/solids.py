@@ -1,0 +1,159 @@
+"""Closed triangulated solids and surfaces: reading, and inside tests by vertical rays.
+
+A point is inside a closed solid when a vertical ray upward from it crosses the surface an
+odd number of times.  Points come on a regular lattice of (x, y) columns, so crossings are
+found once per column and shared by every point above it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from .errors import InputError, Problem
+
+__all__ = ["Lattice", "Surface", "column_crossings", "points_inside", "read_surface", "surface_elevation", "write_ply"]
+
+
+@dataclass(frozen=True)
+class Surface:
+    """Triangulated surface: vertices (v, 3) float64 metres, triangles (t, 3) int64."""
+
+    vertices: np.ndarray
+    triangles: np.ndarray
+
+
+@dataclass(frozen=True)
+class Lattice:
+    """Regular (x, y) columns: centres ``x0 + i dx`` (i < nx), ``y0 + j dy`` (j < ny)."""
+
+    x0: float
+    dx: float
+    nx: int
+    y0: float
+    dy: float
+    ny: int
+
+
+def read_surface(path: Path) -> Surface:
+    """Read a triangulated surface (PLY, STL, OBJ or VTK) with pyvista.
+
+    Parameters
+    ----------
+    path : Path
+
+    Returns
+    -------
+    Surface
+    """
+    import pyvista as pv
+
+    try:
+        mesh = pv.read(str(path))
+    except Exception as exc:  # pyvista raises many types for unreadable files
+        raise InputError([Problem(str(path), None, None, None, f"cannot read surface: {exc}")]) from None
+    mesh = mesh.extract_surface().triangulate()
+    faces = np.asarray(mesh.faces).reshape(-1, 4)
+    if len(faces) == 0:
+        raise InputError([Problem(str(path), None, None, None, "surface has no triangles")])
+    return Surface(np.asarray(mesh.points, dtype=np.float64), faces[:, 1:].astype(np.int64))
+
+
+def write_ply(path: Path, surface: Surface) -> None:
+    """Write a surface as ASCII PLY (an open format every 3D viewer reads)."""
+    v, t = surface.vertices, surface.triangles
+    head = [
+        "ply",
+        "format ascii 1.0",
+        f"element vertex {len(v)}",
+        "property double x",
+        "property double y",
+        "property double z",
+        f"element face {len(t)}",
+        "property list uchar int vertex_indices",
+        "end_header",
+    ]
+    body = [f"{a:.3f} {b:.3f} {c:.3f}" for a, b, c in v] + [f"3 {a} {b} {c}" for a, b, c in t]
+    Path(path).write_text("\n".join(head + body) + "\n", encoding="ascii")
+
+
+def column_crossings(surface: Surface, lattice: Lattice) -> tuple[np.ndarray, np.ndarray]:
+    """Elevations where each lattice column crosses the surface.
+
+    Returns
+    -------
+    column : (q,) int64
+        Flat column index ``i + nx * j``, sorted.
+    z : (q,) float64
+        Crossing elevations, sorted within each column.
+    """
+    v, t = surface.vertices, surface.triangles
+    p0, p1, p2 = v[t[:, 0]], v[t[:, 1]], v[t[:, 2]]
+    xy = np.stack([p0[:, :2], p1[:, :2], p2[:, :2]], axis=1)
+    lo = np.ceil((xy.min(axis=1) - [lattice.x0, lattice.y0]) / [lattice.dx, lattice.dy]).astype(np.int64)
+    hi = np.floor((xy.max(axis=1) - [lattice.x0, lattice.y0]) / [lattice.dx, lattice.dy]).astype(np.int64)
+    lo = np.maximum(lo, 0)
+    hi = np.minimum(hi, [lattice.nx - 1, lattice.ny - 1])
+    ni = np.maximum(hi[:, 0] - lo[:, 0] + 1, 0)
+    nj = np.maximum(hi[:, 1] - lo[:, 1] + 1, 0)
+    counts = ni * nj
+    tri = np.repeat(np.arange(len(t)), counts)
+    local = np.arange(counts.sum()) - np.repeat(np.cumsum(counts) - counts, counts)
+    ii = lo[tri, 0] + local % np.maximum(ni[tri], 1)
+    jj = lo[tri, 1] + local // np.maximum(ni[tri], 1)
+    px = lattice.x0 + ii * lattice.dx
+    py = lattice.y0 + jj * lattice.dy
+    a, b, c = p0[tri], p1[tri], p2[tri]
+    det = (b[:, 0] - a[:, 0]) * (c[:, 1] - a[:, 1]) - (c[:, 0] - a[:, 0]) * (b[:, 1] - a[:, 1])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        l1 = ((px - a[:, 0]) * (c[:, 1] - a[:, 1]) - (c[:, 0] - a[:, 0]) * (py - a[:, 1])) / det
+        l2 = ((b[:, 0] - a[:, 0]) * (py - a[:, 1]) - (px - a[:, 0]) * (b[:, 1] - a[:, 1])) / det
+    l0 = 1.0 - l1 - l2
+    # half-open rule so a column through a shared edge is counted once
+    hit = (det != 0) & (l1 >= 0) & (l2 >= 0) & (l0 > 0)
+    z = l0 * a[:, 2] + l1 * b[:, 2] + l2 * c[:, 2]
+    col = (ii + lattice.nx * jj)[hit]
+    z = z[hit]
+    order = np.lexsort((z, col))
+    return col[order], z[order]
+
+
+def points_inside(crossings: tuple[np.ndarray, np.ndarray], column: np.ndarray, z: np.ndarray) -> np.ndarray:
+    """Whether points (column index, elevation) are inside the closed solid.
+
+    Parameters
+    ----------
+    crossings : from :func:`column_crossings`
+    column : (n,) int64, flat lattice column of each point
+    z : (n,) float64, elevation of each point
+
+    Returns
+    -------
+    (n,) bool
+    """
+    col, zc = crossings
+    if len(col) == 0:
+        return np.zeros(len(z), dtype=bool)
+    span = max(float(zc.max() - zc.min()), float(np.max(z) - np.min(z)), 1.0) * 4
+    base = min(float(zc.min()), float(np.min(z))) - span / 4
+    key_c = col + (zc - base) / span
+    key_p = column + (z - base) / span
+    end = np.searchsorted(col, column, side="right")
+    above = end - np.searchsorted(key_c, key_p, side="right")
+    return (above % 2) == 1
+
+
+def surface_elevation(surface: Surface, lattice: Lattice) -> np.ndarray:
+    """Highest elevation of an open surface (topography) over each column; NaN where absent.
+
+    Returns
+    -------
+    (nx * ny,) float64
+    """
+    col, z = column_crossings(surface, lattice)
+    out = np.full(lattice.nx * lattice.ny, np.nan)
+    last = np.r_[col[1:] != col[:-1], True]
+    out[col[last]] = z[last]
+    return out
