@@ -36,13 +36,13 @@ LODE_ORIENTATION = Orientation(STRIKE, 0.0, DIP)
 TRUTH_MODEL = VariogramModel(
     0.0,
     [
-        Structure("spherical", 0.6, (60.0, 40.0, 10.0), LODE_ORIENTATION),
-        Structure("spherical", 0.4, (160.0, 100.0, 25.0), LODE_ORIENTATION),
+        Structure("spherical", 0.5, (90.0, 60.0, 12.0), LODE_ORIENTATION),
+        Structure("spherical", 0.5, (250.0, 150.0, 30.0), LODE_ORIENTATION),
     ],
 )
 DENSITY = {"lode": 2.75, "halo": 2.70, "waste": 2.65}  # t/m3, common practice values
-LOGNORMAL = {"lode": 0.9, "halo": 0.7, "waste": 0.5}  # log standard deviations
-MEAN = {"lode": 1.6, "shoot": 6.0, "halo": 0.3, "waste": 0.02}  # g/t Au
+LOGNORMAL = {"lode": 0.8, "halo": 0.7, "waste": 0.5}  # log standard deviations
+MEAN = {"lode": 1.5, "shoot": 3.5, "halo": 0.3, "waste": 0.02}  # g/t Au; shoot: added at its axis
 ASSAY_NOISE = 0.5  # log standard deviation of sampling and assay error
 
 
@@ -62,9 +62,15 @@ def _undulation(u, v):
     return 4.0 * np.sin(u / 120.0 + 0.5) + 3.0 * np.cos(v / 90.0)
 
 
+def shoot_distance(u, v):
+    """Distance (m, in the lode plane, along strike) from the axis of the high-grade shoot,
+    which plunges along strike with depth."""
+    return np.abs(u - (-40.0 + 0.45 * v))
+
+
 def in_shoot(u, v):
-    """The high-grade shoot: a band within the lode plunging along strike with depth."""
-    return np.abs(u - (-40.0 + 0.45 * v)) < 45.0
+    """Inside the high-grade shoot (where infill drilling goes)."""
+    return shoot_distance(u, v) < 45.0
 
 
 def topography_elevation(x, y):
@@ -162,12 +168,8 @@ def build_demo(seed: int = SEED) -> DemoDeposit:
     field = simulate_gaussian(shape, FINE, TRUTH_MODEL, rng)
     s, d, _ = _frame()
     rel = pts - CENTRE
-    shoot = in_shoot(rel @ s, rel @ d).reshape(shape)
-    mean = np.select(
-        [(domains == 2) & shoot, domains == 2, domains == 1],
-        [MEAN["shoot"], MEAN["lode"], MEAN["halo"]],
-        MEAN["waste"],
-    )
+    enrichment = MEAN["shoot"] * np.exp(-((shoot_distance(rel @ s, rel @ d) / 40.0) ** 2)).reshape(shape)
+    mean = np.select([domains == 2, domains == 1], [MEAN["lode"] + enrichment, MEAN["halo"]], MEAN["waste"])
     sigma = np.select([domains == 2, domains == 1], [LOGNORMAL["lode"], LOGNORMAL["halo"]], LOGNORMAL["waste"])
     grades = mean * np.exp(sigma * field - sigma**2 / 2)
     grades[domains < 0] = np.nan

@@ -237,7 +237,7 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
                 problems.append(Problem(af, int(lines[k]), hole, c.depth_from, f"interval {f[k]}-{t[k]} overlaps the previous one ending at {t[k - 1]}"))
             elif f[k] > t[k - 1] + 1e-9:
                 warnings.append(Problem(af, int(lines[k]), hole, c.depth_from, f"gap in sampling {t[k - 1]}-{f[k]}"))
-        if np.all(np.isnan(grp[data.grades].to_numpy(float))):
+        if np.all(np.isnan(grp[list(data.grades)].to_numpy(float))):
             warnings.append(Problem(af, int(lines[0]), hole, None, "every grade of this hole is missing"))
     if problems:
         raise InputError(problems)

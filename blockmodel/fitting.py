@@ -97,7 +97,8 @@ def fit_variogram(
     for k in range(len(kinds)):
         start[f"sill{k + 1}"] = max(top - start["nugget"], 1e-6) / len(kinds)
         for a in axes_names:
-            start[f"range{k + 1}_{a}"] = hmax * (k + 1) / (len(kinds) + 1)
+            start[f"range{k + 1}_{a}"] = (float(np.max(h[ax == axes_names.index(a)])) if np.any(ax == axes_names.index(a))
+                                          else hmax) * (k + 1) / (len(kinds) + 1)
     free = [n for n in names if n not in fixed]
 
     def unpack(x):
@@ -116,8 +117,14 @@ def fit_variogram(
             out += p[f"sill{k + 1}"] * (1.0 - correlation(KINDS[kind], h / a))
         return out
 
-    lower = [0.0 if n == "nugget" or n.startswith("sill") else 1e-3 * hmax for n in free]
-    upper = [np.inf if n == "nugget" or n.startswith("sill") else 10.0 * hmax for n in free]
+    # a range is bounded by twice the longest lag seen along its own axis
+    axis_max = {a: float(np.max(h[ax == i])) if np.any(ax == i) else hmax for i, a in enumerate(axes_names)}
+
+    def range_bound(n):
+        return 2.0 * axis_max[n.split("_")[1]]
+
+    lower = [0.0 if n == "nugget" or n.startswith("sill") else 1e-3 * range_bound(n) for n in free]
+    upper = [np.inf if n == "nugget" or n.startswith("sill") else range_bound(n) for n in free]
     x0 = np.clip([start[n] for n in free], np.array(lower) + 1e-12, np.array(upper) - 1e-12)
     best = None
     # a few starts guard against a poor local minimum

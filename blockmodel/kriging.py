@@ -123,8 +123,12 @@ def estimate(
     hole_ids: np.ndarray | None = None,
     power: float = 2.0,
     chunk_size: int = 20_000,
+    skip_coincident: bool = False,
 ) -> dict[str, np.ndarray]:
     """Estimate at targets; arrays in, arrays out. See :func:`krige` for the parameters.
+
+    skip_coincident : bool
+        Never use a sample at the target's location (leave-one-out cross-validation).
 
     Returns
     -------
@@ -195,7 +199,8 @@ def estimate(
         not_found = []
         for start in range(0, len(remaining), chunk_size):
             rows = remaining[start : start + chunk_size]
-            nb = find_neighbours(tree, samples_t, local_targets[rows], s, hole_codes)
+            nb = find_neighbours(tree, samples_t, local_targets[rows], s, hole_codes,
+                                 skip_coincident=skip_coincident)
             not_found.append(rows[~nb.found])
             sel = np.flatnonzero(nb.found)
             if len(sel) == 0:

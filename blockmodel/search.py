@@ -116,6 +116,7 @@ def find_neighbours(
     hole_codes: np.ndarray | None,
     *,
     candidate_factor: int = 8,
+    skip_coincident: bool = False,
 ) -> Neighbourhoods:
     """Find each target's neighbourhood.
 
@@ -132,6 +133,8 @@ def find_neighbours(
     candidate_factor : int
         With per-hole or octant rules, this many times ``max_samples`` nearest candidates
         are examined.
+    skip_coincident : bool
+        Never use a sample at the target's own location (leave-one-out).
 
     Returns
     -------
@@ -142,9 +145,16 @@ def find_neighbours(
     kmax = min(int(search.max_samples), n)
     limited = search.has_limits
     q = min(n, kmax * candidate_factor) if limited else kmax
-    dist, idx = tree.query(targets_t, k=q, distance_upper_bound=1.0 + 1e-12)
-    dist = np.asarray(dist).reshape(len(targets), q)
-    idx = np.asarray(idx, dtype=np.int64).reshape(len(targets), q)
+    extra = 1 if skip_coincident and q < n else 0
+    dist, idx = tree.query(targets_t, k=q + extra, distance_upper_bound=1.0 + 1e-12)
+    dist = np.asarray(dist).reshape(len(targets), q + extra)
+    idx = np.asarray(idx, dtype=np.int64).reshape(len(targets), q + extra)
+    if skip_coincident:
+        drop = dist <= 1e-12
+        idx[drop], dist[drop] = n, np.inf
+        order = np.argsort(drop, axis=1, kind="stable")[:, :q]
+        idx = np.take_along_axis(idx, order, axis=1)
+        dist = np.take_along_axis(dist, order, axis=1)
     if limited:
         if search.max_per_hole and hole_codes is None:
             raise ValueError("SearchEllipsoid.max_per_hole needs hole_ids")

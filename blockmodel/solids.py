@@ -54,7 +54,7 @@ def read_surface(path: Path) -> Surface:
         mesh = pv.read(str(path))
     except Exception as exc:  # pyvista raises many types for unreadable files
         raise InputError([Problem(str(path), None, None, None, f"cannot read surface: {exc}")]) from None
-    mesh = mesh.extract_surface().triangulate()
+    mesh = mesh.extract_surface(algorithm="dataset_surface").triangulate()
     faces = np.asarray(mesh.faces).reshape(-1, 4)
     if len(faces) == 0:
         raise InputError([Problem(str(path), None, None, None, "surface has no triangles")])
@@ -108,12 +108,14 @@ def column_crossings(surface: Surface, lattice: Lattice) -> tuple[np.ndarray, np
     a, b, c = p0[tri], p1[tri], p2[tri]
     det = (b[:, 0] - a[:, 0]) * (c[:, 1] - a[:, 1]) - (c[:, 0] - a[:, 0]) * (b[:, 1] - a[:, 1])
     with np.errstate(divide="ignore", invalid="ignore"):
+        det = np.where(det == 0, np.nan, det)
         l1 = ((px - a[:, 0]) * (c[:, 1] - a[:, 1]) - (c[:, 0] - a[:, 0]) * (py - a[:, 1])) / det
         l2 = ((b[:, 0] - a[:, 0]) * (py - a[:, 1]) - (px - a[:, 0]) * (b[:, 1] - a[:, 1])) / det
     l0 = 1.0 - l1 - l2
     # half-open rule so a column through a shared edge is counted once
-    hit = (det != 0) & (l1 >= 0) & (l2 >= 0) & (l0 > 0)
-    z = l0 * a[:, 2] + l1 * b[:, 2] + l2 * c[:, 2]
+    hit = np.isfinite(det) & (l1 >= 0) & (l2 >= 0) & (l0 > 0)
+    with np.errstate(invalid="ignore"):
+        z = l0 * a[:, 2] + l1 * b[:, 2] + l2 * c[:, 2]
     col = (ii + lattice.nx * jj)[hit]
     z = z[hit]
     order = np.lexsort((z, col))

@@ -1,0 +1,267 @@
+"""The stages of a run, each a function from inputs to outputs (no file writing here).
+
+load -> composite -> cap -> decluster -> variography -> proportions -> estimate ->
+classify -> validate.  The command line calls these and writes their outputs.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from .compositing import CappingSummary, CompositingSummary, cap_grades, composite
+from .declustering import CellDeclustering, cell_declustering, nearest_neighbour_weights
+from .drillholes import DrillholeSet, load_drillholes
+from .engine import EstimationJob, passes_from, run_job
+from .errors import InputError, Problem
+from .experimental import ExperimentalVariogram, experimental_variogram
+from .fitting import fit_variogram, principal_directions
+from .grid import BlockGrid
+from .orientation import Orientation
+from .project import Project
+from .variogram import Structure, VariogramModel
+
+__all__ = [
+    "Composites",
+    "Variography",
+    "block_model_grid",
+    "decluster",
+    "estimate_block_model",
+    "load_and_composite",
+    "model_proportions",
+    "variography",
+]
+
+
+@dataclass
+class Composites:
+    holes: DrillholeSet
+    table: pd.DataFrame
+    compositing: CompositingSummary
+    capping: list[CappingSummary]
+
+
+def load_and_composite(project: Project) -> Composites:
+    """Load and check drillholes, composite, cap; domain names replace interval codes."""
+    holes = load_drillholes(project.data)
+    code_to_name = {d.code: d.name for d in project.domains}
+    comps, summary = composite(holes, project.compositing)
+    comps["domain"] = comps["domain"].map(lambda c: code_to_name.get(c, c))
+    comps, capping = cap_grades(comps, project.capping)
+    for d in project.domains:
+        if d.estimate and not (comps["domain"] == d.name).any():
+            raise InputError([Problem(str(project.data.intervals), None, None, project.data.columns.domain,
+                                      f"domain '{d.name}' (code '{d.code}') has no composites")])
+    return Composites(holes, comps, summary, capping)
+
+
+def block_model_grid(project: Project) -> BlockGrid:
+    return BlockGrid(project.grid.origin, project.grid.block_size, project.grid.shape)
+
+
+def model_proportions(project: Project, grid: BlockGrid) -> np.ndarray:
+    """(n_blocks, n_domains) proportions: solids where given, topography applied."""
+    from .domains import block_proportions
+    from .solids import read_surface
+
+    solids = [read_surface(d.solid) for d in project.domains if d.solid is not None]
+    if len(solids) != len(project.domains):
+        raise InputError([Problem(str(project.source), None, None, "domains.solid",
+                                  "every domain needs a solid to build the block model")])
+    topo = read_surface(project.grid.topography) if project.grid.topography else None
+    return block_proportions(grid, solids, topo, subcells=project.grid.subcells)
+
+
+@dataclass
+class DomainDeclustering:
+    weights: np.ndarray
+    cell: CellDeclustering | None
+    naive_mean: dict[str, float]
+    declustered_mean: dict[str, float]
+
+
+def decluster(project: Project, table: pd.DataFrame, grid: BlockGrid | None = None,
+              proportions: np.ndarray | None = None) -> dict[str, DomainDeclustering]:
+    """Declustering weights per domain (column ``weight`` added to ``table`` in place)."""
+    s = project.declustering
+    table["weight"] = 1.0
+    out = {}
+    lo, hi, n = s.cell_sizes
+    sizes = np.linspace(lo, hi, int(n))
+    for d_index, d in enumerate(project.domains):
+        rows = np.flatnonzero((table["domain"] == d.name).to_numpy())
+        if len(rows) == 0:
+            continue
+        pts = table.loc[table.index[rows], ["x", "y", "z"]].to_numpy(float)
+        primary = project.grades[0]
+        vals = table.loc[table.index[rows], primary].to_numpy(float)
+        ok = np.isfinite(vals)
+        cell = None
+        w = np.ones(len(rows))
+        if s.method == "cell" and ok.sum() > 1:
+            cell = cell_declustering(pts[ok], vals[ok], sizes, anisotropy=s.anisotropy, origins=s.origins,
+                                     choose=s.choose, fixed_size=s.fixed_size)
+            w[ok] = cell.weights
+        elif s.method == "nearest" and grid is not None and proportions is not None:
+            flat = np.flatnonzero(proportions[:, d_index] > 0)
+            w = nearest_neighbour_weights(pts, grid.centres(flat))
+        table.loc[table.index[rows], "weight"] = w
+        naive, decl = {}, {}
+        for g in project.grades:
+            v = table.loc[table.index[rows], g].to_numpy(float)
+            f = np.isfinite(v)
+            naive[g] = float(v[f].mean()) if f.any() else float("nan")
+            decl[g] = float(w[f] @ v[f] / w[f].sum()) if f.any() else float("nan")
+        out[d.name] = DomainDeclustering(w, cell, naive, decl)
+    return out
+
+
+@dataclass
+class Variography:
+    """One domain and grade: experimental variograms, the model and where it came from."""
+
+    domain: str
+    grade: str
+    orientation: Orientation
+    directional: list[ExperimentalVariogram] = field(default_factory=list)
+    downhole: ExperimentalVariogram | None = None
+    model: VariogramModel | None = None
+    source: str = "fitted"
+
+
+def _model_from_spec(spec) -> VariogramModel:
+    return VariogramModel(spec.nugget, [Structure(s.kind, s.sill, s.ranges, Orientation(*s.orientation))
+                                        for s in spec.structures])
+
+
+def _scaled(model: VariogramModel, factor: float) -> VariogramModel:
+    return VariogramModel(model.nugget * factor, [Structure(s.kind, s.sill * factor, s.ranges, s.orientation)
+                                                  for s in model.structures])
+
+
+def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]:
+    """Experimental variograms along the principal axes and a fitted (or given) model."""
+    v = project.variography
+    out = {}
+    for d in project.domains:
+        if not d.estimate:
+            continue
+        sub = table[table["domain"] == d.name]
+        for g in project.grades:
+            key = f"{d.name}.{g}"
+            ok = sub[g].notna().to_numpy()
+            pts = sub.loc[ok, ["x", "y", "z"]].to_numpy(float)
+            vals = sub.loc[ok, g].to_numpy(float)
+            weights = sub.loc[ok, "weight"].to_numpy(float) if v.use_declustering_weights and "weight" in sub else None
+            if key in project.variogram:
+                model = _model_from_spec(project.variogram[key])
+                orient = model.structures[0].orientation if model.structures else Orientation()
+            else:
+                model = None
+                orient = Orientation(*v.orientation) if v.orientation is not None else Orientation()
+            res = Variography(d.name, g, orient)
+            for axis, (az, pl) in enumerate(principal_directions(orient)):
+                lag = v.lag if axis < 2 else max(v.lag / 4, 1.0)
+                res.directional.append(experimental_variogram(
+                    pts, vals, lag=lag, n_lags=v.lags, direction=(az, pl), angular_tolerance=v.angular_tolerance,
+                    horizontal_bandwidth=v.horizontal_bandwidth, vertical_bandwidth=v.vertical_bandwidth,
+                    estimator=v.estimator, weights=weights, label=("major", "semi", "minor")[axis]))
+            res.downhole = experimental_variogram(pts, vals, lag=project.compositing.length, n_lags=v.lags,
+                                                  estimator=v.estimator, weights=weights,
+                                                  holes=sub.loc[ok, "hole"].to_numpy(), label="downhole")
+            if model is None:
+                try:
+                    model = fit_variogram([(e, a) for a, e in enumerate(res.directional)], v.kinds[: v.structures],
+                                          orient)
+                except ValueError as exc:
+                    raise InputError([Problem(str(project.source), None, None, "variography",
+                                              f"cannot fit a variogram for {key}: {exc}")]) from None
+                if v.estimator != "semivariogram":
+                    # Standardised estimators: scale the fitted sills to the (declustered)
+                    # variance of the data, the usual practice (common practice).
+                    w = sub.loc[ok, "weight"].to_numpy(float) if "weight" in sub else np.ones(len(vals))
+                    m = w @ vals / w.sum()
+                    var = w @ (vals - m) ** 2 / w.sum()
+                    scale = var if v.estimator == "correlogram" else m * m
+                    model = _scaled(model, scale)
+                res.source = "fitted"
+            else:
+                res.source = "project file"
+            res.model = model
+            out[key] = res
+    return out
+
+
+def estimate_block_model(
+    project: Project,
+    table: pd.DataFrame,
+    models: dict[str, VariogramModel],
+    grid: BlockGrid,
+    proportions: np.ndarray,
+    *,
+    backend: str | None = None,
+    workers: int | None = None,
+    chunk_size: int | None = None,
+    cluster: str | None = None,
+    declustered_means: dict[str, dict[str, float]] | None = None,
+) -> pd.DataFrame:
+    """Estimate every domain and grade; one row per block and domain with proportion > 0.
+
+    Returns
+    -------
+    DataFrame with columns ``x, y, z, i, j, k, domain, proportion, density, tonnes`` and,
+    per grade g, ``g, g_variance, g_slope, g_efficiency, g_samples, g_holes, g_distance,
+    g_pass, g_nn, g_idw``.
+    """
+    e = project.estimation
+    backend = backend or e.backend
+    workers = e.workers if workers is None else workers
+    chunk_size = chunk_size or e.chunk_size
+    cluster = cluster if cluster is not None else e.cluster
+    frames = []
+    for d_index, d in enumerate(project.domains):
+        if not d.estimate:
+            continue
+        flat = np.flatnonzero(proportions[:, d_index] > 0)
+        if len(flat) == 0:
+            continue
+        ijk = grid.ijk(flat)
+        centres = grid.centres(flat)
+        prop = proportions[flat, d_index].astype(np.float64)
+        frame = pd.DataFrame({"x": centres[:, 0], "y": centres[:, 1], "z": centres[:, 2], "i": ijk[:, 0],
+                              "j": ijk[:, 1], "k": ijk[:, 2], "domain": d.name, "proportion": prop,
+                              "density": d.density, "tonnes": grid.block_volume * prop * d.density})
+        frame["_flat"] = flat
+        for g in project.grades:
+            key = f"{d.name}.{g}"
+            source = table if e.boundaries == "soft" else table[table["domain"] == d.name]
+            source = source[source[g].notna()]
+            model = models[key]
+            passes = passes_from(project.search, model.structures[0].orientation if model.structures else Orientation())
+            mean = None
+            if e.method == "simple":
+                mean = (declustered_means or {}).get(d.name, {}).get(g, float(source[g].mean()))
+            job = EstimationJob(source[["x", "y", "z"]].to_numpy(float), source[g].to_numpy(float),
+                                source["hole"].to_numpy(), model, passes, e.method, mean, grid.block_size,
+                                e.discretisation, e.idw_power)
+            res = run_job(job, centres, chunk_size=chunk_size, backend=backend, workers=workers, cluster=cluster,
+                          label=f"{d.name} {g}")
+            frame[g] = res["estimate"]
+            frame[f"{g}_variance"] = res["variance"]
+            frame[f"{g}_slope"] = res["slope"]
+            frame[f"{g}_efficiency"] = res["efficiency"]
+            frame[f"{g}_samples"] = res["n_samples"]
+            frame[f"{g}_holes"] = res["n_holes"]
+            frame[f"{g}_distance"] = res["mean_distance"]
+            frame[f"{g}_pass"] = res["search_pass"]
+            frame[f"{g}_nn"] = res["nearest"]
+            frame[f"{g}_idw"] = res["inverse_distance"]
+            frame[f"{g}_ill_conditioned"] = res["ill_conditioned"]
+        frames.append(frame)
+    model_table = pd.concat(frames, ignore_index=True)
+    order = {d.name: n for n, d in enumerate(project.domains)}
+    model_table["_order"] = model_table["domain"].map(order)
+    model_table = model_table.sort_values(["_flat", "_order"], kind="stable").drop(columns=["_flat", "_order"])
+    return model_table.reset_index(drop=True)

@@ -1,0 +1,248 @@
+"""Figures as PNG (matplotlib, loaded lazily, Agg backend): variograms, declustering,
+grade-tonnage curves, swaths, cross-validation, plans and sections.
+
+Grades use the perceptually uniform 'cividis' colour map; classes use the palette below.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+__all__ = ["CLASS_COLOURS", "GRADE_CMAP"]
+
+GRADE_CMAP = "cividis"
+CLASS_COLOURS = {
+    "Measured": "#1b7837",
+    "Indicated": "#5aae61",
+    "Inferred": "#f4a582",
+    "Unestimated": "#bababa",
+}
+
+
+def _plt():
+    import matplotlib
+
+    matplotlib.use("Agg", force=True)
+    import matplotlib.pyplot as plt
+
+    return plt
+
+
+def _save(fig, path: Path) -> None:
+    fig.savefig(path, dpi=110, bbox_inches="tight")
+    _plt().close(fig)
+
+
+def variogram_figure(res, path: Path, unit: str) -> None:
+    """Experimental variograms along the principal axes and downhole, with the model."""
+    plt = _plt()
+    from .fitting import principal_directions
+
+    fig, axes = plt.subplots(1, 4, figsize=(16, 3.8), sharey=True)
+    dirs = principal_directions(res.orientation)
+    axes_vec = res.orientation.axes()
+    for n, ax in enumerate(axes):
+        ev = res.directional[n] if n < 3 else res.downhole
+        ok = ev.pairs > 0
+        ax.plot(ev.distance[ok], ev.value[ok], "o", color="#2c7fb8", label="experimental")
+        for d, v, p in zip(ev.distance[ok], ev.value[ok], ev.pairs[ok], strict=True):
+            ax.annotate(str(p), (d, v), textcoords="offset points", xytext=(0, 5), fontsize=6, ha="center")
+        if res.model is not None and n < 3:
+            hmax = max(float(np.nanmax(ev.distance[ok], initial=1.0)), 1.0) * 1.1
+            h = np.linspace(0, hmax, 200)
+            gam = res.model.variogram(h[:, None] * axes_vec[n][None, :])
+            ax.plot(h, gam, "-", color="#d95f0e", label="model")
+        title = ("major", "semi", "minor", "downhole")[n]
+        if n < 3:
+            title += f" (az {dirs[n][0]:.0f}, plunge {dirs[n][1]:.0f})"
+        ax.set_title(title, fontsize=9)
+        ax.set_xlabel("distance (m)")
+        ax.grid(alpha=0.3)
+    axes[0].set_ylabel(f"{res.directional[0].estimator} ({unit})²" if res.directional[0].estimator == "semivariogram" else res.directional[0].estimator)
+    axes[0].legend(fontsize=8)
+    fig.suptitle(f"Variograms: {res.domain} {res.grade}; numbers are pair counts", fontsize=10)
+    _save(fig, path)
+
+
+def declustering_figure(sizes, means, chosen, naive, path: Path, label: str, unit: str) -> None:
+    plt = _plt()
+    fig, ax = plt.subplots(figsize=(6, 4))
+    ax.plot(sizes, means, "o-", color="#2c7fb8", label="declustered mean")
+    ax.axhline(naive, color="grey", ls="--", label="naive mean")
+    ax.axvline(chosen, color="#d95f0e", label=f"chosen {chosen:.0f} m")
+    ax.set_xlabel("cell size along x (m)")
+    ax.set_ylabel(f"mean ({unit})")
+    ax.set_title(f"Cell declustering: {label}")
+    ax.legend()
+    ax.grid(alpha=0.3)
+    _save(fig, path)
+
+
+def grade_tonnage_figure(curves: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]], path: Path,
+                         unit: str, title: str) -> None:
+    """Tonnes (left axis, solid) and grade (right axis, dashed) against cut-off per curve."""
+    plt = _plt()
+    fig, ax = plt.subplots(figsize=(7, 4.5))
+    ax2 = ax.twinx()
+    colours = plt.get_cmap("tab10").colors
+    for n, (name, (cut, tonnes, grade)) in enumerate(curves.items()):
+        c = colours[n % 10]
+        ax.plot(cut, np.asarray(tonnes) / 1e6, "-", color=c, label=f"{name} tonnes")
+        ax2.plot(cut, grade, "--", color=c, label=f"{name} grade")
+    ax.set_xlabel(f"cut-off ({unit})")
+    ax.set_ylabel("tonnes above cut-off (Mt)")
+    ax2.set_ylabel(f"mean grade above cut-off ({unit})")
+    lines = ax.get_legend_handles_labels()
+    lines2 = ax2.get_legend_handles_labels()
+    ax.legend(lines[0] + lines2[0], lines[1] + lines2[1], fontsize=7, loc="upper right")
+    ax.grid(alpha=0.3)
+    ax.set_title(title)
+    _save(fig, path)
+
+
+def swath_figure(tables: dict[str, object], path: Path, grade: str, unit: str, title: str) -> None:
+    plt = _plt()
+    fig, axes = plt.subplots(1, len(tables), figsize=(5 * len(tables), 3.8))
+    for ax, (axis, t) in zip(np.atleast_1d(axes), tables.items(), strict=True):
+        ax.plot(t["centre"], t["kriged"], "-o", ms=3, label="kriged")
+        ax.plot(t["centre"], t["nearest"], "-s", ms=3, label="nearest sample")
+        ax.plot(t["centre"], t["composites"], "-^", ms=3, label="declustered composites")
+        ax2 = ax.twinx()
+        ax2.bar(t["centre"], t["composite_count"], width=(t["centre"].iloc[1] - t["centre"].iloc[0]) * 0.8 if len(t) > 1 else 1,
+                color="grey", alpha=0.2)
+        ax2.set_ylabel("composites per slice", fontsize=8)
+        ax.set_xlabel(f"{axis} (m)")
+        ax.set_ylabel(f"{grade} ({unit})")
+        ax.grid(alpha=0.3)
+    np.atleast_1d(axes)[0].legend(fontsize=7)
+    fig.suptitle(title, fontsize=10)
+    _save(fig, path)
+
+
+def cross_validation_figure(cv, path: Path, grade: str, unit: str, title: str) -> None:
+    plt = _plt()
+    t = cv.table.dropna()
+    fig, ax = plt.subplots(figsize=(5, 5))
+    ax.scatter(t["estimate"], t["true"], s=4, alpha=0.4, color="#2c7fb8")
+    top = float(max(t["true"].quantile(0.995), t["estimate"].max()))
+    ax.plot([0, top], [0, top], "k--", lw=1, label="1:1")
+    ax.set_xlim(0, top)
+    ax.set_ylim(0, top)
+    ax.set_xlabel(f"estimate ({unit})")
+    ax.set_ylabel(f"true composite {grade} ({unit})")
+    ax.set_title(f"{title}\nslope {cv.slope_true_on_estimate:.2f}, r {cv.correlation:.2f}", fontsize=9)
+    ax.legend()
+    ax.grid(alpha=0.3)
+    _save(fig, path)
+
+
+def _norm(values, vmin=None, vmax=None):
+    v = np.asarray(values, dtype=float)
+    lo = np.nanpercentile(v, 1) if vmin is None else vmin
+    hi = np.nanpercentile(v, 99) if vmax is None else vmax
+    return lo, max(hi, lo + 1e-12)
+
+
+def per_block(blocks, column: str):
+    """One row per block: tonnage-weighted mean of ``column`` over its domain rows.
+
+    Returns a DataFrame with ``i, j, k, x, y, z`` and the column (NaN where unestimated).
+    """
+    import pandas as pd
+
+    v = blocks[column].to_numpy(float)
+    t = blocks["tonnes"].to_numpy(float)
+    ok = np.isfinite(v)
+    frame = pd.DataFrame({"i": blocks["i"].to_numpy(), "j": blocks["j"].to_numpy(), "k": blocks["k"].to_numpy(),
+                          "x": blocks["x"].to_numpy(), "y": blocks["y"].to_numpy(), "z": blocks["z"].to_numpy(),
+                          "_w": np.where(ok, t, 0.0), "_s": np.where(ok, t * np.nan_to_num(v), 0.0)})
+    g = frame.groupby(["i", "j", "k"], sort=True).agg(x=("x", "first"), y=("y", "first"), z=("z", "first"),
+                                                      _w=("_w", "sum"), _s=("_s", "sum")).reset_index()
+    with np.errstate(invalid="ignore", divide="ignore"):
+        g[column] = np.where(g["_w"] > 0, g["_s"] / g["_w"], np.nan)
+    return g.drop(columns=["_w", "_s"])
+
+
+def plan_figure(blocks, grid, column: str, elevation: float, path: Path, unit: str,
+                composites=None, tolerance: float | None = None, vmin=None, vmax=None) -> None:
+    """Horizontal plan of one block level, with composites within ``tolerance`` metres."""
+    plt = _plt()
+    k = int(np.floor((elevation - grid.origin[2]) / grid.block_size[2]))
+    level = per_block(blocks[blocks["k"] == k], column)
+    img = np.full((grid.shape[1], grid.shape[0]), np.nan)
+    img[level["j"].to_numpy(), level["i"].to_numpy()] = level[column].to_numpy()
+    lo, hi = _norm(blocks[column], vmin, vmax)
+    ox, oy = grid.origin[0], grid.origin[1]
+    ext = (ox, ox + grid.shape[0] * grid.block_size[0], oy, oy + grid.shape[1] * grid.block_size[1])
+    fig, ax = plt.subplots(figsize=(7, 7))
+    im = ax.imshow(img, origin="lower", extent=ext, cmap=GRADE_CMAP, vmin=lo, vmax=hi, interpolation="nearest")
+    if composites is not None:
+        tol = tolerance if tolerance is not None else grid.block_size[2]
+        z_c = grid.origin[2] + (k + 0.5) * grid.block_size[2]
+        near = composites[np.abs(composites["z"] - z_c) <= tol]
+        ax.scatter(near["x"], near["y"], c=near[column.split("_")[0]] if column.split("_")[0] in near else "k",
+                   cmap=GRADE_CMAP, vmin=lo, vmax=hi, s=18, edgecolors="k", linewidths=0.5)
+    fig.colorbar(im, ax=ax, shrink=0.8, label=f"{column} ({unit})")
+    _north_and_scale(ax, ext)
+    ax.set_xlabel("east (m)")
+    ax.set_ylabel("north (m)")
+    ax.tick_params(axis="x", labelrotation=30)
+    ax.set_title(f"Plan at elevation {grid.origin[2] + (k + 0.5) * grid.block_size[2]:.1f} m: {column}")
+    ax.ticklabel_format(useOffset=False, style="plain")
+    _save(fig, path)
+
+
+def _north_and_scale(ax, ext) -> None:
+    w = ext[1] - ext[0]
+    h = ext[3] - ext[2]
+    x0, y0 = ext[0] + 0.05 * w, ext[2] + 0.05 * h
+    bar = 10 ** np.floor(np.log10(w / 4))
+    ax.plot([x0, x0 + bar], [y0, y0], "k-", lw=3)
+    ax.text(x0 + bar / 2, y0 + 0.015 * h, f"{bar:.0f} m", ha="center", fontsize=8)
+    ax.annotate("N", xy=(ext[1] - 0.07 * w, ext[3] - 0.05 * h), xytext=(ext[1] - 0.07 * w, ext[3] - 0.15 * h),
+                arrowprops={"arrowstyle": "->", "lw": 1.5}, ha="center", fontsize=10, weight="bold")
+
+
+def section_figure(blocks, grid, column: str, point, azimuth: float, width: float, path: Path, unit: str,
+                   composites=None, vmin=None, vmax=None) -> None:
+    """Vertical section along ``azimuth`` through ``point``: blocks within half the width,
+    and composites within ``width / 2`` of the section plane drawn at their positions."""
+    plt = _plt()
+    from matplotlib.collections import PatchCollection
+    from matplotlib.patches import Rectangle
+
+    blocks = per_block(blocks, column)
+    az = np.radians(azimuth)
+    along = np.array([np.sin(az), np.cos(az)])
+    across = np.array([np.cos(az), -np.sin(az)])
+    rel = blocks[["x", "y"]].to_numpy() - np.asarray(point)[:2]
+    near = np.abs(rel @ across) <= width / 2
+    b = blocks[near & np.isfinite(blocks[column])]
+    s = rel[near & np.isfinite(blocks[column]).to_numpy()] @ along
+    lo, hi = _norm(blocks[column], vmin, vmax)
+    fig, ax = plt.subplots(figsize=(9, 6))
+    step = abs(grid.block_size[0] * along[0]) + abs(grid.block_size[1] * along[1])
+    patches = [Rectangle((si - step / 2, zi - grid.block_size[2] / 2), step, grid.block_size[2])
+               for si, zi in zip(s, b["z"], strict=True)]
+    pc = PatchCollection(patches, cmap=GRADE_CMAP)
+    pc.set_array(b[column].to_numpy())
+    pc.set_clim(lo, hi)
+    ax.add_collection(pc)
+    if composites is not None and len(composites):
+        crel = composites[["x", "y"]].to_numpy() - np.asarray(point)[:2]
+        cn = np.abs(crel @ across) <= width / 2
+        g = column.split("_")[0]
+        if g in composites:
+            ax.scatter(crel[cn] @ along, composites.loc[cn, "z"], c=composites.loc[cn, g], cmap=GRADE_CMAP,
+                       vmin=lo, vmax=hi, marker="s", s=14, edgecolors="k", linewidths=0.4, label="composites")
+            ax.legend(fontsize=8, loc="lower left")
+    fig.colorbar(pc, ax=ax, shrink=0.8, label=f"{column} ({unit})")
+    ax.autoscale()
+    ax.set_aspect("equal")
+    ax.set_xlabel(f"distance along azimuth {azimuth:.0f} from ({point[0]:.0f}, {point[1]:.0f}) (m)")
+    ax.set_ylabel("elevation (m)")
+    ax.set_title(f"Section along {azimuth:.0f}°, width {width:.0f} m: {column}")
+    ax.grid(alpha=0.2)
+    _save(fig, path)
