@@ -13,7 +13,14 @@ import numpy as np
 from scipy.spatial import cKDTree
 from scipy.stats import norm
 
-__all__ = ["ExperimentalVariogram", "NormalScores", "direction_vector", "experimental_variogram", "normal_scores"]
+__all__ = [
+    "ExperimentalVariogram",
+    "NormalScores",
+    "direction_vector",
+    "experimental_variogram",
+    "normal_scores",
+    "scan_directions",
+]
 
 ESTIMATORS = ("semivariogram", "correlogram", "pairwise_relative")
 
@@ -185,3 +192,48 @@ def normal_scores(values: np.ndarray, weights: np.ndarray | None = None) -> tupl
     mean_cdf = np.bincount(inverse.ravel(), weights=cdf) / np.bincount(inverse.ravel())
     table = NormalScores(uniq, norm.ppf(mean_cdf))
     return table.forward(values), table
+
+
+def scan_directions(
+    points: np.ndarray,
+    values: np.ndarray,
+    azimuths: np.ndarray,
+    plunges: np.ndarray,
+    *,
+    lag: float,
+    n_lags: int,
+    angular_tolerance: float = 15.0,
+    estimator: str = "semivariogram",
+    weights: np.ndarray | None = None,
+) -> dict[str, np.ndarray]:
+    """Variogram values over a fan of directions, to choose the axes of continuity.
+
+    Parameters
+    ----------
+    points : (n, 3) float64, metres
+    values : (n,) float64
+    azimuths : (a,) float64, degrees
+    plunges : (p,) float64, degrees
+    lag, n_lags, angular_tolerance, estimator, weights : as :func:`experimental_variogram`
+
+    Returns
+    -------
+    dict with ``value`` (p, a, n_lags), ``pairs`` (p, a, n_lags), ``azimuths``,
+    ``plunges`` and ``major`` = (azimuth, plunge) of the direction whose variogram rises
+    slowest (smallest pair-weighted mean over the lags).
+    """
+    azimuths = np.asarray(azimuths, dtype=np.float64)
+    plunges = np.asarray(plunges, dtype=np.float64)
+    value = np.full((len(plunges), len(azimuths), n_lags), np.nan)
+    pairs = np.zeros((len(plunges), len(azimuths), n_lags), dtype=np.int64)
+    for p, pl in enumerate(plunges):
+        for a, az in enumerate(azimuths):
+            ev = experimental_variogram(points, values, lag=lag, n_lags=n_lags, direction=(az, pl),
+                                        angular_tolerance=angular_tolerance, estimator=estimator, weights=weights)
+            value[p, a], pairs[p, a] = ev.value, ev.pairs
+    with np.errstate(invalid="ignore"):
+        score = np.nansum(value * pairs, axis=2) / pairs.sum(axis=2)
+    score = np.where(pairs.sum(axis=2) > 0, score, np.inf)
+    p, a = np.unravel_index(np.argmin(score), score.shape)
+    return {"value": value, "pairs": pairs, "azimuths": azimuths, "plunges": plunges,
+            "major": (float(azimuths[a]), float(plunges[p]))}

@@ -15,7 +15,7 @@ from .experimental import ExperimentalVariogram
 from .orientation import Orientation
 from .variogram import KINDS, Structure, VariogramModel, correlation
 
-__all__ = ["fit_variogram", "principal_directions"]
+__all__ = ["find_azimuth", "fit_variogram", "principal_directions"]
 
 
 def principal_directions(orientation: Orientation) -> list[tuple[float, float]]:
@@ -30,7 +30,7 @@ def principal_directions(orientation: Orientation) -> list[tuple[float, float]]:
 
 
 def fit_variogram(
-    experimental: Sequence[tuple[ExperimentalVariogram, int | None]],
+    experimental: Sequence[tuple[ExperimentalVariogram, int | np.ndarray | None]],
     kinds: Sequence[str],
     orientation: Orientation,
     *,
@@ -42,8 +42,9 @@ def fit_variogram(
     Parameters
     ----------
     experimental : sequence of (ExperimentalVariogram, axis)
-        ``axis`` 0, 1, 2 for the major, semi and minor directions of ``orientation``;
-        None for an omnidirectional variogram (the fitted ranges are then isotropic).
+        ``axis`` 0, 1, 2 for the major, semi and minor directions of ``orientation``, or a
+        unit direction vector (3,) for any other direction; None for an omnidirectional
+        variogram (the fitted ranges are then isotropic).
     kinds : sequence of str
         Kind of each structure, 1 to 3 of them.
     orientation : Orientation
@@ -58,9 +59,14 @@ def fit_variogram(
 
     Notes
     -----
-    Minimises ``sum_j w_j (gamma_model(h_j) - gamma_j)^2`` with ``w_j = N_j / h_j^2`` by
+    Along a unit direction d, a structure's reduced distance is
+    ``h * |diag(1/a) R d|``.  Minimises ``sum_j w_j (gamma_model(h_j) - gamma_j)^2`` with ``w_j = N_j / h_j^2`` by
     default (Cressie 1985; the default of gstat's fit.variogram, Pebesma 2004).
     """
+    return _fit(experimental, kinds, orientation, fixed, weighting)[0]
+
+
+def _fit(experimental, kinds, orientation, fixed, weighting):
     if not 1 <= len(kinds) <= 3:
         raise ValueError("fit between one and three structures")
     for k in kinds:
@@ -75,7 +81,8 @@ def fit_variogram(
     if unknown:
         raise ValueError(f"cannot fix {sorted(unknown)}; parameters are {names}")
 
-    h, g, w, ax = [], [], [], []
+    h, g, w, ax, comp = [], [], [], [], []
+    axes = orientation.axes()
     for ev, axis in experimental:
         ok = (ev.pairs > 0) & np.isfinite(ev.value)
         h.append(ev.distance[ok])
@@ -86,8 +93,16 @@ def fit_variogram(
             w.append(ev.pairs[ok].astype(float))
         else:
             w.append(np.ones(ok.sum()))
-        ax.append(np.full(ok.sum(), 0 if axis is None else axis))
-    h, g, w, ax = map(np.concatenate, (h, g, w, ax))
+        if axis is None or np.ndim(axis) == 0:
+            a = 0 if axis is None else int(axis)
+            c = np.eye(3)[a]
+        else:
+            d = np.asarray(axis, dtype=np.float64)
+            c = np.abs(axes @ (d / np.linalg.norm(d)))
+            a = int(np.argmax(c))
+        ax.append(np.full(ok.sum(), a))
+        comp.append(np.tile(c, (ok.sum(), 1)))
+    h, g, w, ax, comp = map(np.concatenate, (h, g, w, ax, comp))
     if len(h) < 3:
         raise ValueError("too few lags with pairs to fit a model")
     sqrt_w = np.sqrt(w / w.mean())
@@ -110,11 +125,12 @@ def fit_variogram(
         out = np.full(len(h), p["nugget"])
         for k, kind in enumerate(kinds):
             if isotropic:
-                a = np.full(len(h), p[f"range{k + 1}_major"])
+                a = p[f"range{k + 1}_major"]
+                r = h / a
             else:
                 ranges = np.array([p[f"range{k + 1}_{n}"] for n in axes_names])
-                a = ranges[ax]
-            out += p[f"sill{k + 1}"] * (1.0 - correlation(KINDS[kind], h / a))
+                r = h * np.sqrt(((comp / ranges) ** 2).sum(axis=1))
+            out += p[f"sill{k + 1}"] * (1.0 - correlation(KINDS[kind], r))
         return out
 
     # a range is bounded by twice the longest lag seen along its own axis
@@ -145,4 +161,65 @@ def fit_variogram(
         r = tuple(p[f"range{k + 1}_{a}"] for a in axes_names)
         ranges = (r[0], r[0], r[0]) if isotropic else r
         structures.append(Structure(kind, sill, ranges, orientation))
-    return VariogramModel(max(p["nugget"], 0.0), structures)
+    return VariogramModel(max(p["nugget"], 0.0), structures), float(best.cost)
+
+
+def find_azimuth(
+    points: np.ndarray,
+    values: np.ndarray,
+    *,
+    lag: float,
+    n_lags: int,
+    kinds: Sequence[str] = ("spherical",),
+    step: float = 15.0,
+    angular_tolerance: float = 15.0,
+    refine: float = 2.5,
+) -> tuple[float, VariogramModel]:
+    """Azimuth of the major axis of a horizontal anisotropy, by fitting one geometric
+    anisotropy jointly to a fan of horizontal directional variograms.
+
+    Parameters
+    ----------
+    points : (n, 3) float64, metres
+    values : (n,) float64
+    lag, n_lags : lag width (metres) and count of the fan's variograms
+    kinds : structure kinds of the model
+    step : float, degrees between the fan's directions
+    refine : float, degrees; resolution of the search over azimuths
+
+    Returns
+    -------
+    azimuth : float, degrees in [0, 180)
+    model : VariogramModel fitted at that azimuth (plunge and tilt zero); horizontal data
+        do not inform the minor (vertical) range, which is set equal to the semi range
+
+    Notes
+    -----
+    Using every direction at once is far steadier than picking the single direction whose
+    variogram rises slowest.
+    """
+    from .experimental import direction_vector, experimental_variogram
+
+    fan = []
+    for az in np.arange(0.0, 180.0, step):
+        ev = experimental_variogram(points, values, lag=lag, n_lags=n_lags, direction=(az, 0.0),
+                                    angular_tolerance=angular_tolerance)
+        fan.append((ev, direction_vector(az, 0.0)))
+    best = None
+    for az in np.arange(0.0, 180.0, refine):
+        model, cost = _fit(fan, kinds, Orientation(az, 0.0, 0.0), {}, "pairs_over_distance_squared")
+        if best is None or cost < best[0]:
+            best = (cost, az, model)
+    cost, az, model = best
+    # the fit may settle with its "major" axis the shorter one: turn it a right angle
+    reach = [sum(s.sill * s.ranges[i] for s in model.structures) for i in (0, 1)]
+    swap = reach[1] > reach[0]
+    if swap:
+        az = (az + 90.0) % 180.0
+    o = Orientation(az, 0.0, 0.0)
+    structures = []
+    for s in model.structures:
+        major, semi = (s.ranges[1], s.ranges[0]) if swap else (s.ranges[0], s.ranges[1])
+        # horizontal data say nothing of the vertical: give the minor axis the semi range
+        structures.append(Structure(s.kind, s.sill, (major, semi, semi), o))
+    return float(az), VariogramModel(model.nugget, structures)

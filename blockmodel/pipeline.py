@@ -158,9 +158,16 @@ def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]
             if key in project.variogram:
                 model = _model_from_spec(project.variogram[key])
                 orient = model.structures[0].orientation if model.structures else Orientation()
-            else:
+            elif v.orientation is not None:
                 model = None
-                orient = Orientation(*v.orientation) if v.orientation is not None else Orientation()
+                orient = Orientation(*v.orientation)
+            else:
+                # no orientation given: find the horizontal direction of continuity
+                from .fitting import find_azimuth
+
+                model = None
+                azimuth, _ = find_azimuth(pts, vals, lag=v.lag, n_lags=v.lags)
+                orient = Orientation(azimuth, 0.0, 0.0)
             res = Variography(d.name, g, orient)
             for axis, (az, pl) in enumerate(principal_directions(orient)):
                 lag = v.lag if axis < 2 else max(v.lag / 4, 1.0)

@@ -62,5 +62,5 @@ def simulate_gaussian(
     amplitude = np.sqrt(np.clip(spectrum.real, 0.0, None))
     del spectrum
     noise = np.fft.rfftn(rng.standard_normal(n))
-    field = np.fft.irfftn(amplitude * noise, s=n)
+    field = np.fft.irfftn(amplitude * noise, s=n, axes=(0, 1, 2))
     return np.ascontiguousarray(field[: shape[0], : shape[1], : shape[2]])

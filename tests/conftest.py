@@ -24,3 +24,52 @@ def meuse():
 
     path = Path(skgstat.__file__).parent / "data" / "samples" / "meuse.txt"
     return pd.read_csv(path)
+
+
+SMALL_PROJECT = """
+name = "small test project"
+
+[data]
+collars = "collars.csv"
+surveys = "surveys.csv"
+intervals = "assays.csv"
+grades = { au = "g/t" }
+
+[[domains]]
+name = "ore"
+density = 2.7
+
+[[domains]]
+name = "waste"
+density = 2.6
+estimate = false
+
+[grid]
+origin = [0.0, 0.0, 0.0]
+block_size = [10.0, 10.0, 5.0]
+shape = [10, 10, 10]
+
+[report]
+folder = "out"
+"""
+
+SMALL_FILES = {
+    "collars.csv": "hole_id,x,y,z,depth\nA1,10,10,100,30\nA2,40,10,100,30\nA3,10,40,100,30\n",
+    "surveys.csv": "hole_id,depth,azimuth,dip\nA1,0,0,-90\nA1,20,0,-88\nA2,0,90,-60\nA2,25,90,-61\nA3,0,180,-70\nA3,25,180,-70\n",
+    "assays.csv": (
+        "hole_id,from,to,au,domain\n"
+        "A1,0,2,0.1,waste\nA1,2,4,1.5,ore\nA1,4,6,2.5,ore\nA1,6,8,<0.01,ore\nA1,8,10,,ore\n"
+        "A2,0,10,3.0,ore\nA2,10,12,0.2,waste\n"
+        "A3,0,1,1.0,ore\nA3,1,3,2.0,ore\nA3,5,7,-99,ore\n"
+    ),
+}
+
+
+@pytest.fixture
+def small_project(tmp_path):
+    """A valid three-hole project in a temporary folder; returns the project file path."""
+    for name, text in SMALL_FILES.items():
+        (tmp_path / name).write_text(text)
+    path = tmp_path / "project.toml"
+    path.write_text(SMALL_PROJECT)
+    return path
