@@ -17,6 +17,9 @@ from .errors import InputError, Problem
 __all__ = ["Lattice", "Surface", "column_crossings", "points_inside", "read_surface", "surface_elevation", "write_ply"]
 
 
+_NUDGE = (np.sqrt(2.0) * 1e-7, np.sqrt(3.0) * 1e-7)
+
+
 @dataclass(frozen=True)
 class Surface:
     """Triangulated surface: vertices (v, 3) float64 metres, triangles (t, 3) int64."""
@@ -103,8 +106,10 @@ def column_crossings(surface: Surface, lattice: Lattice) -> tuple[np.ndarray, np
     local = np.arange(counts.sum()) - np.repeat(np.cumsum(counts) - counts, counts)
     ii = lo[tri, 0] + local % np.maximum(ni[tri], 1)
     jj = lo[tri, 1] + local // np.maximum(ni[tri], 1)
-    px = lattice.x0 + ii * lattice.dx
-    py = lattice.y0 + jj * lattice.dy
+    # Nudge the rays by a tiny, irrational fraction of a column so that none passes exactly
+    # through a vertex or along a shared edge (which would count a crossing twice).
+    px = lattice.x0 + ii * lattice.dx + _NUDGE[0] * lattice.dx
+    py = lattice.y0 + jj * lattice.dy + _NUDGE[1] * lattice.dy
     a, b, c = p0[tri], p1[tri], p2[tri]
     det = (b[:, 0] - a[:, 0]) * (c[:, 1] - a[:, 1]) - (c[:, 0] - a[:, 0]) * (b[:, 1] - a[:, 1])
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -138,8 +143,10 @@ def points_inside(crossings: tuple[np.ndarray, np.ndarray], column: np.ndarray, 
     col, zc = crossings
     if len(col) == 0:
         return np.zeros(len(z), dtype=bool)
-    span = max(float(zc.max() - zc.min()), float(np.max(z) - np.min(z)), 1.0) * 4
-    base = min(float(zc.min()), float(np.min(z))) - span / 4
+    # one sort key per (column, elevation): column + a fraction in (0, 1) for the elevation
+    lo = min(float(zc.min()), float(np.min(z))) - 1.0
+    span = max(float(zc.max()), float(np.max(z))) + 1.0 - lo
+    base = lo
     key_c = col + (zc - base) / span
     key_p = column + (z - base) / span
     end = np.searchsorted(col, column, side="right")

@@ -1,0 +1,112 @@
+"""Grade-tonnage identities, classification rules and the discrete Gaussian change of support."""
+
+from math import factorial, sqrt
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from blockmodel.classification import classify_blocks
+from blockmodel.project import ClassRule
+from blockmodel.reporting import TROY_OUNCE_GRAMS, grade_tonnage
+from blockmodel.support import block_grade_tonnage, fit_anamorphosis, hermite, support_coefficient
+
+
+@pytest.fixture
+def blocks(rng):
+    n = 600
+    return pd.DataFrame({
+        "domain": rng.choice(["lode", "halo"], size=n),
+        "class": rng.choice(["Measured", "Indicated", "Inferred"], size=n),
+        "tonnes": rng.uniform(100, 1375, size=n),
+        "au": np.where(rng.uniform(size=n) < 0.05, np.nan, rng.lognormal(0, 1, size=n)),
+    })
+
+
+def test_grade_tonnage_identities(blocks):
+    cut = [0.0, 0.5, 1.0, 2.0, 5.0]
+    gt = grade_tonnage(blocks, "au", "g/t", cut)
+    oz = gt[gt["metal_unit"] == "troy oz"]
+    kg = gt[gt["metal_unit"] == "kg"]
+    # tonnage never rises with cut-off
+    for _, part in oz.groupby(["domain", "class"]):
+        assert np.all(np.diff(part["tonnes"].to_numpy()) <= 1e-9)
+    # metal = tonnes x grade, unit-converted (1 troy oz = 31.1034768 g)
+    ok = oz["tonnes"] > 0
+    np.testing.assert_allclose(oz["metal"][ok], (oz["tonnes"] * oz["grade"] / TROY_OUNCE_GRAMS)[ok], rtol=1e-12)
+    np.testing.assert_allclose(kg["metal"][ok.to_numpy()], (kg["tonnes"] * kg["grade"] / 1000)[ok.to_numpy()], rtol=1e-12)
+    # at cut-off 0 the tonnage is the sum of estimated block tonnes
+    total = oz[(oz["domain"] == "all") & (oz["class"] == "all") & (oz["cutoff"] == 0)]["tonnes"].iloc[0]
+    assert total == pytest.approx(blocks["tonnes"][blocks["au"].notna()].sum())
+    # class rows add up to the totals, and domains too
+    for c in cut:
+        at = oz[oz["cutoff"] == c]
+        by_class = at[(at["domain"] == "all") & (at["class"] != "all")]
+        by_domain = at[(at["class"] == "all") & (at["domain"] != "all")]
+        tot = at[(at["domain"] == "all") & (at["class"] == "all")]
+        assert by_class["tonnes"].sum() == pytest.approx(tot["tonnes"].iloc[0])
+        assert by_domain["metal"].sum() == pytest.approx(tot["metal"].iloc[0])
+
+
+def test_percent_grades_report_tonnes_of_metal():
+    b = pd.DataFrame({"domain": ["a"], "class": ["x"], "tonnes": [1000.0], "cu": [1.5]})
+    gt = grade_tonnage(b, "cu", "%", [0.0])
+    assert gt["metal_unit"].iloc[0] == "t" and gt["metal"].iloc[0] == pytest.approx(15.0)
+
+
+def test_classification_rules_in_order():
+    t = pd.DataFrame({
+        "domain": ["d"] * 5, "i": [0, 5, 10, 15, 20], "j": 0, "k": 0,
+        "au": [1.0, 1.0, 1.0, 1.0, np.nan],
+        "au_pass": [1, 1, 2, 3, 0], "au_holes": [4, 2, 2, 1, 0], "au_samples": [20, 10, 8, 3, 0],
+        "au_distance": [20.0, 30, 40, 90, 0], "au_slope": [0.9, 0.85, 0.6, 0.2, np.nan],
+    })
+    rules = [ClassRule("Measured", max_pass=1, min_holes=3, min_slope=0.8),
+             ClassRule("Indicated", max_pass=2, min_holes=2, min_slope=0.5)]
+    labels = classify_blocks(t, "au", rules, "Inferred", clean_up=False)
+    assert list(labels) == ["Measured", "Indicated", "Indicated", "Inferred", "Unestimated"]
+
+
+def test_clean_up_removes_isolated_block():
+    ii, jj, kk = np.meshgrid(range(3), range(3), range(3), indexing="ij")
+    n = ii.size
+    t = pd.DataFrame({"domain": "d", "i": ii.ravel(), "j": jj.ravel(), "k": kk.ravel(), "au": 1.0,
+                      "au_pass": 2, "au_holes": 2, "au_samples": 8, "au_distance": 30.0, "au_slope": 0.6})
+    centre = (t["i"] == 1) & (t["j"] == 1) & (t["k"] == 1)
+    t.loc[centre, ["au_pass", "au_holes", "au_slope"]] = [1, 5, 0.95]
+    rules = [ClassRule("Measured", max_pass=1, min_holes=3, min_slope=0.8),
+             ClassRule("Indicated", max_pass=2, min_holes=2, min_slope=0.5)]
+    raw = classify_blocks(t, "au", rules, clean_up=False)
+    cleaned = classify_blocks(t, "au", rules, clean_up=True)
+    assert raw[centre.to_numpy()][0] == "Measured" and set(cleaned) == {"Indicated"} and len(cleaned) == n
+
+
+def test_hermite_orthonormal():
+    y, w = np.polynomial.hermite_e.hermegauss(80)
+    h = hermite(y, 10)
+    gram = (h * w / np.sqrt(2 * np.pi)) @ h.T
+    np.testing.assert_allclose(gram, np.eye(11), atol=1e-10)
+
+
+@pytest.mark.parametrize(("m", "s", "r"), [(2.0, 0.8, 0.7), (0.3, 1.2, 0.5), (5.0, 0.4, 0.9)])
+def test_lognormal_closed_forms(m, s, r):
+    # Matheron; Rivoirard (1994): phi_n = m (-s)^n / sqrt(n!), Var Z_v = m^2 (exp(s^2 r^2) - 1)
+    ana = fit_anamorphosis(lambda y: m * np.exp(s * y - s * s / 2), 40)
+    expected = np.array([m * (-s) ** n / sqrt(factorial(n)) for n in range(41)])
+    np.testing.assert_allclose(ana.coefficients, expected, atol=1e-6 * m)
+    assert ana.block_variance(r) == pytest.approx(m * m * (np.exp(s * s * r * r) - 1), rel=1e-6)
+    assert support_coefficient(ana, m * m * (np.exp(s * s * r * r) - 1)) == pytest.approx(r, rel=1e-6)
+
+
+def test_block_tonnage_of_lognormal_blocks():
+    # In the discrete Gaussian model with a lognormal point law, blocks are lognormal with
+    # log-sd s r: P(Z_v >= c) = 1 - Phi((ln(c/m) + (s r)^2/2) / (s r)) (Rivoirard 1994).
+    from scipy.stats import norm
+
+    m, s, r = 2.0, 0.9, 0.6
+    ana = fit_anamorphosis(lambda y: m * np.exp(s * y - s * s / 2), 60)
+    cut = np.array([0.5, 1.0, 2.0, 4.0])
+    got = block_grade_tonnage(ana, r, cut)
+    sr = s * r
+    expected = 1 - norm.cdf((np.log(cut / m) + sr * sr / 2) / sr)
+    np.testing.assert_allclose(got[:, 0], expected, atol=2e-3)

@@ -1,0 +1,76 @@
+"""Renders are not blank, and the plan shows the block values of its level."""
+
+import numpy as np
+import pandas as pd
+import pytest
+from matplotlib import colormaps
+from matplotlib.image import imread
+
+from blockmodel import plots
+from blockmodel.grid import BlockGrid
+
+
+def _distinct_colours(png):
+    img = imread(png)[..., :3]
+    flat = (img.reshape(-1, 3) * 255).round().astype(int)
+    background = np.all(flat >= 250, axis=1)
+    return len(np.unique(flat, axis=0)), 1 - background.mean()
+
+
+@pytest.fixture
+def grid_and_blocks(rng):
+    grid = BlockGrid((5e5, 7e6, 1000.0), (10.0, 10.0, 5.0), (20, 15, 6))
+    ii, jj, kk = np.meshgrid(range(20), range(15), range(6), indexing="ij")
+    flat = grid.flat_index(ii.ravel(), jj.ravel(), kk.ravel())
+    c = grid.centres(flat)
+    b = pd.DataFrame({"x": c[:, 0], "y": c[:, 1], "z": c[:, 2], "i": ii.ravel(), "j": jj.ravel(), "k": kk.ravel(),
+                      "domain": "lode", "tonnes": 1000.0, "au": rng.lognormal(0, 0.6, size=len(flat)),
+                      "class": rng.choice(["Measured", "Indicated", "Inferred"], size=len(flat))})
+    return grid, b
+
+
+def test_plan_shows_values_of_its_level(grid_and_blocks, tmp_path):
+    grid, b = grid_and_blocks
+    path = tmp_path / "plan.png"
+    plots.plan_figure(b, grid, "au", 1012.0, path, "g/t", vmin=0.0, vmax=4.0)
+    colours, share = _distinct_colours(path)
+    assert colours > 200 and share > 0.3
+    # the block at (i, j) = (10, 7) on level k = 2: find its pixel through the axes transform
+    import matplotlib
+
+    matplotlib.use("Agg", force=True)
+    one = b[(b.i == 10) & (b.j == 7) & (b.k == 2)].iloc[0]
+    expected = np.array(colormaps[plots.GRADE_CMAP](np.clip(one.au / 4.0, 0, 1))[:3])
+    img = imread(path)[..., :3]
+    # locate the image area: the largest box of non-white pixels left of the colour bar
+    mask = ~np.all(img > 0.97, axis=2)
+    rows, cols = np.nonzero(mask[:, : int(img.shape[1] * 0.75)])
+    # image extent fills the axes: map (i, j) to pixel by the frame of the coloured region
+    coloured = np.nonzero(np.abs(img - img[:, :, :1]).sum(axis=2) > 0.02)
+    top, bottom = coloured[0].min(), coloured[0].max()
+    left, right = coloured[1].min(), np.percentile(coloured[1][coloured[1] < img.shape[1] * 0.75], 100)
+    px = int(left + (10.5 / 20) * (right - left))
+    py = int(bottom - (7.5 / 15) * (bottom - top))
+    assert np.abs(img[py, px] - expected).max() < 0.05
+    assert rows.size and cols.size
+
+
+def test_section_not_blank(grid_and_blocks, tmp_path):
+    grid, b = grid_and_blocks
+    path = tmp_path / "section.png"
+    plots.section_figure(b, grid, "au", (5e5 + 100, 7e6 + 75, 1015), 60.0, 20.0, path, "g/t")
+    colours, share = _distinct_colours(path)
+    assert colours > 200 and share > 0.1
+
+
+@pytest.mark.parametrize("column", ["au", "class"])
+def test_3d_render_off_screen_not_blank(grid_and_blocks, tmp_path, column):
+    # VTK chooses its own off-screen back end (EGL here); nothing is forced.
+    from blockmodel.views import render_view
+
+    grid, b = grid_and_blocks
+    path = tmp_path / f"{column}.png"
+    render_view(grid, b, column, path, unit="g/t", window_size=(800, 600))
+    colours, share = _distinct_colours(path)
+    assert share > 0.1
+    assert colours > (200 if column == "au" else 4)
