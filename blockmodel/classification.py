@@ -54,7 +54,9 @@ def classify_blocks(
     label = np.where(estimated, fallback, UNESTIMATED).astype(object)
     open_ = estimated.copy()
     for rule in rules:
-        ok = open_ & (p <= rule.max_pass) & (holes >= rule.min_holes) & (samples >= rule.min_samples)
+        ok = (
+            open_ & (p <= rule.max_pass) & (holes >= rule.min_holes) & (samples >= rule.min_samples)
+        )
         if rule.max_distance is not None:
             ok &= dist <= rule.max_distance
         if rule.min_slope is not None:

@@ -15,34 +15,55 @@ __all__ = ["main"]
 
 
 def _parser() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(prog="blockmodel", description="Drillholes to a block model of estimated grades, "
-                                "validated, classified and reported above cut-offs.")
+    p = argparse.ArgumentParser(
+        prog="blockmodel",
+        description="Drillholes to a block model of estimated grades, "
+        "validated, classified and reported above cut-offs.",
+    )
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
-    c = sub.add_parser("check", help="check a project and its data without estimating; print a data summary")
+    c = sub.add_parser(
+        "check", help="check a project and its data without estimating; print a data summary"
+    )
     c.add_argument("project", type=Path, help="project file (TOML)")
 
-    r = sub.add_parser("run", help="the whole chain: composites to block model, validation and report")
+    r = sub.add_parser(
+        "run", help="the whole chain: composites to block model, validation and report"
+    )
     r.add_argument("project", type=Path, help="project file (TOML)")
     r.add_argument("--out", type=Path, help="report folder (default: the project's report.folder)")
-    r.add_argument("--backend", choices=("serial", "processes", "dask"), help="where chunks of blocks run")
+    r.add_argument(
+        "--backend", choices=("serial", "processes", "dask"), help="where chunks of blocks run"
+    )
     r.add_argument("--workers", type=int, help="local processes (0 = all cores)")
-    r.add_argument("--cluster", help="address of a running dask.distributed scheduler (implies --backend dask)")
-    r.add_argument("--chunk-size", type=int, help="blocks per chunk (memory bound; results do not change)")
+    r.add_argument(
+        "--cluster", help="address of a running dask.distributed scheduler (implies --backend dask)"
+    )
+    r.add_argument(
+        "--chunk-size", type=int, help="blocks per chunk (memory bound; results do not change)"
+    )
     r.add_argument("--csv", action="store_true", help="also write the block model as CSV")
 
-    v = sub.add_parser("variography", help="declustering and variography alone: plots, table, fitted models")
+    v = sub.add_parser(
+        "variography", help="declustering and variography alone: plots, table, fitted models"
+    )
     v.add_argument("project", type=Path)
     v.add_argument("--out", type=Path, help="output folder (default: beside the report folder)")
 
-    a = sub.add_parser("report", help="re-report an existing block model at new cut-offs or class rules")
+    a = sub.add_parser(
+        "report", help="re-report an existing block model at new cut-offs or class rules"
+    )
     a.add_argument("project", type=Path)
     a.add_argument("block_model", type=Path, help="block_model.parquet from a run")
     a.add_argument("--out", type=Path, required=True, help="folder for the new report")
     a.add_argument("--cutoffs", type=float, nargs="+", help="cut-off grades (increasing)")
-    a.add_argument("--reclassify", action="store_true", help="apply the project's classification rules again")
+    a.add_argument(
+        "--reclassify", action="store_true", help="apply the project's classification rules again"
+    )
 
-    w = sub.add_parser("view", help="render a view of a block model to PNG, or open it interactively")
+    w = sub.add_parser(
+        "view", help="render a view of a block model to PNG, or open it interactively"
+    )
     w.add_argument("project", type=Path)
     w.add_argument("block_model", type=Path)
     w.add_argument("--field", default=None, help="column to colour by (default: first grade)")
@@ -75,10 +96,14 @@ def _view(args) -> None:
     blocks = pd.read_parquet(args.block_model)
     field = args.field or project.grades[0]
     if field not in blocks:
-        raise InputError(f"{args.block_model}: no column '{field}'; columns: {', '.join(blocks.columns)}")
+        raise InputError(
+            f"{args.block_model}: no column '{field}'; columns: {', '.join(blocks.columns)}"
+        )
     unit = project.data.grades.get(field.split("_")[0], "")
     centre = blocks[["x", "y", "z"]].mean().to_numpy()
-    point = [v if v is not None else c for v, c in zip((args.x, args.y, args.z), centre, strict=True)]
+    point = [
+        v if v is not None else c for v, c in zip((args.x, args.y, args.z), centre, strict=True)
+    ]
     if args.kind in ("plan", "section"):
         from . import plots
 
@@ -87,14 +112,23 @@ def _view(args) -> None:
         if args.kind == "plan":
             plots.plan_figure(blocks, grid, field, point[2], args.png, unit)
         else:
-            plots.section_figure(blocks, grid, field, point, args.azimuth, args.width, args.png, unit)
+            plots.section_figure(
+                blocks, grid, field, point, args.azimuth, args.width, args.png, unit
+            )
         return
     from .views import render_view
 
     if args.kind == "cutoff" and args.cutoff is None:
         raise InputError("--kind cutoff needs --cutoff")
-    render_view(grid, blocks, field, args.png, unit=unit, slices=tuple(point),
-                cutoff=args.cutoff if args.kind == "cutoff" else None)
+    render_view(
+        grid,
+        blocks,
+        field,
+        args.png,
+        unit=unit,
+        slices=tuple(point),
+        cutoff=args.cutoff if args.kind == "cutoff" else None,
+    )
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -121,15 +155,27 @@ def main(argv: list[str] | None = None) -> int:
             print(runner.check(project))
         elif args.command == "run":
             backend = "dask" if args.cluster else args.backend
-            out = runner.run(project, args.out, backend=backend, workers=args.workers, chunk_size=args.chunk_size,
-                             cluster=args.cluster, write_csv=args.csv or None)
+            out = runner.run(
+                project,
+                args.out,
+                backend=backend,
+                workers=args.workers,
+                chunk_size=args.chunk_size,
+                cluster=args.cluster,
+                write_csv=args.csv or None,
+            )
             print(f"report written to {out}")
         elif args.command == "variography":
             out = runner.run_variography(project, args.out)
             print(f"variography written to {out}")
         elif args.command == "report":
-            out = runner.report_again(project, args.block_model, args.out, cutoffs=args.cutoffs,
-                                      reclassify=args.reclassify)
+            out = runner.report_again(
+                project,
+                args.block_model,
+                args.out,
+                cutoffs=args.cutoffs,
+                reclassify=args.reclassify,
+            )
             print(f"report written to {out}")
     except InputError as exc:
         print(f"blockmodel: {exc.table()}", file=sys.stderr)

@@ -107,8 +107,16 @@ def composite(
                 else:
                     residual_dropped += 1
             a, b = edges[:-1], edges[1:]
-            overlap = np.clip(np.minimum(b[:, None], t[None, :]) - np.maximum(a[:, None], f[None, :]), 0, None)
-            record = {"hole": hole, "from": a, "to": b, "domain": run["domain"].iloc[0], "length": b - a}
+            overlap = np.clip(
+                np.minimum(b[:, None], t[None, :]) - np.maximum(a[:, None], f[None, :]), 0, None
+            )
+            record = {
+                "hole": hole,
+                "from": a,
+                "to": b,
+                "domain": run["domain"].iloc[0],
+                "length": b - a,
+            }
             coverage = np.zeros(len(a))
             for g in grades:
                 v = run[g].to_numpy(float)
@@ -117,7 +125,9 @@ def composite(
                 metal = overlap[:, has] @ v[has]
                 cov = sampled / (b - a)
                 with np.errstate(invalid="ignore", divide="ignore"):
-                    record[g] = np.where(cov >= settings.min_coverage - 1e-12, metal / sampled, np.nan)
+                    record[g] = np.where(
+                        cov >= settings.min_coverage - 1e-12, metal / sampled, np.nan
+                    )
                 coverage = np.maximum(coverage, cov)
             record["coverage"] = coverage
             part = pd.DataFrame(record)
@@ -125,8 +135,14 @@ def composite(
             keep = np.isfinite(part[grades].to_numpy(float)).any(axis=1)
             dropped += int((~keep).sum())
             rows.append(part[keep])
-    comps = pd.concat(rows, ignore_index=True) if rows else pd.DataFrame(columns=["hole", "from", "to", "domain", "length", "coverage", *grades])
-    mid = hole_positions(holes, comps["hole"].to_numpy(), ((comps["from"] + comps["to"]) / 2).to_numpy(float))
+    comps = (
+        pd.concat(rows, ignore_index=True)
+        if rows
+        else pd.DataFrame(columns=["hole", "from", "to", "domain", "length", "coverage", *grades])
+    )
+    mid = hole_positions(
+        holes, comps["hole"].to_numpy(), ((comps["from"] + comps["to"]) / 2).to_numpy(float)
+    )
     comps["x"], comps["y"], comps["z"] = mid[:, 0], mid[:, 1], mid[:, 2]
     comps = comps[["hole", "from", "to", "x", "y", "z", "domain", "length", "coverage", *grades]]
     return comps, CompositingSummary(len(comps), dropped, merged, residual_dropped)
@@ -170,11 +186,22 @@ def cap_grades(
         values = out.loc[mask, f"{g}_uncapped"].to_numpy(float)
         if len(values) == 0:
             continue
-        limit = rule.value if rule.value is not None else float(np.percentile(values, rule.percentile))
+        limit = (
+            rule.value if rule.value is not None else float(np.percentile(values, rule.percentile))
+        )
         capped = np.minimum(values, limit)
         lengths = out.loc[mask, "length"].to_numpy(float)
         metal = lengths @ values
         out.loc[mask, g] = capped
         removed = 100.0 * (metal - lengths @ capped) / metal if metal > 0 else 0.0
-        summaries.append(CappingSummary(rule.domain, g, float(limit), int((values > limit).sum()), len(values), float(removed)))
+        summaries.append(
+            CappingSummary(
+                rule.domain,
+                g,
+                float(limit),
+                int((values > limit).sum()),
+                len(values),
+                float(removed),
+            )
+        )
     return out, summaries

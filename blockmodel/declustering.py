@@ -16,7 +16,12 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.spatial import cKDTree
 
-__all__ = ["CellDeclustering", "cell_declustering", "nearest_neighbour_weights", "weighted_quantiles"]
+__all__ = [
+    "CellDeclustering",
+    "cell_declustering",
+    "nearest_neighbour_weights",
+    "weighted_quantiles",
+]
 
 
 @dataclass(frozen=True)

@@ -49,7 +49,9 @@ ASSAY_NOISE = 0.5  # log standard deviation of sampling and assay error
 def _frame():
     s = np.array([np.sin(np.radians(STRIKE)), np.cos(np.radians(STRIKE)), 0.0])
     cd, sd = np.cos(np.radians(DIP)), np.sin(np.radians(DIP))
-    d = np.array([cd * np.sin(np.radians(DIP_DIRECTION)), cd * np.cos(np.radians(DIP_DIRECTION)), -sd])
+    d = np.array(
+        [cd * np.sin(np.radians(DIP_DIRECTION)), cd * np.cos(np.radians(DIP_DIRECTION)), -sd]
+    )
     n = np.cross(d, s)  # points up and toward the hanging wall side
     return s, d, n / np.linalg.norm(n)
 
@@ -96,10 +98,18 @@ def _slab(extent_u, extent_v, extra, step=10.0) -> Surface:
     verts = np.vstack([top, bottom])
     tris = []
     idx = np.arange(nu * nv).reshape(nu, nv)
-    a, b, c, e = idx[:-1, :-1].ravel(), idx[1:, :-1].ravel(), idx[1:, 1:].ravel(), idx[:-1, 1:].ravel()
+    a, b, c, e = (
+        idx[:-1, :-1].ravel(),
+        idx[1:, :-1].ravel(),
+        idx[1:, 1:].ravel(),
+        idx[:-1, 1:].ravel(),
+    )
     off = nu * nv
     tris += [np.column_stack([a, b, c]), np.column_stack([a, c, e])]
-    tris += [np.column_stack([a + off, c + off, b + off]), np.column_stack([a + off, e + off, c + off])]
+    tris += [
+        np.column_stack([a + off, c + off, b + off]),
+        np.column_stack([a + off, e + off, c + off]),
+    ]
     ring = np.concatenate([idx[:, 0], idx[-1, 1:], idx[-2::-1, -1], idx[0, -2:0:-1]])
     r0, r1 = ring, np.roll(ring, -1)
     tris += [np.column_stack([r0, r1, r1 + off]), np.column_stack([r0, r1 + off, r0 + off])]
@@ -121,12 +131,19 @@ def topography_surface(step=20.0) -> Surface:
     verts = np.column_stack([X.ravel(), Y.ravel(), topography_elevation(X, Y).ravel()])
     nu, nv = X.shape
     idx = np.arange(nu * nv).reshape(nu, nv)
-    a, b, c, e = idx[:-1, :-1].ravel(), idx[1:, :-1].ravel(), idx[1:, 1:].ravel(), idx[:-1, 1:].ravel()
+    a, b, c, e = (
+        idx[:-1, :-1].ravel(),
+        idx[1:, :-1].ravel(),
+        idx[1:, 1:].ravel(),
+        idx[:-1, 1:].ravel(),
+    )
     tris = np.vstack([np.column_stack([a, b, c]), np.column_stack([a, c, e])])
     return Surface(verts, tris.astype(np.int64))
 
 
-def classify(points: np.ndarray, lattice: Lattice, column: np.ndarray, crossings: dict) -> np.ndarray:
+def classify(
+    points: np.ndarray, lattice: Lattice, column: np.ndarray, crossings: dict
+) -> np.ndarray:
     """Domain code per point: 2 lode, 1 halo, 0 waste (lode has priority)."""
     code = np.zeros(len(points), dtype=np.int8)
     code[points_inside(crossings["halo"], column, points[:, 2])] = 1
@@ -147,7 +164,9 @@ class DemoDeposit:
 
 def _fine_lattice():
     shape = tuple(int(round(g * b / f)) for g, b, f in zip(GRID_SHAPE, BLOCK, FINE, strict=True))
-    lat = Lattice(ORIGIN[0] + FINE[0] / 2, FINE[0], shape[0], ORIGIN[1] + FINE[1] / 2, FINE[1], shape[1])
+    lat = Lattice(
+        ORIGIN[0] + FINE[0] / 2, FINE[0], shape[0], ORIGIN[1] + FINE[1] / 2, FINE[1], shape[1]
+    )
     return shape, lat
 
 
@@ -155,7 +174,10 @@ def build_demo(seed: int = SEED) -> DemoDeposit:
     """Simulate the truth and drill it. Deterministic from ``seed``."""
     rng = np.random.default_rng(seed)
     shape, lat = _fine_lattice()
-    crossings = {"lode": column_crossings(lode_surface(), lat), "halo": column_crossings(halo_surface(), lat)}
+    crossings = {
+        "lode": column_crossings(lode_surface(), lat),
+        "halo": column_crossings(halo_surface(), lat),
+    }
     gx = ORIGIN[0] + (np.arange(shape[0]) + 0.5) * FINE[0]
     gy = ORIGIN[1] + (np.arange(shape[1]) + 0.5) * FINE[1]
     gz = ORIGIN[2] + (np.arange(shape[2]) + 0.5) * FINE[2]
@@ -168,9 +190,15 @@ def build_demo(seed: int = SEED) -> DemoDeposit:
     field = simulate_gaussian(shape, FINE, TRUTH_MODEL, rng)
     s, d, _ = _frame()
     rel = pts - CENTRE
-    enrichment = MEAN["shoot"] * np.exp(-((shoot_distance(rel @ s, rel @ d) / 40.0) ** 2)).reshape(shape)
-    mean = np.select([domains == 2, domains == 1], [MEAN["lode"] + enrichment, MEAN["halo"]], MEAN["waste"])
-    sigma = np.select([domains == 2, domains == 1], [LOGNORMAL["lode"], LOGNORMAL["halo"]], LOGNORMAL["waste"])
+    enrichment = MEAN["shoot"] * np.exp(-((shoot_distance(rel @ s, rel @ d) / 40.0) ** 2)).reshape(
+        shape
+    )
+    mean = np.select(
+        [domains == 2, domains == 1], [MEAN["lode"] + enrichment, MEAN["halo"]], MEAN["waste"]
+    )
+    sigma = np.select(
+        [domains == 2, domains == 1], [LOGNORMAL["lode"], LOGNORMAL["halo"]], LOGNORMAL["waste"]
+    )
     grades = mean * np.exp(sigma * field - sigma**2 / 2)
     grades[domains < 0] = np.nan
     collars, surveys, assays = _drill(rng, grades, domains)
@@ -179,7 +207,9 @@ def build_demo(seed: int = SEED) -> DemoDeposit:
 
 def _hole_targets(rng):
     """Aim points (u, v) on the lode: 40 m sections, 20 m infill over the shoot."""
-    targets = [(u, v) for u in np.arange(-200.0, 201.0, 40.0) for v in np.arange(-110.0, 231.0, 40.0)]
+    targets = [
+        (u, v) for u in np.arange(-200.0, 201.0, 40.0) for v in np.arange(-110.0, 231.0, 40.0)
+    ]
     infill = [
         (u, v)
         for u in np.arange(-200.0, 201.0, 20.0)
@@ -191,7 +221,7 @@ def _hole_targets(rng):
 
 
 def _drill(rng, grades, domains):
-    shape, lat = _fine_lattice()
+    shape, _lat = _fine_lattice()
     s, d, n = _frame()
     collars, surveys, assays = [], [], []
     for number, (u, v) in enumerate(_hole_targets(rng), start=1):
@@ -199,7 +229,13 @@ def _drill(rng, grades, domains):
         target = CENTRE + u * s + v * d + _undulation(u, v) * n
         az0 = (DIP_DIRECTION + 180.0 + rng.normal(0, 3.0)) % 360.0
         dip0 = -60.0 + rng.normal(0, 3.0)
-        t0 = np.array([np.cos(np.radians(dip0)) * np.sin(np.radians(az0)), np.cos(np.radians(dip0)) * np.cos(np.radians(az0)), np.sin(np.radians(dip0))])
+        t0 = np.array(
+            [
+                np.cos(np.radians(dip0)) * np.sin(np.radians(az0)),
+                np.cos(np.radians(dip0)) * np.cos(np.radians(az0)),
+                np.sin(np.radians(dip0)),
+            ]
+        )
         back = 0.0
         for _ in range(30):  # walk back up the hole to the topography
             c = target - back * t0
@@ -214,7 +250,10 @@ def _drill(rng, grades, domains):
         st_dip = np.clip(dip0 + drift_dip * np.arange(len(st_depth)), -89.0, -20.0)
         st_az = (az0 + drift_az * np.arange(len(st_depth))) % 360.0
         collars.append((hole, *np.round(collar, 2), depth))
-        surveys += [(hole, float(a), round(float(b), 2), round(float(c), 2)) for a, b, c in zip(st_depth, st_az, st_dip, strict=True)]
+        surveys += [
+            (hole, float(a), round(float(b), 2), round(float(c), 2))
+            for a, b, c in zip(st_depth, st_az, st_dip, strict=True)
+        ]
         step = 0.25
         md = np.arange(step / 2, depth, step)
         pos = positions_along_hole(collar, st_depth, st_az, st_dip, md)
@@ -291,9 +330,15 @@ def write_demo(folder: Path, seed: int = SEED) -> DemoDeposit:
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     deposit = build_demo(seed)
-    pd.DataFrame(deposit.collars, columns=["hole_id", "x", "y", "z", "depth"]).to_csv(folder / "collars.csv", index=False)
-    pd.DataFrame(deposit.surveys, columns=["hole_id", "depth", "azimuth", "dip"]).to_csv(folder / "surveys.csv", index=False)
-    pd.DataFrame(deposit.assays, columns=["hole_id", "from", "to", "au", "domain"]).to_csv(folder / "assays.csv", index=False)
+    pd.DataFrame(deposit.collars, columns=["hole_id", "x", "y", "z", "depth"]).to_csv(
+        folder / "collars.csv", index=False
+    )
+    pd.DataFrame(deposit.surveys, columns=["hole_id", "depth", "azimuth", "dip"]).to_csv(
+        folder / "surveys.csv", index=False
+    )
+    pd.DataFrame(deposit.assays, columns=["hole_id", "from", "to", "au", "domain"]).to_csv(
+        folder / "assays.csv", index=False
+    )
     write_ply(folder / "lode.ply", lode_surface())
     write_ply(folder / "halo.ply", halo_surface())
     write_ply(folder / "topography.ply", topography_surface())

@@ -62,25 +62,53 @@ def read_table(path: Path, required: dict[str, str]) -> pd.DataFrame:
     try:
         raw = path.read_bytes()
     except OSError as exc:
-        raise InputError([Problem(name, None, None, None, f"cannot read file: {exc.strerror}")]) from None
+        raise InputError(
+            [Problem(name, None, None, None, f"cannot read file: {exc.strerror}")]
+        ) from None
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
         line = raw[: exc.start].count(b"\n") + 1
-        raise InputError([Problem(name, line, None, None, "not UTF-8 text (save the file as UTF-8 CSV)")]) from None
+        raise InputError(
+            [Problem(name, line, None, None, "not UTF-8 text (save the file as UTF-8 CSV)")]
+        ) from None
     if not text.strip():
         raise InputError([Problem(name, None, None, None, "file is empty")])
     rows = list(csv.reader(io.StringIO(text)))
     header = [h.strip() for h in rows[0]]
     if len(header) == 1 and any(sep in header[0] for sep in ";\t|"):
-        raise InputError([Problem(name, 1, None, None, "columns are not separated by commas (found ';', tab or '|'); save as comma-separated CSV")])
+        raise InputError(
+            [
+                Problem(
+                    name,
+                    1,
+                    None,
+                    None,
+                    "columns are not separated by commas (found ';', tab or '|'); save as comma-separated CSV",
+                )
+            ]
+        )
     dupes = sorted({h for h in header if header.count(h) > 1})
     if dupes:
-        raise InputError([Problem(name, 1, None, h, f"column '{h}' appears more than once in the header") for h in dupes])
+        raise InputError(
+            [
+                Problem(name, 1, None, h, f"column '{h}' appears more than once in the header")
+                for h in dupes
+            ]
+        )
     absent = [(meaning, col) for meaning, col in required.items() if col not in header]
     if absent:
         raise InputError(
-            [Problem(name, 1, None, col, f"missing column '{col}' ({meaning}); header has: {', '.join(header)}") for meaning, col in absent]
+            [
+                Problem(
+                    name,
+                    1,
+                    None,
+                    col,
+                    f"missing column '{col}' ({meaning}); header has: {', '.join(header)}",
+                )
+                for meaning, col in absent
+            ]
         )
     body = [r for r in rows[1:]]
     lines = []
@@ -89,7 +117,9 @@ def read_table(path: Path, required: dict[str, str]) -> pd.DataFrame:
         if not any(c.strip() for c in r):
             continue
         if len(r) != len(header):
-            raise InputError([Problem(name, i, None, None, f"row has {len(r)} fields, header has {len(header)}")])
+            raise InputError(
+                [Problem(name, i, None, None, f"row has {len(r)} fields, header has {len(header)}")]
+            )
         records.append([c.strip() for c in r])
         lines.append(i)
     if not records:
@@ -136,7 +166,15 @@ def _grades(table, col, file, data: DataFiles, problems, hole_col):
         if v in sentinels:
             missing += 1
         elif v < 0 or not np.isfinite(v):
-            problems.append(Problem(file, int(line), hole, col, f"negative or infinite grade {t} (declare it in data.missing_values if it marks a missing value)"))
+            problems.append(
+                Problem(
+                    file,
+                    int(line),
+                    hole,
+                    col,
+                    f"negative or infinite grade {t} (declare it in data.missing_values if it marks a missing value)",
+                )
+            )
         else:
             out[n] = v
     return out, below, missing
@@ -161,8 +199,13 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
     """
     c = data.columns
     cf, sf, af = str(data.collars), str(data.surveys), str(data.intervals)
-    collars_raw = read_table(data.collars, {"hole id": c.hole, "x": c.x, "y": c.y, "z": c.z, "depth": c.depth})
-    surveys_raw = read_table(data.surveys, {"hole id": c.hole, "depth": c.survey_depth, "azimuth": c.azimuth, "dip": c.dip})
+    collars_raw = read_table(
+        data.collars, {"hole id": c.hole, "x": c.x, "y": c.y, "z": c.z, "depth": c.depth}
+    )
+    surveys_raw = read_table(
+        data.surveys,
+        {"hole id": c.hole, "depth": c.survey_depth, "azimuth": c.azimuth, "dip": c.dip},
+    )
     required = {"hole id": c.hole, "from": c.depth_from, "to": c.depth_to}
     required.update({f"grade {g}": g for g in data.grades})
     intervals_raw = read_table(data.intervals, required)
@@ -190,11 +233,23 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
     surveys["dip"] = _numbers(surveys_raw, c.dip, sf, problems, c.hole)
     for row in surveys.itertuples():
         if row.hole not in known:
-            problems.append(Problem(sf, row._2, row.hole, c.hole, "survey for a hole with no collar"))
+            problems.append(
+                Problem(sf, row._2, row.hole, c.hole, "survey for a hole with no collar")
+            )
         if not (0 <= row.azimuth < 360) and np.isfinite(row.azimuth):
-            problems.append(Problem(sf, row._2, row.hole, c.azimuth, f"azimuth {row.azimuth} outside [0, 360)"))
+            problems.append(
+                Problem(sf, row._2, row.hole, c.azimuth, f"azimuth {row.azimuth} outside [0, 360)")
+            )
         if not (-90 <= row.dip <= 90) and np.isfinite(row.dip):
-            problems.append(Problem(sf, row._2, row.hole, c.dip, f"dip {row.dip} outside [-90, 90] (negative is downward)"))
+            problems.append(
+                Problem(
+                    sf,
+                    row._2,
+                    row.hole,
+                    c.dip,
+                    f"dip {row.dip} outside [-90, 90] (negative is downward)",
+                )
+            )
         if row.depth < 0:
             problems.append(Problem(sf, row._2, row.hole, c.survey_depth, "negative survey depth"))
     for hole, grp in surveys.groupby("hole", sort=False):
@@ -202,18 +257,42 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
         steps = np.diff(d)
         for line, step in zip(grp["_line"].to_numpy()[1:], steps, strict=True):
             if step == 0:
-                problems.append(Problem(sf, int(line), hole, c.survey_depth, "duplicated survey depth"))
+                problems.append(
+                    Problem(sf, int(line), hole, c.survey_depth, "duplicated survey depth")
+                )
             elif step < 0:
-                problems.append(Problem(sf, int(line), hole, c.survey_depth, "survey depths not in increasing order"))
+                problems.append(
+                    Problem(
+                        sf, int(line), hole, c.survey_depth, "survey depths not in increasing order"
+                    )
+                )
         if len(grp) == 1:
-            warnings.append(Problem(sf, int(grp["_line"].iloc[0]), hole, None, "single survey: hole taken as straight"))
+            warnings.append(
+                Problem(
+                    sf,
+                    int(grp["_line"].iloc[0]),
+                    hole,
+                    None,
+                    "single survey: hole taken as straight",
+                )
+            )
         if hole in total_depth and d.max() > total_depth[hole] + 1e-6:
-            problems.append(Problem(sf, int(grp["_line"].iloc[-1]), hole, c.survey_depth, f"survey depth {d.max()} beyond hole depth {total_depth[hole]}"))
+            problems.append(
+                Problem(
+                    sf,
+                    int(grp["_line"].iloc[-1]),
+                    hole,
+                    c.survey_depth,
+                    f"survey depth {d.max()} beyond hole depth {total_depth[hole]}",
+                )
+            )
     for hole in sorted(known - set(surveys["hole"])):
         line = int(collars.loc[collars["hole"] == hole, "_line"].iloc[0])
         problems.append(Problem(cf, line, hole, None, "hole has no survey"))
 
-    intervals = pd.DataFrame({"hole": intervals_raw[c.hole].astype(str), "_line": intervals_raw["_line"]})
+    intervals = pd.DataFrame(
+        {"hole": intervals_raw[c.hole].astype(str), "_line": intervals_raw["_line"]}
+    )
     intervals["from"] = _numbers(intervals_raw, c.depth_from, af, problems, c.hole)
     intervals["to"] = _numbers(intervals_raw, c.depth_to, af, problems, c.hole)
     intervals["domain"] = (
@@ -224,27 +303,57 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
         intervals[g], below[g], missing[g] = _grades(intervals_raw, g, af, data, problems, c.hole)
     for row in intervals.itertuples():
         if row.hole not in known:
-            problems.append(Problem(af, row._2, row.hole, c.hole, "interval for a hole with no collar"))
+            problems.append(
+                Problem(af, row._2, row.hole, c.hole, "interval for a hole with no collar")
+            )
         if row._3 >= row.to:
-            problems.append(Problem(af, row._2, row.hole, c.depth_to, f"from {row._3} is not less than to {row.to}"))
+            problems.append(
+                Problem(
+                    af, row._2, row.hole, c.depth_to, f"from {row._3} is not less than to {row.to}"
+                )
+            )
         if row.hole in total_depth and row.to > total_depth[row.hole] + 1e-6:
-            problems.append(Problem(af, row._2, row.hole, c.depth_to, f"interval ends at {row.to}, past the hole depth {total_depth[row.hole]}"))
+            problems.append(
+                Problem(
+                    af,
+                    row._2,
+                    row.hole,
+                    c.depth_to,
+                    f"interval ends at {row.to}, past the hole depth {total_depth[row.hole]}",
+                )
+            )
     intervals = intervals.sort_values(["hole", "from"], kind="stable")
     for hole, grp in intervals.groupby("hole", sort=False):
         f, t, lines = grp["from"].to_numpy(), grp["to"].to_numpy(), grp["_line"].to_numpy()
         for k in range(1, len(grp)):
             if f[k] < t[k - 1] - 1e-9:
-                problems.append(Problem(af, int(lines[k]), hole, c.depth_from, f"interval {f[k]}-{t[k]} overlaps the previous one ending at {t[k - 1]}"))
+                problems.append(
+                    Problem(
+                        af,
+                        int(lines[k]),
+                        hole,
+                        c.depth_from,
+                        f"interval {f[k]}-{t[k]} overlaps the previous one ending at {t[k - 1]}",
+                    )
+                )
             elif f[k] > t[k - 1] + 1e-9:
-                warnings.append(Problem(af, int(lines[k]), hole, c.depth_from, f"gap in sampling {t[k - 1]}-{f[k]}"))
+                warnings.append(
+                    Problem(
+                        af, int(lines[k]), hole, c.depth_from, f"gap in sampling {t[k - 1]}-{f[k]}"
+                    )
+                )
         if np.all(np.isnan(grp[list(data.grades)].to_numpy(float))):
-            warnings.append(Problem(af, int(lines[0]), hole, None, "every grade of this hole is missing"))
+            warnings.append(
+                Problem(af, int(lines[0]), hole, None, "every grade of this hole is missing")
+            )
     if problems:
         raise InputError(problems)
     intervals = intervals.drop(columns="_line").reset_index(drop=True)
     return DrillholeSet(
         collars=collars.drop(columns="_line").reset_index(drop=True),
-        surveys=surveys.drop(columns="_line").sort_values(["hole", "depth"], kind="stable").reset_index(drop=True),
+        surveys=surveys.drop(columns="_line")
+        .sort_values(["hole", "depth"], kind="stable")
+        .reset_index(drop=True),
         intervals=intervals,
         grades=list(data.grades),
         warnings=warnings,

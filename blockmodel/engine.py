@@ -146,23 +146,31 @@ def run_job(
             parts.append(_chunk(job, targets[a:b]))
             progress.advance(b - a)
     elif backend == "processes":
-        from concurrent.futures import ProcessPoolExecutor
         import multiprocessing as mp
+        from concurrent.futures import ProcessPoolExecutor
 
         n = workers or os.cpu_count() or 1
         ctx = mp.get_context("spawn")
-        with ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=_init_process, initargs=(job,)) as pool:
-            for (a, b), part in zip(bounds, pool.map(_process_chunk, [targets[a:b] for a, b in bounds]), strict=True):
+        with ProcessPoolExecutor(
+            max_workers=n, mp_context=ctx, initializer=_init_process, initargs=(job,)
+        ) as pool:
+            for (a, b), part in zip(
+                bounds, pool.map(_process_chunk, [targets[a:b] for a, b in bounds]), strict=True
+            ):
                 parts.append(part)
                 progress.advance(b - a)
     elif backend == "dask":
         try:
             from distributed import Client
         except ImportError:  # pragma: no cover - depends on the optional extra
-            raise RuntimeError("the dask backend needs the 'cluster' extra: pip install 'blockmodel[cluster]'") from None
+            raise RuntimeError(
+                "the dask backend needs the 'cluster' extra: pip install 'blockmodel[cluster]'"
+            ) from None
         with Client(cluster) as client:
             job_future = client.scatter(job, broadcast=True)
-            futures = [client.submit(_chunk, job_future, targets[a:b], pure=False) for a, b in bounds]
+            futures = [
+                client.submit(_chunk, job_future, targets[a:b], pure=False) for a, b in bounds
+            ]
             for (a, b), fut in zip(bounds, futures, strict=True):
                 parts.append(fut.result())
                 progress.advance(b - a)

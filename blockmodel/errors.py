@@ -43,9 +43,7 @@ class InputError(Exception):
         if len(self.problems) == 1 and not any(rows[1][:4]):
             return rows[1][4]
         widths = [max(len(r[i]) for r in rows) for i in range(4)]
-        lines = [
-            "  ".join(r[i].ljust(widths[i]) for i in range(4)) + "  " + r[4] for r in rows
-        ]
+        lines = ["  ".join(r[i].ljust(widths[i]) for i in range(4)) + "  " + r[4] for r in rows]
         if len(self.problems) > limit:
             lines.append(f"... and {len(self.problems) - limit} more problems")
         return f"{len(self.problems)} problem(s) in the input:\n" + "\n".join(lines)

@@ -145,8 +145,17 @@ def experimental_variogram(
             g = np.where(s != 0, (zi - zj) ** 2 / np.where(s != 0, s, 1) ** 2 / 2, 0.0)
         else:
             g = (zi - zj) ** 2 / 2
-        for key, x in (("w", pw), ("d", pw * d), ("g", pw * g), ("h", pw * zi), ("t", pw * zj),
-                       ("hh", pw * zi * zi), ("tt", pw * zj * zj), ("ht", pw * zi * zj), ("n", np.ones_like(d))):
+        for key, x in (
+            ("w", pw),
+            ("d", pw * d),
+            ("g", pw * g),
+            ("h", pw * zi),
+            ("t", pw * zj),
+            ("hh", pw * zi * zi),
+            ("tt", pw * zj * zj),
+            ("ht", pw * zi * zj),
+            ("n", np.ones_like(d)),
+        ):
             sums[key] += np.bincount(b, weights=x, minlength=nb)
     with np.errstate(invalid="ignore", divide="ignore"):
         wsum = sums["w"]
@@ -178,7 +187,9 @@ class NormalScores:
         return np.interp(y, self.scores, self.values)
 
 
-def normal_scores(values: np.ndarray, weights: np.ndarray | None = None) -> tuple[np.ndarray, NormalScores]:
+def normal_scores(
+    values: np.ndarray, weights: np.ndarray | None = None
+) -> tuple[np.ndarray, NormalScores]:
     """Normal scores of values (declustering weights optional) and the transform table.
 
     Ties get the score of their mean plotting position.
@@ -188,7 +199,7 @@ def normal_scores(values: np.ndarray, weights: np.ndarray | None = None) -> tupl
     order = np.argsort(values, kind="stable")
     v, ww = values[order], w[order]
     cdf = (np.cumsum(ww) - 0.5 * ww) / ww.sum()
-    uniq, first, inverse = np.unique(v, return_index=True, return_inverse=True)
+    uniq, _first, inverse = np.unique(v, return_index=True, return_inverse=True)
     mean_cdf = np.bincount(inverse.ravel(), weights=cdf) / np.bincount(inverse.ravel())
     table = NormalScores(uniq, norm.ppf(mean_cdf))
     return table.forward(values), table
@@ -228,12 +239,25 @@ def scan_directions(
     pairs = np.zeros((len(plunges), len(azimuths), n_lags), dtype=np.int64)
     for p, pl in enumerate(plunges):
         for a, az in enumerate(azimuths):
-            ev = experimental_variogram(points, values, lag=lag, n_lags=n_lags, direction=(az, pl),
-                                        angular_tolerance=angular_tolerance, estimator=estimator, weights=weights)
+            ev = experimental_variogram(
+                points,
+                values,
+                lag=lag,
+                n_lags=n_lags,
+                direction=(az, pl),
+                angular_tolerance=angular_tolerance,
+                estimator=estimator,
+                weights=weights,
+            )
             value[p, a], pairs[p, a] = ev.value, ev.pairs
     with np.errstate(invalid="ignore"):
         score = np.nansum(value * pairs, axis=2) / pairs.sum(axis=2)
     score = np.where(pairs.sum(axis=2) > 0, score, np.inf)
     p, a = np.unravel_index(np.argmin(score), score.shape)
-    return {"value": value, "pairs": pairs, "azimuths": azimuths, "plunges": plunges,
-            "major": (float(azimuths[a]), float(plunges[p]))}
+    return {
+        "value": value,
+        "pairs": pairs,
+        "azimuths": azimuths,
+        "plunges": plunges,
+        "major": (float(azimuths[a]), float(plunges[p])),
+    }

@@ -112,8 +112,15 @@ def _fit(experimental, kinds, orientation, fixed, weighting):
     for k in range(len(kinds)):
         start[f"sill{k + 1}"] = max(top - start["nugget"], 1e-6) / len(kinds)
         for a in axes_names:
-            start[f"range{k + 1}_{a}"] = (float(np.max(h[ax == axes_names.index(a)])) if np.any(ax == axes_names.index(a))
-                                          else hmax) * (k + 1) / (len(kinds) + 1)
+            start[f"range{k + 1}_{a}"] = (
+                (
+                    float(np.max(h[ax == axes_names.index(a)]))
+                    if np.any(ax == axes_names.index(a))
+                    else hmax
+                )
+                * (k + 1)
+                / (len(kinds) + 1)
+            )
     free = [n for n in names if n not in fixed]
 
     def unpack(x):
@@ -134,7 +141,9 @@ def _fit(experimental, kinds, orientation, fixed, weighting):
         return out
 
     # a range is bounded by twice the longest lag seen along its own axis
-    axis_max = {a: float(np.max(h[ax == i])) if np.any(ax == i) else hmax for i, a in enumerate(axes_names)}
+    axis_max = {
+        a: float(np.max(h[ax == i])) if np.any(ax == i) else hmax for i, a in enumerate(axes_names)
+    }
 
     def range_bound(n):
         return 2.0 * axis_max[n.split("_")[1]]
@@ -149,7 +158,13 @@ def _fit(experimental, kinds, orientation, fixed, weighting):
         for i, n in enumerate(free):
             if n.startswith("range"):
                 x[i] = np.clip(x[i] * scale, lower[i] * 1.01, upper[i] * 0.99)
-        res = least_squares(lambda x: sqrt_w * (predict(unpack(x)) - g), x, bounds=(lower, upper), method="trf", x_scale="jac")
+        res = least_squares(
+            lambda x: sqrt_w * (predict(unpack(x)) - g),
+            x,
+            bounds=(lower, upper),
+            method="trf",
+            x_scale="jac",
+        )
         if best is None or res.cost < best.cost:
             best = res
     p = unpack(best.x)
@@ -202,8 +217,14 @@ def find_azimuth(
 
     fan = []
     for az in np.arange(0.0, 180.0, step):
-        ev = experimental_variogram(points, values, lag=lag, n_lags=n_lags, direction=(az, 0.0),
-                                    angular_tolerance=angular_tolerance)
+        ev = experimental_variogram(
+            points,
+            values,
+            lag=lag,
+            n_lags=n_lags,
+            direction=(az, 0.0),
+            angular_tolerance=angular_tolerance,
+        )
         fan.append((ev, direction_vector(az, 0.0)))
     best = None
     for az in np.arange(0.0, 180.0, refine):

@@ -36,7 +36,9 @@ class BlockGrid:
         if o.shape != (3,) or s.shape != (3,) or n.shape != (3,):
             raise ValueError("origin, block_size and shape each need three values")
         if np.any(s <= 0) or np.any(n < 1):
-            raise ValueError(f"block sizes must be positive and counts >= 1; got {self.block_size}, {self.shape}")
+            raise ValueError(
+                f"block sizes must be positive and counts >= 1; got {self.block_size}, {self.shape}"
+            )
         object.__setattr__(self, "origin", tuple(float(v) for v in o))
         object.__setattr__(self, "block_size", tuple(float(v) for v in s))
         object.__setattr__(self, "shape", tuple(int(v) for v in n))

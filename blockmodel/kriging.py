@@ -85,7 +85,7 @@ def _merge_duplicates(
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
     """Average samples closer than ``tolerance`` metres (same rounded location)."""
     keys = np.round(points / tolerance).astype(np.int64)
-    _, first, inverse, counts = np.unique(
+    _, first, inverse, _counts = np.unique(
         keys, axis=0, return_index=True, return_inverse=True, return_counts=True
     )
     inverse = inverse.ravel()
@@ -182,7 +182,9 @@ def estimate(
         kinds, sills, mats = model.packed()
         point_support = block_size is None
         offsets = (
-            np.zeros((1, 3)) if point_support else discretisation_offsets(block_size, discretisation)
+            np.zeros((1, 3))
+            if point_support
+            else discretisation_offsets(block_size, discretisation)
         )
         cvv = (
             model.total_sill
@@ -199,8 +201,9 @@ def estimate(
         not_found = []
         for start in range(0, len(remaining), chunk_size):
             rows = remaining[start : start + chunk_size]
-            nb = find_neighbours(tree, samples_t, local_targets[rows], s, hole_codes,
-                                 skip_coincident=skip_coincident)
+            nb = find_neighbours(
+                tree, samples_t, local_targets[rows], s, hole_codes, skip_coincident=skip_coincident
+            )
             not_found.append(rows[~nb.found])
             sel = np.flatnonzero(nb.found)
             if len(sel) == 0:

@@ -44,7 +44,9 @@ class Orientation:
         for name in ("azimuth", "plunge", "tilt"):
             value = getattr(self, name)
             if not np.isfinite(value):
-                raise ValueError(f"Orientation.{name} must be a finite number of degrees, got {value!r}")
+                raise ValueError(
+                    f"Orientation.{name} must be a finite number of degrees, got {value!r}"
+                )
             object.__setattr__(self, name, float(value))
         if not -90.0 <= self.plunge <= 90.0:
             raise ValueError(f"Orientation.plunge must lie in [-90, 90] degrees, got {self.plunge}")

@@ -29,8 +29,17 @@ def check_writable(folder: Path) -> None:
         with tempfile.NamedTemporaryFile(dir=folder.parent, prefix=".write-check-"):
             pass
     except OSError as exc:
-        raise InputError([Problem(str(folder), None, None, None,
-                                  f"cannot write the report folder here: {exc.strerror or exc}")]) from None
+        raise InputError(
+            [
+                Problem(
+                    str(folder),
+                    None,
+                    None,
+                    None,
+                    f"cannot write the report folder here: {exc.strerror or exc}",
+                )
+            ]
+        ) from None
     if folder.exists() and not os.access(folder, os.W_OK):
         raise InputError([Problem(str(folder), None, None, None, "the report folder is read-only")])
 
@@ -41,7 +50,9 @@ class StagedFolder:
     def __init__(self, target: Path):
         self.target = Path(target).resolve()
         self.target.parent.mkdir(parents=True, exist_ok=True)
-        self.path = Path(tempfile.mkdtemp(prefix=f".{self.target.name}.partial-", dir=self.target.parent))
+        self.path = Path(
+            tempfile.mkdtemp(prefix=f".{self.target.name}.partial-", dir=self.target.parent)
+        )
 
     def commit(self) -> None:
         old = None

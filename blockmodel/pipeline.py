@@ -52,8 +52,17 @@ def load_and_composite(project: Project) -> Composites:
     comps, capping = cap_grades(comps, project.capping)
     for d in project.domains:
         if d.estimate and not (comps["domain"] == d.name).any():
-            raise InputError([Problem(str(project.data.intervals), None, None, project.data.columns.domain,
-                                      f"domain '{d.name}' (code '{d.code}') has no composites")])
+            raise InputError(
+                [
+                    Problem(
+                        str(project.data.intervals),
+                        None,
+                        None,
+                        project.data.columns.domain,
+                        f"domain '{d.name}' (code '{d.code}') has no composites",
+                    )
+                ]
+            )
     return Composites(holes, comps, summary, capping)
 
 
@@ -68,8 +77,17 @@ def model_proportions(project: Project, grid: BlockGrid) -> np.ndarray:
 
     solids = [read_surface(d.solid) for d in project.domains if d.solid is not None]
     if len(solids) != len(project.domains):
-        raise InputError([Problem(str(project.source), None, None, "domains.solid",
-                                  "every domain needs a solid to build the block model")])
+        raise InputError(
+            [
+                Problem(
+                    str(project.source),
+                    None,
+                    None,
+                    "domains.solid",
+                    "every domain needs a solid to build the block model",
+                )
+            ]
+        )
     topo = read_surface(project.grid.topography) if project.grid.topography else None
     return block_proportions(grid, solids, topo, subcells=project.grid.subcells)
 
@@ -82,8 +100,12 @@ class DomainDeclustering:
     declustered_mean: dict[str, float]
 
 
-def decluster(project: Project, table: pd.DataFrame, grid: BlockGrid | None = None,
-              proportions: np.ndarray | None = None) -> dict[str, DomainDeclustering]:
+def decluster(
+    project: Project,
+    table: pd.DataFrame,
+    grid: BlockGrid | None = None,
+    proportions: np.ndarray | None = None,
+) -> dict[str, DomainDeclustering]:
     """Declustering weights per domain (column ``weight`` added to ``table`` in place)."""
     s = project.declustering
     table["weight"] = 1.0
@@ -101,8 +123,15 @@ def decluster(project: Project, table: pd.DataFrame, grid: BlockGrid | None = No
         cell = None
         w = np.ones(len(rows))
         if s.method == "cell" and ok.sum() > 1:
-            cell = cell_declustering(pts[ok], vals[ok], sizes, anisotropy=s.anisotropy, origins=s.origins,
-                                     choose=s.choose, fixed_size=s.fixed_size)
+            cell = cell_declustering(
+                pts[ok],
+                vals[ok],
+                sizes,
+                anisotropy=s.anisotropy,
+                origins=s.origins,
+                choose=s.choose,
+                fixed_size=s.fixed_size,
+            )
             w[ok] = cell.weights
         elif s.method == "nearest" and grid is not None and proportions is not None:
             flat = np.flatnonzero(proportions[:, d_index] > 0)
@@ -132,13 +161,17 @@ class Variography:
 
 
 def _model_from_spec(spec) -> VariogramModel:
-    return VariogramModel(spec.nugget, [Structure(s.kind, s.sill, s.ranges, Orientation(*s.orientation))
-                                        for s in spec.structures])
+    return VariogramModel(
+        spec.nugget,
+        [Structure(s.kind, s.sill, s.ranges, Orientation(*s.orientation)) for s in spec.structures],
+    )
 
 
 def _scaled(model: VariogramModel, factor: float) -> VariogramModel:
-    return VariogramModel(model.nugget * factor, [Structure(s.kind, s.sill * factor, s.ranges, s.orientation)
-                                                  for s in model.structures])
+    return VariogramModel(
+        model.nugget * factor,
+        [Structure(s.kind, s.sill * factor, s.ranges, s.orientation) for s in model.structures],
+    )
 
 
 def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]:
@@ -154,7 +187,11 @@ def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]
             ok = sub[g].notna().to_numpy()
             pts = sub.loc[ok, ["x", "y", "z"]].to_numpy(float)
             vals = sub.loc[ok, g].to_numpy(float)
-            weights = sub.loc[ok, "weight"].to_numpy(float) if v.use_declustering_weights and "weight" in sub else None
+            weights = (
+                sub.loc[ok, "weight"].to_numpy(float)
+                if v.use_declustering_weights and "weight" in sub
+                else None
+            )
             if key in project.variogram:
                 model = _model_from_spec(project.variogram[key])
                 orient = model.structures[0].orientation if model.structures else Orientation()
@@ -171,24 +208,58 @@ def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]
             res = Variography(d.name, g, orient)
             for axis, (az, pl) in enumerate(principal_directions(orient)):
                 lag = v.lag if axis < 2 else max(v.lag / 4, 1.0)
-                res.directional.append(experimental_variogram(
-                    pts, vals, lag=lag, n_lags=v.lags, direction=(az, pl), angular_tolerance=v.angular_tolerance,
-                    horizontal_bandwidth=v.horizontal_bandwidth, vertical_bandwidth=v.vertical_bandwidth,
-                    estimator=v.estimator, weights=weights, label=("major", "semi", "minor")[axis]))
-            res.downhole = experimental_variogram(pts, vals, lag=project.compositing.length, n_lags=v.lags,
-                                                  estimator=v.estimator, weights=weights,
-                                                  holes=sub.loc[ok, "hole"].to_numpy(), label="downhole")
+                res.directional.append(
+                    experimental_variogram(
+                        pts,
+                        vals,
+                        lag=lag,
+                        n_lags=v.lags,
+                        direction=(az, pl),
+                        angular_tolerance=v.angular_tolerance,
+                        horizontal_bandwidth=v.horizontal_bandwidth,
+                        vertical_bandwidth=v.vertical_bandwidth,
+                        estimator=v.estimator,
+                        weights=weights,
+                        label=("major", "semi", "minor")[axis],
+                    )
+                )
+            res.downhole = experimental_variogram(
+                pts,
+                vals,
+                lag=project.compositing.length,
+                n_lags=v.lags,
+                estimator=v.estimator,
+                weights=weights,
+                holes=sub.loc[ok, "hole"].to_numpy(),
+                label="downhole",
+            )
             if model is None:
                 try:
-                    model = fit_variogram([(e, a) for a, e in enumerate(res.directional)], v.kinds[: v.structures],
-                                          orient)
+                    model = fit_variogram(
+                        [(e, a) for a, e in enumerate(res.directional)],
+                        v.kinds[: v.structures],
+                        orient,
+                    )
                 except ValueError as exc:
-                    raise InputError([Problem(str(project.source), None, None, "variography",
-                                              f"cannot fit a variogram for {key}: {exc}")]) from None
+                    raise InputError(
+                        [
+                            Problem(
+                                str(project.source),
+                                None,
+                                None,
+                                "variography",
+                                f"cannot fit a variogram for {key}: {exc}",
+                            )
+                        ]
+                    ) from None
                 if v.estimator != "semivariogram":
                     # Standardised estimators: scale the fitted sills to the (declustered)
                     # variance of the data, the usual practice (common practice).
-                    w = sub.loc[ok, "weight"].to_numpy(float) if "weight" in sub else np.ones(len(vals))
+                    w = (
+                        sub.loc[ok, "weight"].to_numpy(float)
+                        if "weight" in sub
+                        else np.ones(len(vals))
+                    )
                     m = w @ vals / w.sum()
                     var = w @ (vals - m) ** 2 / w.sum()
                     scale = var if v.estimator == "correlogram" else m * m
@@ -237,24 +308,54 @@ def estimate_block_model(
         ijk = grid.ijk(flat)
         centres = grid.centres(flat)
         prop = proportions[flat, d_index].astype(np.float64)
-        frame = pd.DataFrame({"x": centres[:, 0], "y": centres[:, 1], "z": centres[:, 2], "i": ijk[:, 0],
-                              "j": ijk[:, 1], "k": ijk[:, 2], "domain": d.name, "proportion": prop,
-                              "density": d.density, "tonnes": grid.block_volume * prop * d.density})
+        frame = pd.DataFrame(
+            {
+                "x": centres[:, 0],
+                "y": centres[:, 1],
+                "z": centres[:, 2],
+                "i": ijk[:, 0],
+                "j": ijk[:, 1],
+                "k": ijk[:, 2],
+                "domain": d.name,
+                "proportion": prop,
+                "density": d.density,
+                "tonnes": grid.block_volume * prop * d.density,
+            }
+        )
         frame["_flat"] = flat
         for g in project.grades:
             key = f"{d.name}.{g}"
             source = table if e.boundaries == "soft" else table[table["domain"] == d.name]
             source = source[source[g].notna()]
             model = models[key]
-            passes = passes_from(project.search, model.structures[0].orientation if model.structures else Orientation())
+            passes = passes_from(
+                project.search,
+                model.structures[0].orientation if model.structures else Orientation(),
+            )
             mean = None
             if e.method == "simple":
                 mean = (declustered_means or {}).get(d.name, {}).get(g, float(source[g].mean()))
-            job = EstimationJob(source[["x", "y", "z"]].to_numpy(float), source[g].to_numpy(float),
-                                source["hole"].to_numpy(), model, passes, e.method, mean, grid.block_size,
-                                e.discretisation, e.idw_power)
-            res = run_job(job, centres, chunk_size=chunk_size, backend=backend, workers=workers, cluster=cluster,
-                          label=f"{d.name} {g}")
+            job = EstimationJob(
+                source[["x", "y", "z"]].to_numpy(float),
+                source[g].to_numpy(float),
+                source["hole"].to_numpy(),
+                model,
+                passes,
+                e.method,
+                mean,
+                grid.block_size,
+                e.discretisation,
+                e.idw_power,
+            )
+            res = run_job(
+                job,
+                centres,
+                chunk_size=chunk_size,
+                backend=backend,
+                workers=workers,
+                cluster=cluster,
+                label=f"{d.name} {g}",
+            )
             frame[g] = res["estimate"]
             frame[f"{g}_variance"] = res["variance"]
             frame[f"{g}_slope"] = res["slope"]
@@ -270,5 +371,7 @@ def estimate_block_model(
     model_table = pd.concat(frames, ignore_index=True)
     order = {d.name: n for n, d in enumerate(project.domains)}
     model_table["_order"] = model_table["domain"].map(order)
-    model_table = model_table.sort_values(["_flat", "_order"], kind="stable").drop(columns=["_flat", "_order"])
+    model_table = model_table.sort_values(["_flat", "_order"], kind="stable").drop(
+        columns=["_flat", "_order"]
+    )
     return model_table.reset_index(drop=True)

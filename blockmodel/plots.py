@@ -48,7 +48,9 @@ def variogram_figure(res, path: Path, unit: str) -> None:
         ok = ev.pairs > 0
         ax.plot(ev.distance[ok], ev.value[ok], "o", color="#2c7fb8", label="experimental")
         for d, v, p in zip(ev.distance[ok], ev.value[ok], ev.pairs[ok], strict=True):
-            ax.annotate(str(p), (d, v), textcoords="offset points", xytext=(0, 5), fontsize=6, ha="center")
+            ax.annotate(
+                str(p), (d, v), textcoords="offset points", xytext=(0, 5), fontsize=6, ha="center"
+            )
         if res.model is not None and n < 3:
             hmax = max(float(np.nanmax(ev.distance[ok], initial=1.0)), 1.0) * 1.1
             h = np.linspace(0, hmax, 200)
@@ -60,7 +62,11 @@ def variogram_figure(res, path: Path, unit: str) -> None:
         ax.set_title(title, fontsize=9)
         ax.set_xlabel("distance (m)")
         ax.grid(alpha=0.3)
-    axes[0].set_ylabel(f"{res.directional[0].estimator} ({unit})²" if res.directional[0].estimator == "semivariogram" else res.directional[0].estimator)
+    axes[0].set_ylabel(
+        f"{res.directional[0].estimator} ({unit})²"
+        if res.directional[0].estimator == "semivariogram"
+        else res.directional[0].estimator
+    )
     axes[0].legend(fontsize=8)
     fig.suptitle(f"Variograms: {res.domain} {res.grade}; numbers are pair counts", fontsize=10)
     _save(fig, path)
@@ -80,8 +86,9 @@ def declustering_figure(sizes, means, chosen, naive, path: Path, label: str, uni
     _save(fig, path)
 
 
-def grade_tonnage_figure(curves: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]], path: Path,
-                         unit: str, title: str) -> None:
+def grade_tonnage_figure(
+    curves: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]], path: Path, unit: str, title: str
+) -> None:
     """Tonnes (left axis, solid) and grade (right axis, dashed) against cut-off per curve."""
     plt = _plt()
     fig, ax = plt.subplots(figsize=(7, 4.5))
@@ -110,8 +117,13 @@ def swath_figure(tables: dict[str, object], path: Path, grade: str, unit: str, t
         ax.plot(t["centre"], t["nearest"], "-s", ms=3, label="nearest sample")
         ax.plot(t["centre"], t["composites"], "-^", ms=3, label="declustered composites")
         ax2 = ax.twinx()
-        ax2.bar(t["centre"], t["composite_count"], width=(t["centre"].iloc[1] - t["centre"].iloc[0]) * 0.8 if len(t) > 1 else 1,
-                color="grey", alpha=0.2)
+        ax2.bar(
+            t["centre"],
+            t["composite_count"],
+            width=(t["centre"].iloc[1] - t["centre"].iloc[0]) * 0.8 if len(t) > 1 else 1,
+            color="grey",
+            alpha=0.2,
+        )
         ax2.set_ylabel("composites per slice", fontsize=8)
         ax.set_xlabel(f"{axis} (m)")
         ax.set_ylabel(f"{grade} ({unit})")
@@ -132,7 +144,9 @@ def cross_validation_figure(cv, path: Path, grade: str, unit: str, title: str) -
     ax.set_ylim(0, top)
     ax.set_xlabel(f"estimate ({unit})")
     ax.set_ylabel(f"true composite {grade} ({unit})")
-    ax.set_title(f"{title}\nslope {cv.slope_true_on_estimate:.2f}, r {cv.correlation:.2f}", fontsize=9)
+    ax.set_title(
+        f"{title}\nslope {cv.slope_true_on_estimate:.2f}, r {cv.correlation:.2f}", fontsize=9
+    )
     ax.legend()
     ax.grid(alpha=0.3)
     _save(fig, path)
@@ -155,18 +169,42 @@ def per_block(blocks, column: str):
     v = blocks[column].to_numpy(float)
     t = blocks["tonnes"].to_numpy(float)
     ok = np.isfinite(v)
-    frame = pd.DataFrame({"i": blocks["i"].to_numpy(), "j": blocks["j"].to_numpy(), "k": blocks["k"].to_numpy(),
-                          "x": blocks["x"].to_numpy(), "y": blocks["y"].to_numpy(), "z": blocks["z"].to_numpy(),
-                          "_w": np.where(ok, t, 0.0), "_s": np.where(ok, t * np.nan_to_num(v), 0.0)})
-    g = frame.groupby(["i", "j", "k"], sort=True).agg(x=("x", "first"), y=("y", "first"), z=("z", "first"),
-                                                      _w=("_w", "sum"), _s=("_s", "sum")).reset_index()
+    frame = pd.DataFrame(
+        {
+            "i": blocks["i"].to_numpy(),
+            "j": blocks["j"].to_numpy(),
+            "k": blocks["k"].to_numpy(),
+            "x": blocks["x"].to_numpy(),
+            "y": blocks["y"].to_numpy(),
+            "z": blocks["z"].to_numpy(),
+            "_w": np.where(ok, t, 0.0),
+            "_s": np.where(ok, t * np.nan_to_num(v), 0.0),
+        }
+    )
+    g = (
+        frame.groupby(["i", "j", "k"], sort=True)
+        .agg(
+            x=("x", "first"), y=("y", "first"), z=("z", "first"), _w=("_w", "sum"), _s=("_s", "sum")
+        )
+        .reset_index()
+    )
     with np.errstate(invalid="ignore", divide="ignore"):
         g[column] = np.where(g["_w"] > 0, g["_s"] / g["_w"], np.nan)
     return g.drop(columns=["_w", "_s"])
 
 
-def plan_figure(blocks, grid, column: str, elevation: float, path: Path, unit: str,
-                composites=None, tolerance: float | None = None, vmin=None, vmax=None) -> None:
+def plan_figure(
+    blocks,
+    grid,
+    column: str,
+    elevation: float,
+    path: Path,
+    unit: str,
+    composites=None,
+    tolerance: float | None = None,
+    vmin=None,
+    vmax=None,
+) -> None:
     """Horizontal plan of one block level, with composites within ``tolerance`` metres."""
     plt = _plt()
     k = int(np.floor((elevation - grid.origin[2]) / grid.block_size[2]))
@@ -177,19 +215,32 @@ def plan_figure(blocks, grid, column: str, elevation: float, path: Path, unit: s
     ox, oy = grid.origin[0], grid.origin[1]
     ext = (ox, ox + grid.shape[0] * grid.block_size[0], oy, oy + grid.shape[1] * grid.block_size[1])
     fig, ax = plt.subplots(figsize=(7, 7))
-    im = ax.imshow(img, origin="lower", extent=ext, cmap=GRADE_CMAP, vmin=lo, vmax=hi, interpolation="nearest")
+    im = ax.imshow(
+        img, origin="lower", extent=ext, cmap=GRADE_CMAP, vmin=lo, vmax=hi, interpolation="nearest"
+    )
     if composites is not None:
         tol = tolerance if tolerance is not None else grid.block_size[2]
         z_c = grid.origin[2] + (k + 0.5) * grid.block_size[2]
         near = composites[np.abs(composites["z"] - z_c) <= tol]
-        ax.scatter(near["x"], near["y"], c=near[column.split("_")[0]] if column.split("_")[0] in near else "k",
-                   cmap=GRADE_CMAP, vmin=lo, vmax=hi, s=18, edgecolors="k", linewidths=0.5)
+        ax.scatter(
+            near["x"],
+            near["y"],
+            c=near[column.split("_")[0]] if column.split("_")[0] in near else "k",
+            cmap=GRADE_CMAP,
+            vmin=lo,
+            vmax=hi,
+            s=18,
+            edgecolors="k",
+            linewidths=0.5,
+        )
     fig.colorbar(im, ax=ax, shrink=0.8, label=f"{column} ({unit})")
     _north_and_scale(ax, ext)
     ax.set_xlabel("east (m)")
     ax.set_ylabel("north (m)")
     ax.tick_params(axis="x", labelrotation=30)
-    ax.set_title(f"Plan at elevation {grid.origin[2] + (k + 0.5) * grid.block_size[2]:.1f} m: {column}")
+    ax.set_title(
+        f"Plan at elevation {grid.origin[2] + (k + 0.5) * grid.block_size[2]:.1f} m: {column}"
+    )
     ax.ticklabel_format(useOffset=False, style="plain")
     _save(fig, path)
 
@@ -201,12 +252,30 @@ def _north_and_scale(ax, ext) -> None:
     bar = 10 ** np.floor(np.log10(w / 4))
     ax.plot([x0, x0 + bar], [y0, y0], "k-", lw=3)
     ax.text(x0 + bar / 2, y0 + 0.015 * h, f"{bar:.0f} m", ha="center", fontsize=8)
-    ax.annotate("N", xy=(ext[1] - 0.07 * w, ext[3] - 0.05 * h), xytext=(ext[1] - 0.07 * w, ext[3] - 0.15 * h),
-                arrowprops={"arrowstyle": "->", "lw": 1.5}, ha="center", fontsize=10, weight="bold")
+    ax.annotate(
+        "N",
+        xy=(ext[1] - 0.07 * w, ext[3] - 0.05 * h),
+        xytext=(ext[1] - 0.07 * w, ext[3] - 0.15 * h),
+        arrowprops={"arrowstyle": "->", "lw": 1.5},
+        ha="center",
+        fontsize=10,
+        weight="bold",
+    )
 
 
-def section_figure(blocks, grid, column: str, point, azimuth: float, width: float, path: Path, unit: str,
-                   composites=None, vmin=None, vmax=None) -> None:
+def section_figure(
+    blocks,
+    grid,
+    column: str,
+    point,
+    azimuth: float,
+    width: float,
+    path: Path,
+    unit: str,
+    composites=None,
+    vmin=None,
+    vmax=None,
+) -> None:
     """Vertical section along ``azimuth`` through ``point``: blocks within half the width,
     and composites within ``width / 2`` of the section plane drawn at their positions."""
     plt = _plt()
@@ -224,8 +293,10 @@ def section_figure(blocks, grid, column: str, point, azimuth: float, width: floa
     lo, hi = _norm(blocks[column], vmin, vmax)
     fig, ax = plt.subplots(figsize=(9, 6))
     step = abs(grid.block_size[0] * along[0]) + abs(grid.block_size[1] * along[1])
-    patches = [Rectangle((si - step / 2, zi - grid.block_size[2] / 2), step, grid.block_size[2])
-               for si, zi in zip(s, b["z"], strict=True)]
+    patches = [
+        Rectangle((si - step / 2, zi - grid.block_size[2] / 2), step, grid.block_size[2])
+        for si, zi in zip(s, b["z"], strict=True)
+    ]
     pc = PatchCollection(patches, cmap=GRADE_CMAP)
     pc.set_array(b[column].to_numpy())
     pc.set_clim(lo, hi)
@@ -235,8 +306,19 @@ def section_figure(blocks, grid, column: str, point, azimuth: float, width: floa
         cn = np.abs(crel @ across) <= width / 2
         g = column.split("_")[0]
         if g in composites:
-            ax.scatter(crel[cn] @ along, composites.loc[cn, "z"], c=composites.loc[cn, g], cmap=GRADE_CMAP,
-                       vmin=lo, vmax=hi, marker="s", s=14, edgecolors="k", linewidths=0.4, label="composites")
+            ax.scatter(
+                crel[cn] @ along,
+                composites.loc[cn, "z"],
+                c=composites.loc[cn, g],
+                cmap=GRADE_CMAP,
+                vmin=lo,
+                vmax=hi,
+                marker="s",
+                s=14,
+                edgecolors="k",
+                linewidths=0.4,
+                label="composites",
+            )
             ax.legend(fontsize=8, loc="lower left")
     fig.colorbar(pc, ax=ax, shrink=0.8, label=f"{column} ({unit})")
     ax.autoscale()

@@ -247,7 +247,11 @@ class _Reader:
         for k in data:
             if k not in names:
                 close = difflib.get_close_matches(k, names, n=1, cutoff=0.5)
-                hint = f"; did you mean '{close[0]}'?" if close else f"; valid keys: {', '.join(names)}"
+                hint = (
+                    f"; did you mean '{close[0]}'?"
+                    if close
+                    else f"; valid keys: {', '.join(names)}"
+                )
                 where = f"section [{key}]" if key else "the top level"
                 self.fail(f"{key}.{k}".strip("."), f"unknown key '{k}' in {where}{hint}")
         kwargs = {}
@@ -262,14 +266,16 @@ class _Reader:
             kwargs[f.name] = self.convert(hints[f.name], data[f.name], sub)
             choices = _CHOICES.get((key, f.name))
             if choices and kwargs[f.name] not in choices:
-                self.fail(sub, f"'{sub}' must be one of {', '.join(choices)}; got {kwargs[f.name]!r}")
+                self.fail(
+                    sub, f"'{sub}' must be one of {', '.join(choices)}; got {kwargs[f.name]!r}"
+                )
         return cls(**kwargs)
 
     def convert(self, tp, value, key: str):
         origin = typing.get_origin(tp)
         args = typing.get_args(tp)
         if origin in (typing.Union, types.UnionType):
-            inner = [a for a in args if a is not type(None)][0]
+            inner = next(a for a in args if a is not type(None))
             return self.convert(inner, value, key)
         if dataclasses.is_dataclass(tp):
             return self.build(tp, value, key)
@@ -300,7 +306,10 @@ class _Reader:
                 return tuple(self.convert(args[0], v, f"{key}[{i}]") for i, v in enumerate(value))
             if len(value) != len(args):
                 self.fail(key, f"'{key}' must have {len(args)} entries; got {len(value)}")
-            return tuple(self.convert(a, v, f"{key}[{i}]") for i, (a, v) in enumerate(zip(args, value, strict=True)))
+            return tuple(
+                self.convert(a, v, f"{key}[{i}]")
+                for i, (a, v) in enumerate(zip(args, value, strict=True))
+            )
         if origin is dict:
             if not isinstance(value, dict):
                 self.fail(key, f"'{key}' must be a table")
@@ -315,9 +324,12 @@ def _check_values(p: Project, r: _Reader) -> None:
 
     for g, unit in p.data.grades.items():
         if unit not in _UNITS:
-            r.fail(f"data.grades.{g}", f"unit of grade '{g}' must be one of {', '.join(_UNITS)}; got {unit!r}")
+            r.fail(
+                f"data.grades.{g}",
+                f"unit of grade '{g}' must be one of {', '.join(_UNITS)}; got {unit!r}",
+            )
     if not p.data.grades:
-        r.fail("data.grades", "name at least one grade column, e.g. grades = { au = \"g/t\" }")
+        r.fail("data.grades", 'name at least one grade column, e.g. grades = { au = "g/t" }')
     if not 0 < p.data.below_detection_factor <= 1:
         r.fail("data.below_detection_factor", "'data.below_detection_factor' must lie in (0, 1]")
     positive("grid.block_size", p.grid.block_size)
@@ -339,7 +351,10 @@ def _check_values(p: Project, r: _Reader) -> None:
         positive(f"domains[{i}].density", [d.density])
     for i, c in enumerate(p.capping):
         if c.domain not in names:
-            r.fail(f"capping[{i}].domain", f"unknown domain '{c.domain}'; domains are {', '.join(names)}")
+            r.fail(
+                f"capping[{i}].domain",
+                f"unknown domain '{c.domain}'; domains are {', '.join(names)}",
+            )
         if c.grade not in p.data.grades:
             r.fail(f"capping[{i}].grade", f"unknown grade '{c.grade}'")
         if (c.value is None) == (c.percentile is None):
@@ -352,10 +367,16 @@ def _check_values(p: Project, r: _Reader) -> None:
             r.fail(f"search[{i}]", "need 1 <= min_samples <= max_samples")
     cut = list(p.report.cutoffs)
     if cut != sorted(cut) or len(set(cut)) != len(cut) or any(c < 0 for c in cut):
-        r.fail("report.cutoffs", f"'report.cutoffs' must be non-negative and strictly increasing; got {cut}")
+        r.fail(
+            "report.cutoffs",
+            f"'report.cutoffs' must be non-negative and strictly increasing; got {cut}",
+        )
     lo, hi, n = p.declustering.cell_sizes
     if not (0 < lo < hi and n >= 2):
-        r.fail("declustering.cell_sizes", "'declustering.cell_sizes' is [smallest, largest, count] with 0 < smallest < largest, count >= 2")
+        r.fail(
+            "declustering.cell_sizes",
+            "'declustering.cell_sizes' is [smallest, largest, count] with 0 < smallest < largest, count >= 2",
+        )
     for key, spec in p.variogram.items():
         if spec.nugget < 0:
             r.fail(f"variogram.{key}.nugget", "nugget must be >= 0")
@@ -388,9 +409,13 @@ def load_project(path: str | Path) -> Project:
     except FileNotFoundError:
         raise InputError([Problem(str(path), None, None, None, "project file not found")]) from None
     except UnicodeDecodeError as exc:
-        raise InputError([Problem(str(path), None, None, None, f"not UTF-8 text ({exc.reason})")]) from None
+        raise InputError(
+            [Problem(str(path), None, None, None, f"not UTF-8 text ({exc.reason})")]
+        ) from None
     except tomllib.TOMLDecodeError as exc:
-        raise InputError([Problem(str(path), getattr(exc, "lineno", None), None, None, f"not valid TOML: {exc}")]) from None
+        raise InputError(
+            [Problem(str(path), getattr(exc, "lineno", None), None, None, f"not valid TOML: {exc}")]
+        ) from None
     # [variogram] nests models as variogram.<domain>.<grade>; flatten to "domain.grade".
     models = raw.get("variogram", {})
     if isinstance(models, dict):
@@ -422,7 +447,9 @@ def load_project(path: str | Path) -> Project:
         if p is not None and not p.is_file()
     ]
     if missing:
-        raise InputError([Problem(str(path), None, None, k, f"file not found: {p}") for k, p in missing])
+        raise InputError(
+            [Problem(str(path), None, None, k, f"file not found: {p}") for k, p in missing]
+        )
     return project
 
 

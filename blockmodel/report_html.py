@@ -43,12 +43,18 @@ class HtmlReport:
         self.parts.append(f"<p>{html.escape(text)}</p>")
 
     def table(self, frame: pd.DataFrame, *, digits: int = 3) -> None:
-        self.parts.append(frame.to_html(index=False, float_format=lambda v: f"{v:,.{digits}f}", na_rep="–", border=0))
+        self.parts.append(
+            frame.to_html(
+                index=False, float_format=lambda v: f"{v:,.{digits}f}", na_rep="–", border=0
+            )
+        )
 
     def image(self, path: Path, caption: str = "") -> None:
         data = base64.b64encode(Path(path).read_bytes()).decode("ascii")
         cap = f"<figcaption>{html.escape(caption)}</figcaption>" if caption else ""
-        self.parts.append(f'<figure><img alt="{html.escape(caption)}" src="data:image/png;base64,{data}">{cap}</figure>')
+        self.parts.append(
+            f'<figure><img alt="{html.escape(caption)}" src="data:image/png;base64,{data}">{cap}</figure>'
+        )
 
     def raw(self, fragment: str) -> None:
         self.parts.append(fragment)

@@ -54,12 +54,14 @@ def grade_tonnage(
     """
     g = table[grade].to_numpy(float)
     est = np.isfinite(g)
-    base = pd.DataFrame({
-        "domain": table["domain"].to_numpy()[est],
-        "class": table[class_column].to_numpy()[est] if class_column in table else "all",
-        "tonnes": table["tonnes"].to_numpy(float)[est],
-        "g": g[est],
-    })
+    base = pd.DataFrame(
+        {
+            "domain": table["domain"].to_numpy()[est],
+            "class": table[class_column].to_numpy()[est] if class_column in table else "all",
+            "tonnes": table["tonnes"].to_numpy(float)[est],
+            "g": g[est],
+        }
+    )
     units = metal_units(grade_unit)
     rows = []
     groups = [("all", "all", np.ones(len(base), dtype=bool))]
@@ -79,4 +81,6 @@ def grade_tonnage(
             mean = gram_units / tonnes if tonnes > 0 else float("nan")
             for unit, factor in units:
                 rows.append((dom, cls, float(c), tonnes, mean, gram_units * factor, unit))
-    return pd.DataFrame(rows, columns=["domain", "class", "cutoff", "tonnes", "grade", "metal", "metal_unit"])
+    return pd.DataFrame(
+        rows, columns=["domain", "class", "cutoff", "tonnes", "grade", "metal", "metal_unit"]
+    )

@@ -50,13 +50,18 @@ def check(project: Project) -> str:
     comps = stages.load_and_composite(project)
     holes = comps.holes
     iv = holes.intervals
-    lines = [f"Project: {project.name}", f"Holes: {len(holes.collars)}",
-             f"Metres drilled: {holes.collars['depth'].sum():,.1f}",
-             f"Metres sampled: {(iv['to'] - iv['from'])[iv[project.grades].notna().any(axis=1)].sum():,.1f}",
-             f"Intervals: {len(iv)}; composites: {len(comps.table)} "
-             f"({comps.compositing.dropped_low_coverage} dropped for low coverage)"]
+    lines = [
+        f"Project: {project.name}",
+        f"Holes: {len(holes.collars)}",
+        f"Metres drilled: {holes.collars['depth'].sum():,.1f}",
+        f"Metres sampled: {(iv['to'] - iv['from'])[iv[project.grades].notna().any(axis=1)].sum():,.1f}",
+        f"Intervals: {len(iv)}; composites: {len(comps.table)} "
+        f"({comps.compositing.dropped_low_coverage} dropped for low coverage)",
+    ]
     for g in project.grades:
-        lines.append(f"Below-detection values of {g} replaced: {holes.below_detection[g]}; missing: {holes.missing[g]}")
+        lines.append(
+            f"Below-detection values of {g} replaced: {holes.below_detection[g]}; missing: {holes.missing[g]}"
+        )
     stats = comps.table.groupby("domain")[project.grades].describe(percentiles=[0.5]).round(3)
     lines += ["", "Composite grades per domain:", stats.to_string()]
     if holes.warnings:
@@ -67,7 +72,16 @@ def check(project: Project) -> str:
 
 def _versions() -> dict[str, str]:
     out = {"python": platform.python_version()}
-    for name in ("blockmodel", "numpy", "scipy", "pandas", "numba", "pyarrow", "matplotlib", "pyvista"):
+    for name in (
+        "blockmodel",
+        "numpy",
+        "scipy",
+        "pandas",
+        "numba",
+        "pyarrow",
+        "matplotlib",
+        "pyvista",
+    ):
         try:
             out[name] = importlib.metadata.version(name)
         except importlib.metadata.PackageNotFoundError:
@@ -96,20 +110,35 @@ def _variography_outputs(project, comps, vario, decl, folder: Path, report: Html
     rows = []
     for name, d in decl.items():
         for g in project.grades:
-            rows.append({"domain": name, "grade": g, "composites": int((comps.table["domain"] == name).sum()),
-                         "naive_mean": d.naive_mean[g], "declustered_mean": d.declustered_mean[g],
-                         "cell_size": d.cell.chosen_size if d.cell else float("nan")})
+            rows.append(
+                {
+                    "domain": name,
+                    "grade": g,
+                    "composites": int((comps.table["domain"] == name).sum()),
+                    "naive_mean": d.naive_mean[g],
+                    "declustered_mean": d.declustered_mean[g],
+                    "cell_size": d.cell.chosen_size if d.cell else float("nan"),
+                }
+            )
         if d.cell is not None:
             p = folder / f"declustering_{name}.png"
-            plots.declustering_figure(d.cell.sizes, d.cell.means, d.cell.chosen_size,
-                                      d.naive_mean[project.grades[0]], p, f"{name} {project.grades[0]}",
-                                      units[project.grades[0]])
+            plots.declustering_figure(
+                d.cell.sizes,
+                d.cell.means,
+                d.cell.chosen_size,
+                d.naive_mean[project.grades[0]],
+                p,
+                f"{name} {project.grades[0]}",
+                units[project.grades[0]],
+            )
     table = pd.DataFrame(rows)
     _write_table(table, folder / "declustering.csv")
     report.heading("Declustering")
-    report.paragraph(f"Method: {project.declustering.method}; cell sizes swept {project.declustering.cell_sizes}, "
-                     f"anisotropy {project.declustering.anisotropy}, {project.declustering.origins} origins, "
-                     f"choice: {project.declustering.choose}.")
+    report.paragraph(
+        f"Method: {project.declustering.method}; cell sizes swept {project.declustering.cell_sizes}, "
+        f"anisotropy {project.declustering.anisotropy}, {project.declustering.origins} origins, "
+        f"choice: {project.declustering.choose}."
+    )
     report.table(table)
     for name in decl:
         p = folder / f"declustering_{name}.png"
@@ -121,9 +150,14 @@ def _variography_outputs(project, comps, vario, decl, folder: Path, report: Html
         p = folder / f"variogram_{key.replace('.', '_')}.png"
         plots.variogram_figure(res, p, units[res.grade])
         snippets.append(f"# {key}: {res.source}\n" + res.model.to_toml(key))
-        report.paragraph(f"{key}: model from the {res.source}; nugget {res.model.nugget:.4g}; " + "; ".join(
-            f"{s.kind} sill {s.sill:.4g} ranges {tuple(round(a, 1) for a in s.ranges)}" for s in res.model.structures)
-            + f"; orientation (azimuth, plunge, tilt) {dataclasses.astuple(res.orientation)}.")
+        report.paragraph(
+            f"{key}: model from the {res.source}; nugget {res.model.nugget:.4g}; "
+            + "; ".join(
+                f"{s.kind} sill {s.sill:.4g} ranges {tuple(round(a, 1) for a in s.ranges)}"
+                for s in res.model.structures
+            )
+            + f"; orientation (azimuth, plunge, tilt) {dataclasses.astuple(res.orientation)}."
+        )
         report.image(p, f"Experimental variograms and model, {key}")
     (folder / "variogram_models.toml").write_text("\n".join(snippets), encoding="utf-8")
 
@@ -148,8 +182,9 @@ def run_variography(project: Project, out: Path | None = None) -> Path:
     return out
 
 
-def _grade_tonnage_outputs(project: Project, blocks: pd.DataFrame, folder: Path, report: HtmlReport,
-                           cutoffs) -> dict[str, pd.DataFrame]:
+def _grade_tonnage_outputs(
+    project: Project, blocks: pd.DataFrame, folder: Path, report: HtmlReport, cutoffs
+) -> dict[str, pd.DataFrame]:
     from . import plots
 
     tables = {}
@@ -164,14 +199,24 @@ def _grade_tonnage_outputs(project: Project, blocks: pd.DataFrame, folder: Path,
         curves = {}
         for (dom, cls), part in main.groupby(["domain", "class"], sort=False):
             if cls == "all":
-                curves[f"{dom}"] = (part["cutoff"].to_numpy(), part["tonnes"].to_numpy(), part["grade"].to_numpy())
+                curves[f"{dom}"] = (
+                    part["cutoff"].to_numpy(),
+                    part["tonnes"].to_numpy(),
+                    part["grade"].to_numpy(),
+                )
         p = folder / f"grade_tonnage_{g}.png"
         plots.grade_tonnage_figure(curves, p, unit, f"Grade–tonnage, {g} (kriged blocks)")
         report.heading(f"Grade–tonnage: {g}")
-        report.paragraph("Tonnes and grade of estimated blocks at or above each cut-off, rounded for reading; "
-                         f"the CSV keeps full precision. Metal in {', '.join(gt['metal_unit'].unique())}.")
-        shown = gt.pivot_table(index=["domain", "class", "cutoff", "tonnes", "grade"], columns="metal_unit",
-                               values="metal", sort=False).reset_index()
+        report.paragraph(
+            "Tonnes and grade of estimated blocks at or above each cut-off, rounded for reading; "
+            f"the CSV keeps full precision. Metal in {', '.join(gt['metal_unit'].unique())}."
+        )
+        shown = gt.pivot_table(
+            index=["domain", "class", "cutoff", "tonnes", "grade"],
+            columns="metal_unit",
+            values="metal",
+            sort=False,
+        ).reset_index()
         shown["tonnes"] = shown["tonnes"].round(-3)
         shown["grade"] = shown["grade"].round(2)
         for u in gt["metal_unit"].unique():
@@ -216,29 +261,49 @@ def run(
         models = {k: v.model for k, v in vario.items()}
         with timer("estimation"):
             blocks = stages.estimate_block_model(
-                project, comps.table, models, grid, props, backend=backend, workers=workers,
-                chunk_size=chunk_size, cluster=cluster,
-                declustered_means={k: v.declustered_mean for k, v in decl.items()})
+                project,
+                comps.table,
+                models,
+                grid,
+                props,
+                backend=backend,
+                workers=workers,
+                chunk_size=chunk_size,
+                cluster=cluster,
+                declustered_means={k: v.declustered_mean for k, v in decl.items()},
+            )
         primary = project.grades[0]
         cls = project.classification
-        blocks["class"] = classify_blocks(blocks, primary, cls.rules, cls.fallback, clean_up=cls.clean_up)
+        blocks["class"] = classify_blocks(
+            blocks, primary, cls.rules, cls.fallback, clean_up=cls.clean_up
+        )
 
         # --- data, compositing, capping
         holes = comps.holes
         report.heading("Data")
-        report.paragraph(f"{len(holes.collars)} holes, {holes.collars['depth'].sum():,.0f} m drilled, "
-                         f"{len(holes.intervals)} sample intervals; {len(holes.warnings)} warning(s) listed below.")
+        report.paragraph(
+            f"{len(holes.collars)} holes, {holes.collars['depth'].sum():,.0f} m drilled, "
+            f"{len(holes.intervals)} sample intervals; {len(holes.warnings)} warning(s) listed below."
+        )
         for g in project.grades:
-            report.paragraph(f"{g}: {holes.below_detection[g]} below-detection values set to "
-                             f"{project.data.below_detection_factor} x the limit; {holes.missing[g]} missing.")
+            report.paragraph(
+                f"{g}: {holes.below_detection[g]} below-detection values set to "
+                f"{project.data.below_detection_factor} x the limit; {holes.missing[g]} missing."
+            )
         if holes.warnings:
-            report.table(pd.DataFrame([w.row() for w in holes.warnings],
-                                      columns=["file", "line", "hole", "field", "warning"]))
+            report.table(
+                pd.DataFrame(
+                    [w.row() for w in holes.warnings],
+                    columns=["file", "line", "hole", "field", "warning"],
+                )
+            )
         report.heading("Compositing and capping")
         c = comps.compositing
-        report.paragraph(f"{project.compositing.length} m composites within domains; {c.composites} kept, "
-                         f"{c.dropped_low_coverage} dropped below {project.compositing.min_coverage:.0%} coverage, "
-                         f"{c.residuals_merged} short residuals merged, {c.residuals_dropped} dropped.")
+        report.paragraph(
+            f"{project.compositing.length} m composites within domains; {c.composites} kept, "
+            f"{c.dropped_low_coverage} dropped below {project.compositing.min_coverage:.0%} coverage, "
+            f"{c.residuals_merged} short residuals merged, {c.residuals_dropped} dropped."
+        )
         if comps.capping:
             report.table(pd.DataFrame([dataclasses.asdict(s) for s in comps.capping]))
         stats = comps.table.groupby("domain")[project.grades].describe().reset_index()
@@ -248,9 +313,11 @@ def run(
             _variography_outputs(project, comps, vario, decl, folder, report)
 
         report.heading("Search and estimation")
-        report.paragraph(f"Method: {project.estimation.method} kriging, {project.estimation.boundaries} boundaries, "
-                         f"block {grid.block_size} m, discretisation {project.estimation.discretisation}; "
-                         f"grid origin {grid.origin}, shape {grid.shape}.")
+        report.paragraph(
+            f"Method: {project.estimation.method} kriging, {project.estimation.boundaries} boundaries, "
+            f"block {grid.block_size} m, discretisation {project.estimation.discretisation}; "
+            f"grid origin {grid.origin}, shape {grid.shape}."
+        )
         report.table(pd.DataFrame([dataclasses.asdict(s) for s in project.search]).astype(str))
         passes = blocks.groupby(["domain", f"{primary}_pass"]).size().reset_index(name="blocks")
         report.table(passes)
@@ -268,19 +335,36 @@ def run(
                 model = models[f"{d.name}.{primary}"]
                 from .engine import passes_from
 
-                cv = cross_validate(sub[["x", "y", "z"]].to_numpy(float), sub[primary].to_numpy(float),
-                                    sub["hole"].to_numpy(), model,
-                                    passes_from(project.search, model.structures[0].orientation))
+                cv = cross_validate(
+                    sub[["x", "y", "z"]].to_numpy(float),
+                    sub[primary].to_numpy(float),
+                    sub["hole"].to_numpy(),
+                    model,
+                    passes_from(project.search, model.structures[0].orientation),
+                )
                 cv_rows.append({"domain": d.name, **cv.summary()})
                 p = folder / f"cross_validation_{d.name}.png"
-                plots.cross_validation_figure(cv, p, primary, project.data.grades[primary],
-                                              f"Leave-one-hole-out cross-validation, {d.name}")
+                plots.cross_validation_figure(
+                    cv,
+                    p,
+                    primary,
+                    project.data.grades[primary],
+                    f"Leave-one-hole-out cross-validation, {d.name}",
+                )
                 report.image(p, f"Cross-validation, {d.name}")
                 b = blocks[blocks["domain"] == d.name]
-                sw = {a: swath(b, sub, primary, a, w) for a, w in
-                      (("x", 4 * grid.block_size[0]), ("y", 4 * grid.block_size[1]), ("z", 4 * grid.block_size[2]))}
+                sw = {
+                    a: swath(b, sub, primary, a, w)
+                    for a, w in (
+                        ("x", 4 * grid.block_size[0]),
+                        ("y", 4 * grid.block_size[1]),
+                        ("z", 4 * grid.block_size[2]),
+                    )
+                }
                 p = folder / f"swath_{d.name}.png"
-                plots.swath_figure(sw, p, primary, project.data.grades[primary], f"Swaths, {d.name}")
+                plots.swath_figure(
+                    sw, p, primary, project.data.grades[primary], f"Swaths, {d.name}"
+                )
                 report.image(p, f"Swath plots, {d.name}")
             report.paragraph("Cross-validation, leave one hole out (error = estimate − true):")
             report.table(pd.DataFrame(cv_rows))
@@ -294,31 +378,58 @@ def run(
                 if not d.estimate:
                     continue
                 sub = comps.table[(comps.table["domain"] == d.name) & comps.table[primary].notna()]
-                ana = empirical_anamorphosis(sub[primary].to_numpy(float), sub["weight"].to_numpy(float))
+                ana = empirical_anamorphosis(
+                    sub[primary].to_numpy(float), sub["weight"].to_numpy(float)
+                )
                 model = models[f"{d.name}.{primary}"]
                 from . import _kernels
                 from .kriging import discretisation_offsets
 
                 kinds, sills, mats = model.packed()
-                cvv = float(_kernels.mean_block_covariance(
-                    discretisation_offsets(grid.block_size, project.estimation.discretisation), kinds, sills, mats))
+                cvv = float(
+                    _kernels.mean_block_covariance(
+                        discretisation_offsets(grid.block_size, project.estimation.discretisation),
+                        kinds,
+                        sills,
+                        mats,
+                    )
+                )
                 block_var = ana.variance * cvv / model.total_sill
                 r = support_coefficient(ana, block_var)
                 theo = block_grade_tonnage(ana, r, cut)
                 b = blocks[(blocks["domain"] == d.name) & np.isfinite(blocks[primary])]
                 total = float(b["tonnes"].sum())
                 kt = np.array([b["tonnes"][b[primary] >= c].sum() for c in cut])
-                kg = np.array([np.average(b[primary][b[primary] >= c], weights=b["tonnes"][b[primary] >= c])
-                               if (b[primary] >= c).any() else np.nan for c in cut])
+                kg = np.array(
+                    [
+                        np.average(
+                            b[primary][b[primary] >= c], weights=b["tonnes"][b[primary] >= c]
+                        )
+                        if (b[primary] >= c).any()
+                        else np.nan
+                        for c in cut
+                    ]
+                )
                 p = folder / f"change_of_support_{d.name}.png"
-                plots.grade_tonnage_figure({"kriged": (cut, kt, kg), "discrete Gaussian": (cut, theo[:, 0] * total, theo[:, 1])},
-                                           p, project.data.grades[primary], f"Change of support, {d.name} (r = {r:.3f})")
-                report.image(p, f"Kriged grade–tonnage curve against the discrete Gaussian model, {d.name}")
+                plots.grade_tonnage_figure(
+                    {
+                        "kriged": (cut, kt, kg),
+                        "discrete Gaussian": (cut, theo[:, 0] * total, theo[:, 1]),
+                    },
+                    p,
+                    project.data.grades[primary],
+                    f"Change of support, {d.name} (r = {r:.3f})",
+                )
+                report.image(
+                    p, f"Kriged grade–tonnage curve against the discrete Gaussian model, {d.name}"
+                )
 
         # --- classification and grade-tonnage
         report.heading("Classification (proposals)")
-        report.paragraph("Labels come from numeric rules on search pass, holes, samples, distance and slope of "
-                         "regression; they are proposals for a Competent or Qualified Person to review.")
+        report.paragraph(
+            "Labels come from numeric rules on search pass, holes, samples, distance and slope of "
+            "regression; they are proposals for a Competent or Qualified Person to review."
+        )
         report.table(pd.DataFrame([dataclasses.asdict(r) for r in cls.rules]).astype(str))
         with timer("grade-tonnage"):
             _grade_tonnage_outputs(project, blocks, folder, report, project.report.cutoffs)
@@ -333,10 +444,15 @@ def run(
             truth = pd.read_parquet(project.truth)
             report.raw('<div class="truth">')
             report.heading("Check against the known truth (demo only)")
-            report.paragraph("The demo deposit is invented, so its true block grades are known. This section "
-                             "compares them with the estimate; the estimator never used them.")
-            rows = [{"domain": d.name, **compare_with_truth(blocks, truth, grid, primary, d.name)}
-                    for d in project.domains if d.estimate]
+            report.paragraph(
+                "The demo deposit is invented, so its true block grades are known. This section "
+                "compares them with the estimate; the estimator never used them."
+            )
+            rows = [
+                {"domain": d.name, **compare_with_truth(blocks, truth, grid, primary, d.name)}
+                for d in project.domains
+                if d.estimate
+            ]
             report.table(pd.DataFrame(rows))
             report.raw("</div>")
 
@@ -347,16 +463,28 @@ def run(
                 _write_table(blocks_out, folder / "block_model.csv")
             from .views import block_image
 
-            numeric = [c for c in blocks_out.columns if c not in ("domain", "class", "x", "y", "z", "i", "j", "k")]
-            image = block_image(grid, blocks_out.assign(**{"class": blocks_out["class"]}), numeric + ["class"])
+            numeric = [
+                c
+                for c in blocks_out.columns
+                if c not in ("domain", "class", "x", "y", "z", "i", "j", "k")
+            ]
+            image = block_image(
+                grid, blocks_out.assign(**{"class": blocks_out["class"]}), numeric + ["class"]
+            )
             image.save(str(folder / "block_model.vti"))
         report.heading("Run")
         report.paragraph(f"Timings (s): {timer.timings}")
         report.write(folder / "report.html")
-        manifest = {"project": str(project.source), "inputs_sha256": _inputs(project),
-                    "configuration": resolved(project), "versions": _versions(), "timings_s": timer.timings,
-                    "cautions": CAUTIONS, "blocks": len(blocks),
-                    "options": {"backend": backend, "workers": workers, "chunk_size": chunk_size}}
+        manifest = {
+            "project": str(project.source),
+            "inputs_sha256": _inputs(project),
+            "configuration": resolved(project),
+            "versions": _versions(),
+            "timings_s": timer.timings,
+            "cautions": CAUTIONS,
+            "blocks": len(blocks),
+            "options": {"backend": backend, "workers": workers, "chunk_size": chunk_size},
+        }
         write_json(folder / "manifest.json", manifest)
         staged.commit()
     except BaseException:
@@ -372,19 +500,37 @@ def _standard_views(project, grid, blocks, composites, folder: Path, report: Htm
     unit = project.data.grades[primary]
     main = project.domains[0].name
     b = blocks[blocks["domain"] == main]
-    centre = (b[["x", "y", "z"]].to_numpy(float) * b[["tonnes"]].to_numpy()).sum(axis=0) / b["tonnes"].sum()
+    centre = (b[["x", "y", "z"]].to_numpy(float) * b[["tonnes"]].to_numpy()).sum(axis=0) / b[
+        "tonnes"
+    ].sum()
     # snap to a block centre so slices cut through blocks, not along their faces
-    centre = np.asarray(grid.origin) + (np.floor((centre - grid.origin) / grid.block_size) + 0.5) * grid.block_size
+    centre = (
+        np.asarray(grid.origin)
+        + (np.floor((centre - grid.origin) / grid.block_size) + 0.5) * grid.block_size
+    )
     report.heading("Views")
     p = folder / "plan.png"
     plots.plan_figure(blocks, grid, primary, float(centre[2]), p, unit, composites=composites)
     report.image(p, f"Plan through the centre of the {main} domain")
-    strike_normal = (project.search[0].orientation[0] + 90.0) if project.search and project.search[0].orientation else 90.0
+    strike_normal = (
+        (project.search[0].orientation[0] + 90.0)
+        if project.search and project.search[0].orientation
+        else 90.0
+    )
     if project.variography.orientation is not None:
         strike_normal = project.variography.orientation[0] + 90.0
     p = folder / "section.png"
-    plots.section_figure(blocks, grid, primary, centre, strike_normal, 2 * grid.block_size[0], p, unit,
-                         composites=composites)
+    plots.section_figure(
+        blocks,
+        grid,
+        primary,
+        centre,
+        strike_normal,
+        2 * grid.block_size[0],
+        p,
+        unit,
+        composites=composites,
+    )
     report.image(p, f"Section across the {main} domain through its centre")
     try:
         from .views import render_view
@@ -393,8 +539,15 @@ def _standard_views(project, grid, blocks, composites, folder: Path, report: Htm
             pos = [None, None, None]
             pos["xyz".index(axis)] = float(centre["xyz".index(axis)])
             p = folder / f"slice_{axis}.png"
-            render_view(grid, blocks, primary, p, unit=unit, slices=tuple(pos),
-                        composites=composites[composites["domain"] == main])
+            render_view(
+                grid,
+                blocks,
+                primary,
+                p,
+                unit=unit,
+                slices=tuple(pos),
+                composites=composites[composites["domain"] == main],
+            )
             report.image(p, f"3D slice normal to {axis} through the {main} centre, {primary}")
         p = folder / "slices_class.png"
         render_view(grid, blocks, "class", p, slices=tuple(centre))
@@ -403,7 +556,9 @@ def _standard_views(project, grid, blocks, composites, folder: Path, report: Htm
         report.paragraph(f"3D views could not be rendered here: {exc}")
 
 
-def report_again(project: Project, block_model: Path, out: Path, *, cutoffs=None, reclassify: bool = False) -> Path:
+def report_again(
+    project: Project, block_model: Path, out: Path, *, cutoffs=None, reclassify: bool = False
+) -> Path:
     """Re-report an existing block model at new cut-offs or classification rules."""
     check_writable(out)
     blocks = pd.read_parquet(block_model)
@@ -412,14 +567,25 @@ def report_again(project: Project, block_model: Path, out: Path, *, cutoffs=None
         primary = project.grades[0]
         if reclassify or "class" not in blocks:
             cls = project.classification
-            blocks["class"] = classify_blocks(blocks, primary, cls.rules, cls.fallback, clean_up=cls.clean_up)
+            blocks["class"] = classify_blocks(
+                blocks, primary, cls.rules, cls.fallback, clean_up=cls.clean_up
+            )
         report = HtmlReport(f"{project.name}: grade–tonnage re-report of {Path(block_model).name}")
-        _grade_tonnage_outputs(project, blocks, staged.path, report, cutoffs or project.report.cutoffs)
+        _grade_tonnage_outputs(
+            project, blocks, staged.path, report, cutoffs or project.report.cutoffs
+        )
         report.write(staged.path / "report.html")
-        write_json(staged.path / "manifest.json", {"block_model": str(block_model), "block_model_sha256": file_hash(block_model),
-                                                   "cutoffs": list(cutoffs or project.report.cutoffs),
-                                                   "configuration": resolved(project), "versions": _versions(),
-                                                   "cautions": CAUTIONS})
+        write_json(
+            staged.path / "manifest.json",
+            {
+                "block_model": str(block_model),
+                "block_model_sha256": file_hash(block_model),
+                "cutoffs": list(cutoffs or project.report.cutoffs),
+                "configuration": resolved(project),
+                "versions": _versions(),
+                "cautions": CAUTIONS,
+            },
+        )
         staged.commit()
     except BaseException:
         staged.discard()

@@ -50,7 +50,9 @@ class SearchEllipsoid:
     def __post_init__(self) -> None:
         ranges = np.broadcast_to(np.asarray(self.ranges, dtype=np.float64), (3,))
         if not np.all(np.isfinite(ranges)) or np.any(ranges <= 0):
-            raise ValueError(f"SearchEllipsoid ranges must be three positive lengths, got {self.ranges!r}")
+            raise ValueError(
+                f"SearchEllipsoid ranges must be three positive lengths, got {self.ranges!r}"
+            )
         object.__setattr__(self, "ranges", tuple(float(a) for a in ranges))
         if not isinstance(self.orientation, Orientation):
             raise TypeError("SearchEllipsoid orientation must be a blockmodel.Orientation")
@@ -64,7 +66,9 @@ class SearchEllipsoid:
             if value is not None and int(value) < 1:
                 raise ValueError(f"SearchEllipsoid {name} must be None or >= 1, got {value}")
         if not 0 <= int(self.min_octants) <= 8:
-            raise ValueError(f"SearchEllipsoid min_octants must lie in 0..8, got {self.min_octants}")
+            raise ValueError(
+                f"SearchEllipsoid min_octants must lie in 0..8, got {self.min_octants}"
+            )
 
     def transform(self) -> np.ndarray:
         """(3, 3) matrix taking metres to the frame where the ellipsoid is the unit sphere."""

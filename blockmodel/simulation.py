@@ -49,7 +49,10 @@ def simulate_gaussian(
         padding = tuple(int(np.ceil(reach / d)) for d in spacing)
     n = tuple(int(a + b) for a, b in zip(shape, padding, strict=True))
     # signed, wrapped lags: anisotropy needs the sign
-    lags = [np.where(np.arange(m) <= m // 2, np.arange(m), np.arange(m) - m) * d for m, d in zip(n, spacing, strict=True)]
+    lags = [
+        np.where(np.arange(m) <= m // 2, np.arange(m), np.arange(m) - m) * d
+        for m, d in zip(n, spacing, strict=True)
+    ]
     cov = np.empty(n)
     gy, gz = np.meshgrid(lags[1], lags[2], indexing="ij")
     plane = np.column_stack([np.zeros(gy.size), gy.ravel(), gz.ravel()])

@@ -14,7 +14,15 @@ import numpy as np
 
 from .errors import InputError, Problem
 
-__all__ = ["Lattice", "Surface", "column_crossings", "points_inside", "read_surface", "surface_elevation", "write_ply"]
+__all__ = [
+    "Lattice",
+    "Surface",
+    "column_crossings",
+    "points_inside",
+    "read_surface",
+    "surface_elevation",
+    "write_ply",
+]
 
 
 _NUDGE = (np.sqrt(2.0) * 1e-7, np.sqrt(3.0) * 1e-7)
@@ -56,7 +64,9 @@ def read_surface(path: Path) -> Surface:
     try:
         mesh = pv.read(str(path))
     except Exception as exc:  # pyvista raises many types for unreadable files
-        raise InputError([Problem(str(path), None, None, None, f"cannot read surface: {exc}")]) from None
+        raise InputError(
+            [Problem(str(path), None, None, None, f"cannot read surface: {exc}")]
+        ) from None
     mesh = mesh.extract_surface(algorithm="dataset_surface").triangulate()
     faces = np.asarray(mesh.faces).reshape(-1, 4)
     if len(faces) == 0:
@@ -95,8 +105,12 @@ def column_crossings(surface: Surface, lattice: Lattice) -> tuple[np.ndarray, np
     v, t = surface.vertices, surface.triangles
     p0, p1, p2 = v[t[:, 0]], v[t[:, 1]], v[t[:, 2]]
     xy = np.stack([p0[:, :2], p1[:, :2], p2[:, :2]], axis=1)
-    lo = np.ceil((xy.min(axis=1) - [lattice.x0, lattice.y0]) / [lattice.dx, lattice.dy]).astype(np.int64)
-    hi = np.floor((xy.max(axis=1) - [lattice.x0, lattice.y0]) / [lattice.dx, lattice.dy]).astype(np.int64)
+    lo = np.ceil((xy.min(axis=1) - [lattice.x0, lattice.y0]) / [lattice.dx, lattice.dy]).astype(
+        np.int64
+    )
+    hi = np.floor((xy.max(axis=1) - [lattice.x0, lattice.y0]) / [lattice.dx, lattice.dy]).astype(
+        np.int64
+    )
     lo = np.maximum(lo, 0)
     hi = np.minimum(hi, [lattice.nx - 1, lattice.ny - 1])
     ni = np.maximum(hi[:, 0] - lo[:, 0] + 1, 0)
@@ -127,7 +141,9 @@ def column_crossings(surface: Surface, lattice: Lattice) -> tuple[np.ndarray, np
     return col[order], z[order]
 
 
-def points_inside(crossings: tuple[np.ndarray, np.ndarray], column: np.ndarray, z: np.ndarray) -> np.ndarray:
+def points_inside(
+    crossings: tuple[np.ndarray, np.ndarray], column: np.ndarray, z: np.ndarray
+) -> np.ndarray:
     """Whether points (column index, elevation) are inside the closed solid.
 
     Parameters

@@ -20,7 +20,13 @@ import numpy as np
 from scipy.optimize import brentq
 from scipy.stats import norm
 
-__all__ = ["GaussianAnamorphosis", "block_grade_tonnage", "fit_anamorphosis", "hermite", "support_coefficient"]
+__all__ = [
+    "GaussianAnamorphosis",
+    "block_grade_tonnage",
+    "fit_anamorphosis",
+    "hermite",
+    "support_coefficient",
+]
 
 _NODES, _WEIGHTS = np.polynomial.hermite_e.hermegauss(200)
 _WEIGHTS = _WEIGHTS / np.sqrt(2 * np.pi)  # expectation under the standard normal
@@ -68,7 +74,9 @@ def fit_anamorphosis(function, degree: int = 40) -> GaussianAnamorphosis:
     return GaussianAnamorphosis(hermite(_NODES, degree) @ (_WEIGHTS * z))
 
 
-def empirical_anamorphosis(values: np.ndarray, weights: np.ndarray | None = None, degree: int = 40) -> GaussianAnamorphosis:
+def empirical_anamorphosis(
+    values: np.ndarray, weights: np.ndarray | None = None, degree: int = 40
+) -> GaussianAnamorphosis:
     """Anamorphosis of (declustered) data: their quantile function in Gaussian space,
     linear between data, extended flat past the extremes."""
     v = np.asarray(values, dtype=np.float64)
@@ -87,7 +95,9 @@ def support_coefficient(anamorphosis: GaussianAnamorphosis, block_variance: floa
     return float(brentq(lambda r: anamorphosis.block_variance(r) - block_variance, 1e-6, 1.0))
 
 
-def block_grade_tonnage(anamorphosis: GaussianAnamorphosis, r: float, cutoffs: np.ndarray) -> np.ndarray:
+def block_grade_tonnage(
+    anamorphosis: GaussianAnamorphosis, r: float, cutoffs: np.ndarray
+) -> np.ndarray:
     """Share of tonnes and mean grade above each cut-off at block support.
 
     Returns

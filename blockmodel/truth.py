@@ -11,8 +11,9 @@ from .grid import BlockGrid
 __all__ = ["compare_with_truth"]
 
 
-def compare_with_truth(blocks: pd.DataFrame, truth: pd.DataFrame, grid: BlockGrid, grade: str,
-                       domain: str) -> dict[str, float]:
+def compare_with_truth(
+    blocks: pd.DataFrame, truth: pd.DataFrame, grid: BlockGrid, grade: str, domain: str
+) -> dict[str, float]:
     """Figures of the estimate against the truth for one domain.
 
     Parameters
@@ -39,8 +40,16 @@ def compare_with_truth(blocks: pd.DataFrame, truth: pd.DataFrame, grid: BlockGri
     z = m[f"{grade}_true"].to_numpy(float)
     kriged_mean = float(w @ k / w.sum())
     true_mean = float(w @ z / w.sum())
-    good = m["class"].isin(["Measured", "Indicated"]).to_numpy() if "class" in m else np.ones(len(m), bool)
-    slope = float(np.cov(z[good], k[good])[0, 1] / np.var(k[good], ddof=1)) if good.sum() > 2 else float("nan")
+    good = (
+        m["class"].isin(["Measured", "Indicated"]).to_numpy()
+        if "class" in m
+        else np.ones(len(m), bool)
+    )
+    slope = (
+        float(np.cov(z[good], k[good])[0, 1] / np.var(k[good], ddof=1))
+        if good.sum() > 2
+        else float("nan")
+    )
     density = float(b["density"].iloc[0]) if len(b) else 0.0
     t_tonnes = t["proportion"].to_numpy(float) * grid.block_volume * density
     cut = float(np.median(t[f"{grade}_true"]))
@@ -55,5 +64,7 @@ def compare_with_truth(blocks: pd.DataFrame, truth: pd.DataFrame, grid: BlockGri
         "median_cutoff": cut,
         "tonnes_above_cutoff_kriged": kriged_above,
         "tonnes_above_cutoff_true": true_above,
-        "tonnage_difference_percent": 100.0 * (kriged_above - true_above) / true_above if true_above else float("nan"),
+        "tonnage_difference_percent": 100.0 * (kriged_above - true_above) / true_above
+        if true_above
+        else float("nan"),
     }

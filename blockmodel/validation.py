@@ -30,9 +30,19 @@ class CrossValidation:
     total: int
 
     def summary(self) -> dict[str, float]:
-        return {k: getattr(self, k) for k in ("mean_error", "mean_squared_error", "mean_standardised_error",
-                                              "variance_standardised_error", "correlation",
-                                              "slope_true_on_estimate", "estimated", "total")}
+        return {
+            k: getattr(self, k)
+            for k in (
+                "mean_error",
+                "mean_squared_error",
+                "mean_standardised_error",
+                "variance_standardised_error",
+                "correlation",
+                "slope_true_on_estimate",
+                "estimated",
+                "total",
+            )
+        }
 
 
 def cross_validate(
@@ -76,13 +86,30 @@ def cross_validate(
     if leave_out == "hole":
         for h in pd.unique(groups):
             out = groups == h
-            res = estimate(samples[~out], values[~out], samples[out], model, search, method=method, mean=mean,
-                           hole_ids=holes[~out])
+            res = estimate(
+                samples[~out],
+                values[~out],
+                samples[out],
+                model,
+                search,
+                method=method,
+                mean=mean,
+                hole_ids=holes[~out],
+            )
             est[out], var[out] = res["estimate"], res["variance"]
     else:
         # leave-one-out in one pass: no target may use a sample at its own location
-        res = estimate(samples, values, samples, model, search, method=method, mean=mean, hole_ids=holes,
-                       skip_coincident=True)
+        res = estimate(
+            samples,
+            values,
+            samples,
+            model,
+            search,
+            method=method,
+            mean=mean,
+            hole_ids=holes,
+            skip_coincident=True,
+        )
         est, var = res["estimate"], res["variance"]
     table = pd.DataFrame({"true": values, "estimate": est, "variance": var, "hole": holes})
     ok = np.isfinite(est) & np.isfinite(var) & (var > 0)
@@ -144,14 +171,16 @@ def swath(
         with np.errstate(invalid="ignore", divide="ignore"):
             return s / n
 
-    return pd.DataFrame({
-        "centre": edges_lo + (np.arange(nb) + 0.5) * width,
-        "kriged": wmean(b_bin[ok], t[ok], g[ok]),
-        "nearest": wmean(b_bin[ok], t[ok], nn[ok]),
-        "composites": wmean(c_bin[cok], w[cok], cv[cok]),
-        "blocks": np.bincount(b_bin[ok], minlength=nb),
-        "composite_count": np.bincount(c_bin[cok], minlength=nb),
-    })
+    return pd.DataFrame(
+        {
+            "centre": edges_lo + (np.arange(nb) + 0.5) * width,
+            "kriged": wmean(b_bin[ok], t[ok], g[ok]),
+            "nearest": wmean(b_bin[ok], t[ok], nn[ok]),
+            "composites": wmean(c_bin[cok], w[cok], cv[cok]),
+            "blocks": np.bincount(b_bin[ok], minlength=nb),
+            "composite_count": np.bincount(c_bin[cok], minlength=nb),
+        }
+    )
 
 
 def global_bias(blocks: pd.DataFrame, grade: str) -> pd.DataFrame:
@@ -163,4 +192,6 @@ def global_bias(blocks: pd.DataFrame, grade: str) -> pd.DataFrame:
         k = float((t * b.loc[ok, grade]).sum() / t.sum())
         n = float((t * b.loc[ok, f"{grade}_nn"]).sum() / t.sum())
         rows.append((dom, k, n, 100.0 * (k - n) / n))
-    return pd.DataFrame(rows, columns=["domain", "kriged_mean", "nearest_mean", "difference_percent"])
+    return pd.DataFrame(
+        rows, columns=["domain", "kriged_mean", "nearest_mean", "difference_percent"]
+    )

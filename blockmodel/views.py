@@ -22,7 +22,9 @@ def block_image(grid: BlockGrid, blocks, columns: list[str]):
     the block's domain rows (NaN where none). Cell order is x fastest (DESIGN §3)."""
     import pyvista as pv
 
-    image = pv.ImageData(dimensions=np.asarray(grid.shape) + 1, spacing=grid.block_size, origin=grid.origin)
+    image = pv.ImageData(
+        dimensions=np.asarray(grid.shape) + 1, spacing=grid.block_size, origin=grid.origin
+    )
     flat = grid.flat_index(blocks["i"].to_numpy(), blocks["j"].to_numpy(), blocks["k"].to_numpy())
     t = blocks["tonnes"].to_numpy(float)
     tonnes = np.bincount(flat, weights=t, minlength=grid.n_blocks)
@@ -97,7 +99,9 @@ def render_view(
         annotations = None
     if cutoff is not None and not categorical:
         shown = image.threshold(value=cutoff, scalars=column)
-        plotter.add_mesh(shown, scalars=column, cmap=cmap, clim=clim, scalar_bar_args=bar, show_edges=False)
+        plotter.add_mesh(
+            shown, scalars=column, cmap=cmap, clim=clim, scalar_bar_args=bar, show_edges=False
+        )
     else:
         centre = np.asarray(grid.origin) + np.asarray(grid.shape) * np.asarray(grid.block_size) / 2
         pos = slices or tuple(centre)
@@ -108,31 +112,58 @@ def render_view(
             origin = centre.copy()
             origin["xyz".index(axis)] = p
             sl = image.slice(normal=normal, origin=origin)
-            sl = sl.threshold(value=(-1e300, 1e300), scalars=column) if sl.n_cells else sl  # drop empty blocks
+            sl = (
+                sl.threshold(value=(-1e300, 1e300), scalars=column) if sl.n_cells else sl
+            )  # drop empty blocks
             if sl.n_cells:
-                plotter.add_mesh(sl, scalars=column, cmap=cmap, clim=clim, scalar_bar_args=bar,
-                                 annotations=annotations, nan_opacity=0.0)
+                plotter.add_mesh(
+                    sl,
+                    scalars=column,
+                    cmap=cmap,
+                    clim=clim,
+                    scalar_bar_args=bar,
+                    annotations=annotations,
+                    nan_opacity=0.0,
+                )
     if composites is not None and len(composites):
         if cutoff is None and slices is not None:
             # only the drilling near the slice planes, so it does not hide them
             near = np.zeros(len(composites), dtype=bool)
             for axis, p in zip("xyz", slices, strict=True):
                 if p is not None:
-                    near |= np.abs(composites[axis].to_numpy(float) - p) <= 2 * grid.block_size["xyz".index(axis)]
+                    near |= (
+                        np.abs(composites[axis].to_numpy(float) - p)
+                        <= 2 * grid.block_size["xyz".index(axis)]
+                    )
             composites = composites[near]
         pts = pv.PolyData(composites[["x", "y", "z"]].to_numpy(float))
         g = column if column in composites else None
         if g is not None and not categorical:
             pts["grade"] = composites[g].to_numpy(float)
-            plotter.add_mesh(pts, scalars="grade", cmap=cmap, clim=clim, point_size=4, render_points_as_spheres=True,
-                             show_scalar_bar=False)
+            plotter.add_mesh(
+                pts,
+                scalars="grade",
+                cmap=cmap,
+                clim=clim,
+                point_size=4,
+                render_points_as_spheres=True,
+                show_scalar_bar=False,
+            )
         else:
             plotter.add_mesh(pts, color="black", point_size=2)
     for s in solids or []:
         faces = np.column_stack([np.full(len(s.triangles), 3), s.triangles]).ravel()
-        plotter.add_mesh(pv.PolyData(s.vertices, faces), color="grey", opacity=0.12, style="wireframe")
-    plotter.show_bounds(color="black", font_size=8, xtitle="east (m)", ytitle="north (m)", ztitle="elevation (m)",
-                        fmt="%.0f")
+        plotter.add_mesh(
+            pv.PolyData(s.vertices, faces), color="grey", opacity=0.12, style="wireframe"
+        )
+    plotter.show_bounds(
+        color="black",
+        font_size=8,
+        xtitle="east (m)",
+        ytitle="north (m)",
+        ztitle="elevation (m)",
+        fmt="%.0f",
+    )
     plotter.view_isometric()
     plotter.camera.zoom(1.3)
     if path is None:

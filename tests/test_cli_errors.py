@@ -9,8 +9,12 @@ from blockmodel.cli import main
 
 
 def _run(*args):
-    return subprocess.run([sys.executable, "-m", "blockmodel", *map(str, args)], capture_output=True, text=True,
-                          timeout=120)
+    return subprocess.run(
+        [sys.executable, "-m", "blockmodel", *map(str, args)],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
 
 
 def test_check_prints_summary(small_project):

@@ -17,8 +17,10 @@ def _holes(intervals):
 
 def test_ten_metres_of_one_grade_gives_five_composites():
     # common practice identity
-    comps, s = composite(_holes({"hole": ["H"], "from": [0.0], "to": [10.0], "domain": ["ore"], "au": [3.0]}),
-                         Compositing(length=2.0))
+    comps, s = composite(
+        _holes({"hole": ["H"], "from": [0.0], "to": [10.0], "domain": ["ore"], "au": [3.0]}),
+        Compositing(length=2.0),
+    )
     assert len(comps) == 5 and s.dropped_low_coverage == 0
     np.testing.assert_allclose(comps["au"], 3.0)
     np.testing.assert_allclose(comps["length"], 2.0)
@@ -28,22 +30,32 @@ def test_ten_metres_of_one_grade_gives_five_composites():
 def test_metal_conserved_when_nothing_dropped(rng):
     edges = np.cumsum(np.r_[0.0, rng.uniform(0.3, 3.0, size=60)])
     domains = np.where(np.arange(60) < 25, "ore", np.where(np.arange(60) < 40, "halo", "ore"))
-    table = {"hole": ["H"] * 60, "from": edges[:-1], "to": edges[1:], "domain": domains,
-             "au": rng.lognormal(0, 1, size=60)}
+    table = {
+        "hole": ["H"] * 60,
+        "from": edges[:-1],
+        "to": edges[1:],
+        "domain": domains,
+        "au": rng.lognormal(0, 1, size=60),
+    }
     for residual in ("merge", "keep"):
         comps, s = composite(_holes(table), Compositing(length=2.0, residual=residual))
         assert s.dropped_low_coverage == 0 and s.residuals_dropped == 0
         metal_in = np.sum((edges[1:] - edges[:-1]) * table["au"])
         assert np.sum(comps["length"] * comps["au"]) == pytest.approx(metal_in, rel=1e-12)
         # composites never straddle a domain contact
-        for (dom, f, t) in comps[["domain", "from", "to"]].itertuples(index=False):
+        for dom, f, t in comps[["domain", "from", "to"]].itertuples(index=False):
             inside = (edges[:-1] < t - 1e-9) & (edges[1:] > f + 1e-9)
             assert set(domains[inside]) == {dom}
 
 
 def test_low_coverage_dropped_and_residual_rules():
-    table = {"hole": ["H"] * 3, "from": [0.0, 2.0, 4.0], "to": [1.5, 4.0, 5.5], "domain": ["ore"] * 3,
-             "au": [1.0, np.nan, 2.0]}
+    table = {
+        "hole": ["H"] * 3,
+        "from": [0.0, 2.0, 4.0],
+        "to": [1.5, 4.0, 5.5],
+        "domain": ["ore"] * 3,
+        "au": [1.0, np.nan, 2.0],
+    }
     comps, s = composite(_holes(table), Compositing(length=2.0, min_coverage=0.5))
     # 0-2: 1.5 m assayed (75 %) kept; 2-4 nothing assayed -> dropped; residual 4-5.5 >= 1 m kept
     assert s.dropped_low_coverage == 1
@@ -57,7 +69,9 @@ def test_low_coverage_dropped_and_residual_rules():
 
 
 def test_capping_by_value_and_percentile():
-    comps = pd.DataFrame({"domain": ["ore"] * 4 + ["halo"], "length": [2.0] * 5, "au": [1.0, 2.0, 3.0, 10.0, 50.0]})
+    comps = pd.DataFrame(
+        {"domain": ["ore"] * 4 + ["halo"], "length": [2.0] * 5, "au": [1.0, 2.0, 3.0, 10.0, 50.0]}
+    )
     capped, s = cap_grades(comps, [CappingRule("ore", "au", value=5.0)])
     np.testing.assert_allclose(capped["au"], [1, 2, 3, 5, 50])
     np.testing.assert_allclose(capped["au_uncapped"], comps["au"])

@@ -24,8 +24,13 @@ def test_duplicated_cluster_halves_weights(rng):
     pts[:, 2] = 0
     vals = rng.normal(size=50)
     base = cell_declustering(pts, vals, np.array([25.0]), choose="fixed", fixed_size=25.0)
-    dup = cell_declustering(np.vstack([pts, pts[:10]]), np.r_[vals, vals[:10]], np.array([25.0]), choose="fixed",
-                            fixed_size=25.0)
+    dup = cell_declustering(
+        np.vstack([pts, pts[:10]]),
+        np.r_[vals, vals[:10]],
+        np.array([25.0]),
+        choose="fixed",
+        fixed_size=25.0,
+    )
     # cells holding duplicated samples: each copy gets half of what the original had,
     # exactly when a cell's samples are all duplicated; compare total weight per location
     w_dup = dup.weights[:10] + dup.weights[50:]
@@ -37,8 +42,14 @@ def test_duplicated_cluster_halves_weights(rng):
 
 def test_duplicated_isolated_sample_halves_exactly():
     pts = np.array([[5.0, 5, 0], [55, 5, 0], [5, 55, 0], [55, 55, 0]])
-    res = cell_declustering(np.vstack([pts, pts[:1]]), np.ones(5), np.array([50.0]), origins=1, choose="fixed",
-                            fixed_size=50.0)
+    res = cell_declustering(
+        np.vstack([pts, pts[:1]]),
+        np.ones(5),
+        np.array([50.0]),
+        origins=1,
+        choose="fixed",
+        fixed_size=50.0,
+    )
     np.testing.assert_allclose(res.weights[[0, 4]], res.weights[1] / 2)
 
 
@@ -53,7 +64,9 @@ def test_demo_declustered_lode_mean_closer_to_truth():
     lode = truth[truth["domain"] == "lode"]
     true_mean = np.average(lode["au_true"], weights=lode["proportion"])
     naive, declustered = decl.naive_mean["au"], decl.declustered_mean["au"]
-    print(f"lode true {true_mean:.3f}, naive {naive:.3f}, declustered {declustered:.3f} g/t; "
-          f"cell {decl.cell.chosen_size:.0f} m")
+    print(
+        f"lode true {true_mean:.3f}, naive {naive:.3f}, declustered {declustered:.3f} g/t; "
+        f"cell {decl.cell.chosen_size:.0f} m"
+    )
     assert abs(declustered - true_mean) < abs(naive - true_mean)
     assert decl.weights.sum() == pytest.approx(len(decl.weights))

@@ -21,14 +21,18 @@ def regenerated(tmp_path_factory):
     return folder
 
 
-@pytest.mark.parametrize("name", ["collars.csv", "surveys.csv", "assays.csv", "lode.ply", "halo.ply", "topography.ply"])
+@pytest.mark.parametrize(
+    "name", ["collars.csv", "surveys.csv", "assays.csv", "lode.ply", "halo.ply", "topography.ply"]
+)
 def test_same_seed_reproduces_committed_files(regenerated, name):
     assert filecmp.cmp(regenerated / name, DEMO / name, shallow=False)
 
 
 def test_truth_blocks_reproduced(regenerated):
-    pd.testing.assert_frame_equal(pd.read_parquet(regenerated / "truth_blocks.parquet"),
-                                  pd.read_parquet(DEMO / "truth_blocks.parquet"))
+    pd.testing.assert_frame_equal(
+        pd.read_parquet(regenerated / "truth_blocks.parquet"),
+        pd.read_parquet(DEMO / "truth_blocks.parquet"),
+    )
 
 
 def test_size_under_15_mb():
@@ -57,12 +61,16 @@ def test_holes_hit_the_lode_where_the_solid_says(demo_holes):
     from blockmodel.demo import FINE, ORIGIN, _fine_lattice
 
     iv = demo_holes.intervals
-    mid = hole_positions(demo_holes, iv["hole"].to_numpy(), ((iv["from"] + iv["to"]) / 2).to_numpy(float))
+    mid = hole_positions(
+        demo_holes, iv["hole"].to_numpy(), ((iv["from"] + iv["to"]) / 2).to_numpy(float)
+    )
     shape, lat = _fine_lattice()
     cell = np.floor((mid - ORIGIN) / FINE).astype(int)
     centre = ORIGIN + (cell + 0.5) * FINE
     inside_grid = np.all((cell >= 0) & (cell < shape), axis=1)
-    inside_grid &= centre[:, 2] <= topography_elevation(centre[:, 0], centre[:, 1])  # cells above ground are air
+    inside_grid &= centre[:, 2] <= topography_elevation(
+        centre[:, 0], centre[:, 1]
+    )  # cells above ground are air
     cell, logged = cell[inside_grid], iv["domain"].to_numpy()[inside_grid]
     col = cell[:, 0] + lat.nx * cell[:, 1]
     z = ORIGIN[2] + (cell[:, 2] + 0.5) * FINE[2]

@@ -55,7 +55,9 @@ def test_each_fault_is_named(small_project, file, old, new, hole, line, words):
 
 def test_all_problems_reported_together(small_project):
     a = small_project.parent / "assays.csv"
-    a.write_text(a.read_text().replace("A1,4,6,2.5", "A1,4,6,x").replace("A2,10,12,0.2", "A2,12,12,0.2"))
+    a.write_text(
+        a.read_text().replace("A1,4,6,2.5", "A1,4,6,x").replace("A2,10,12,0.2", "A2,12,12,0.2")
+    )
     with pytest.raises(InputError) as info:
         _load(small_project)
     assert len(info.value.problems) >= 2

@@ -13,10 +13,25 @@ from blockmodel.truth import compare_with_truth
 
 from .conftest import DEMO
 
-FILES = ["composites.csv", "declustering.csv", "variogram_models.toml", "block_model.parquet", "block_model.vti",
-         "grade_tonnage.csv", "report.html", "manifest.json", "plan.png", "section.png", "slice_x.png",
-         "slices_class.png", "grade_tonnage_au.png", "variogram_lode_au.png", "cross_validation_lode.png",
-         "swath_lode.png", "change_of_support_lode.png"]
+FILES = [
+    "composites.csv",
+    "declustering.csv",
+    "variogram_models.toml",
+    "block_model.parquet",
+    "block_model.vti",
+    "grade_tonnage.csv",
+    "report.html",
+    "manifest.json",
+    "plan.png",
+    "section.png",
+    "slice_x.png",
+    "slices_class.png",
+    "grade_tonnage_au.png",
+    "variogram_lode_au.png",
+    "cross_validation_lode.png",
+    "swath_lode.png",
+    "change_of_support_lode.png",
+]
 
 
 @pytest.fixture(scope="module")
@@ -39,8 +54,28 @@ def test_files_written(two_runs):
 
 def test_block_model_columns(two_runs):
     b = pd.read_parquet(two_runs[0] / "block_model.parquet")
-    expected = ["x", "y", "z", "i", "j", "k", "domain", "proportion", "density", "tonnes", "au", "au_variance",
-                "au_slope", "au_efficiency", "au_samples", "au_holes", "au_distance", "au_pass", "au_nn", "au_idw"]
+    expected = [
+        "x",
+        "y",
+        "z",
+        "i",
+        "j",
+        "k",
+        "domain",
+        "proportion",
+        "density",
+        "tonnes",
+        "au",
+        "au_variance",
+        "au_slope",
+        "au_efficiency",
+        "au_samples",
+        "au_holes",
+        "au_distance",
+        "au_pass",
+        "au_nn",
+        "au_idw",
+    ]
     assert list(b.columns[: len(expected)]) == expected
     assert (b["proportion"] > 0).all() and set(b["domain"]) == {"lode", "halo"}
 
@@ -70,8 +105,21 @@ def test_vti_cell_order(two_runs):
 
 def test_report_again_at_new_cutoffs(two_runs, tmp_path):
     out = tmp_path / "again"
-    assert main(["report", str(DEMO / "project.toml"), str(two_runs[0] / "block_model.parquet"), "--out", str(out),
-                 "--cutoffs", "0.25", "0.75"]) == 0
+    assert (
+        main(
+            [
+                "report",
+                str(DEMO / "project.toml"),
+                str(two_runs[0] / "block_model.parquet"),
+                "--out",
+                str(out),
+                "--cutoffs",
+                "0.25",
+                "0.75",
+            ]
+        )
+        == 0
+    )
     gt = pd.read_csv(out / "grade_tonnage.csv")
     assert sorted(gt["cutoff"].unique()) == [0.25, 0.75]
 
@@ -100,7 +148,10 @@ def test_tonnage_above_median_guard(truth_figures):
     assert abs(truth_figures["tonnage_difference_percent"]) <= 15.0
 
 
-@pytest.mark.xfail(strict=True, reason="kriged tonnage above the true median grade is +10.4 % on the demo; "
-                                       "the discrete Gaussian curve from the data agrees with the kriged one")
+@pytest.mark.xfail(
+    strict=True,
+    reason="kriged tonnage above the true median grade is +10.4 % on the demo; "
+    "the discrete Gaussian curve from the data agrees with the kriged one",
+)
 def test_tonnage_above_median_within_10_percent(truth_figures):
     assert abs(truth_figures["tonnage_difference_percent"]) <= 10.0

@@ -34,10 +34,24 @@ def test_backends_and_chunks_identical(demo_inputs, tmp_path):
     ref = _write(demo_inputs, tmp_path / "serial.parquet", backend="serial", chunk_size=100_000)
     assert len(ref) > 10_000
     _write(demo_inputs, tmp_path / "chunks.parquet", backend="serial", chunk_size=1_000)
-    _write(demo_inputs, tmp_path / "processes.parquet", backend="processes", workers=2, chunk_size=3_000)
-    with LocalCluster(n_workers=2, threads_per_worker=1, host="127.0.0.1", dashboard_address=None,
-                      processes=True) as cluster:
-        _write(demo_inputs, tmp_path / "dask.parquet", backend="dask", cluster=cluster.scheduler_address,
-               chunk_size=2_500)
+    _write(
+        demo_inputs,
+        tmp_path / "processes.parquet",
+        backend="processes",
+        workers=2,
+        chunk_size=3_000,
+    )
+    with LocalCluster(
+        n_workers=2, threads_per_worker=1, host="127.0.0.1", dashboard_address=None, processes=True
+    ) as cluster:
+        _write(
+            demo_inputs,
+            tmp_path / "dask.parquet",
+            backend="dask",
+            cluster=cluster.scheduler_address,
+            chunk_size=2_500,
+        )
     for name in ("chunks", "processes", "dask"):
-        assert filecmp.cmp(tmp_path / "serial.parquet", tmp_path / f"{name}.parquet", shallow=False), name
+        assert filecmp.cmp(
+            tmp_path / "serial.parquet", tmp_path / f"{name}.parquet", shallow=False
+        ), name

@@ -13,10 +13,35 @@ def _box(lo, hi) -> Surface:
     """Closed box as 12 triangles."""
     x0, y0, z0 = lo
     x1, y1, z1 = hi
-    v = np.array([[x0, y0, z0], [x1, y0, z0], [x1, y1, z0], [x0, y1, z0],
-                  [x0, y0, z1], [x1, y0, z1], [x1, y1, z1], [x0, y1, z1]], float)
-    t = np.array([[0, 2, 1], [0, 3, 2], [4, 5, 6], [4, 6, 7], [0, 1, 5], [0, 5, 4],
-                  [1, 2, 6], [1, 6, 5], [2, 3, 7], [2, 7, 6], [3, 0, 4], [3, 4, 7]])
+    v = np.array(
+        [
+            [x0, y0, z0],
+            [x1, y0, z0],
+            [x1, y1, z0],
+            [x0, y1, z0],
+            [x0, y0, z1],
+            [x1, y0, z1],
+            [x1, y1, z1],
+            [x0, y1, z1],
+        ],
+        float,
+    )
+    t = np.array(
+        [
+            [0, 2, 1],
+            [0, 3, 2],
+            [4, 5, 6],
+            [4, 6, 7],
+            [0, 1, 5],
+            [0, 5, 4],
+            [1, 2, 6],
+            [1, 6, 5],
+            [2, 3, 7],
+            [2, 7, 6],
+            [3, 0, 4],
+            [3, 4, 7],
+        ]
+    )
     return Surface(v, t)
 
 
@@ -27,8 +52,22 @@ def _tilted_slab(normal, offset, size=1000.0) -> Surface:
     top = np.column_stack([corners, (offset - corners @ n[:2]) / n[2]])
     bottom = np.column_stack([corners, np.full(4, -size)])
     v = np.vstack([bottom, top])
-    t = np.array([[0, 2, 1], [0, 3, 2], [4, 5, 6], [4, 6, 7], [0, 1, 5], [0, 5, 4],
-                  [1, 2, 6], [1, 6, 5], [2, 3, 7], [2, 7, 6], [3, 0, 4], [3, 4, 7]])
+    t = np.array(
+        [
+            [0, 2, 1],
+            [0, 3, 2],
+            [4, 5, 6],
+            [4, 6, 7],
+            [0, 1, 5],
+            [0, 5, 4],
+            [1, 2, 6],
+            [1, 6, 5],
+            [2, 3, 7],
+            [2, 7, 6],
+            [3, 0, 4],
+            [3, 4, 7],
+        ]
+    )
     return Surface(v, t)
 
 
@@ -65,8 +104,10 @@ def test_unit_cube_inside_one_block():
 def test_priority_and_topography():
     g = BlockGrid((0.0, 0.0, 0.0), (10.0, 10.0, 10.0), (1, 1, 2))
     inner, outer = _box((0, 0, 0), (10, 10, 5)), _box((0, 0, 0), (10, 10, 20))
-    topo = Surface(np.array([[-50, -50, 15.0], [50, -50, 15.0], [50, 50, 15.0], [-50, 50, 15.0]]),
-                   np.array([[0, 1, 2], [0, 2, 3]]))
+    topo = Surface(
+        np.array([[-50, -50, 15.0], [50, -50, 15.0], [50, 50, 15.0], [-50, 50, 15.0]]),
+        np.array([[0, 1, 2], [0, 2, 3]]),
+    )
     prop = block_proportions(g, [inner, outer], topo, subcells=(4, 4, 4))
     np.testing.assert_allclose(prop, [[0.5, 0.5], [0.0, 0.5]])
 

@@ -41,9 +41,11 @@ def _plain_loop(pts, vals, targets, model, search, block_size, disc):
         lhs[k, k] = 0.0
         lhs[:k, :k] = model.covariance((p[:, None, :] - p[None, :, :]).reshape(-1, 3)).reshape(k, k)
         nodes = t + offsets
-        cbar = model.structured_covariance(
-            (p[:, None, :] - nodes[None, :, :]).reshape(-1, 3)
-        ).reshape(k, -1).mean(axis=1)
+        cbar = (
+            model.structured_covariance((p[:, None, :] - nodes[None, :, :]).reshape(-1, 3))
+            .reshape(k, -1)
+            .mean(axis=1)
+        )
         cvv = model.structured_covariance(
             (offsets[:, None, :] - offsets[None, :, :]).reshape(-1, 3)
         ).mean()
@@ -54,7 +56,9 @@ def _plain_loop(pts, vals, targets, model, search, block_size, disc):
 
 def test_fast_path_equals_plain_loop(rng):
     pts, vals, _, targets = _data(rng)
-    table = bm.krige(pts, vals, targets, MODEL, SEARCH, block_size=(10, 10, 5), discretisation=(3, 3, 2))
+    table = bm.krige(
+        pts, vals, targets, MODEL, SEARCH, block_size=(10, 10, 5), discretisation=(3, 3, 2)
+    )
     ref = _plain_loop(pts, vals, targets, MODEL, SEARCH, (10, 10, 5), (3, 3, 2))
     np.testing.assert_allclose(table.estimate, ref[:, 0], rtol=1e-9, atol=1e-12)
     np.testing.assert_allclose(table.variance, ref[:, 1], rtol=1e-9, atol=1e-12)
@@ -100,9 +104,13 @@ def test_rotation_invariance(rng):
     # Rotating data, targets and every orientation by the same bearing changes nothing.
     pts, vals, _, targets = _data(rng)
     theta = np.radians(33.0)
-    rot = np.array([[np.cos(theta), -np.sin(theta), 0], [np.sin(theta), np.cos(theta), 0], [0, 0, 1]])
+    rot = np.array(
+        [[np.cos(theta), -np.sin(theta), 0], [np.sin(theta), np.cos(theta), 0], [0, 0, 1]]
+    )
     # rows are new (x, y, z): a vector at bearing b goes to bearing b + 33
-    rot = np.array([[np.cos(theta), np.sin(theta), 0], [-np.sin(theta), np.cos(theta), 0], [0, 0, 1]])
+    rot = np.array(
+        [[np.cos(theta), np.sin(theta), 0], [-np.sin(theta), np.cos(theta), 0], [0, 0, 1]]
+    )
     o2 = bm.Orientation(O.azimuth + 33.0, O.plunge, O.tilt)
     np.testing.assert_allclose(o2.axes(), O.axes() @ rot.T, atol=1e-12)
     model2 = bm.VariogramModel(
@@ -120,7 +128,9 @@ def test_block_estimate_is_mean_of_point_estimates(rng):
     pts, vals, _, targets = _data(rng, 120)
     wide = bm.SearchEllipsoid((1e5, 1e5, 1e5), min_samples=1, max_samples=500)
     offsets = bm.discretisation_offsets((10, 10, 5), (4, 4, 2))
-    block = bm.krige(pts, vals, targets[:5], MODEL, wide, block_size=(10, 10, 5), discretisation=(4, 4, 2))
+    block = bm.krige(
+        pts, vals, targets[:5], MODEL, wide, block_size=(10, 10, 5), discretisation=(4, 4, 2)
+    )
     for b, t in enumerate(targets[:5]):
         points = bm.krige(pts, vals, t + offsets, MODEL, wide)
         assert block.estimate[b] == pytest.approx(points.estimate.mean(), rel=1e-10)
@@ -140,10 +150,13 @@ def test_simple_kriging_one_sample():
 
 def test_chunk_size_does_not_change_results(rng):
     pts, vals, holes, targets = _data(rng)
-    s = bm.SearchEllipsoid((150, 100, 40), O, min_samples=3, max_samples=16, max_per_hole=3,
-                           max_per_octant=4)
+    s = bm.SearchEllipsoid(
+        (150, 100, 40), O, min_samples=3, max_samples=16, max_per_hole=3, max_per_octant=4
+    )
     a = bm.krige(pts, vals, targets, MODEL, s, block_size=(10, 10, 5), hole_ids=holes, chunk_size=7)
-    b = bm.krige(pts, vals, targets, MODEL, s, block_size=(10, 10, 5), hole_ids=holes, chunk_size=10**5)
+    b = bm.krige(
+        pts, vals, targets, MODEL, s, block_size=(10, 10, 5), hole_ids=holes, chunk_size=10**5
+    )
     for c in a.columns:
         np.testing.assert_array_equal(a[c].to_numpy(), b[c].to_numpy(), err_msg=c)
 

@@ -23,7 +23,9 @@ def test_loads_and_resolves_paths(small_project):
 
 def test_unknown_key_suggests_nearest(small_project):
     _with(small_project, 'name = "small test project"', 'name = "x"\n[compositing]\nlenght = 3.0')
-    with pytest.raises(InputError, match=r"unknown key 'lenght' in section \[compositing\]; did you mean 'length'"):
+    with pytest.raises(
+        InputError, match=r"unknown key 'lenght' in section \[compositing\]; did you mean 'length'"
+    ):
         load_project(small_project)
 
 
@@ -51,7 +53,7 @@ def test_out_of_range_values(small_project, old, new, key):
 
 def test_missing_data_file(small_project):
     (small_project.parent / "surveys.csv").unlink()
-    with pytest.raises(InputError, match="data.surveys.*file not found"):
+    with pytest.raises(InputError, match=r"data.surveys.*file not found"):
         load_project(small_project)
 
 

@@ -15,12 +15,14 @@ from blockmodel.support import block_grade_tonnage, fit_anamorphosis, hermite, s
 @pytest.fixture
 def blocks(rng):
     n = 600
-    return pd.DataFrame({
-        "domain": rng.choice(["lode", "halo"], size=n),
-        "class": rng.choice(["Measured", "Indicated", "Inferred"], size=n),
-        "tonnes": rng.uniform(100, 1375, size=n),
-        "au": np.where(rng.uniform(size=n) < 0.05, np.nan, rng.lognormal(0, 1, size=n)),
-    })
+    return pd.DataFrame(
+        {
+            "domain": rng.choice(["lode", "halo"], size=n),
+            "class": rng.choice(["Measured", "Indicated", "Inferred"], size=n),
+            "tonnes": rng.uniform(100, 1375, size=n),
+            "au": np.where(rng.uniform(size=n) < 0.05, np.nan, rng.lognormal(0, 1, size=n)),
+        }
+    )
 
 
 def test_grade_tonnage_identities(blocks):
@@ -33,10 +35,16 @@ def test_grade_tonnage_identities(blocks):
         assert np.all(np.diff(part["tonnes"].to_numpy()) <= 1e-9)
     # metal = tonnes x grade, unit-converted (1 troy oz = 31.1034768 g)
     ok = oz["tonnes"] > 0
-    np.testing.assert_allclose(oz["metal"][ok], (oz["tonnes"] * oz["grade"] / TROY_OUNCE_GRAMS)[ok], rtol=1e-12)
-    np.testing.assert_allclose(kg["metal"][ok.to_numpy()], (kg["tonnes"] * kg["grade"] / 1000)[ok.to_numpy()], rtol=1e-12)
+    np.testing.assert_allclose(
+        oz["metal"][ok], (oz["tonnes"] * oz["grade"] / TROY_OUNCE_GRAMS)[ok], rtol=1e-12
+    )
+    np.testing.assert_allclose(
+        kg["metal"][ok.to_numpy()], (kg["tonnes"] * kg["grade"] / 1000)[ok.to_numpy()], rtol=1e-12
+    )
     # at cut-off 0 the tonnage is the sum of estimated block tonnes
-    total = oz[(oz["domain"] == "all") & (oz["class"] == "all") & (oz["cutoff"] == 0)]["tonnes"].iloc[0]
+    total = oz[(oz["domain"] == "all") & (oz["class"] == "all") & (oz["cutoff"] == 0)][
+        "tonnes"
+    ].iloc[0]
     assert total == pytest.approx(blocks["tonnes"][blocks["au"].notna()].sum())
     # class rows add up to the totals, and domains too
     for c in cut:
@@ -55,14 +63,24 @@ def test_percent_grades_report_tonnes_of_metal():
 
 
 def test_classification_rules_in_order():
-    t = pd.DataFrame({
-        "domain": ["d"] * 5, "i": [0, 5, 10, 15, 20], "j": 0, "k": 0,
-        "au": [1.0, 1.0, 1.0, 1.0, np.nan],
-        "au_pass": [1, 1, 2, 3, 0], "au_holes": [4, 2, 2, 1, 0], "au_samples": [20, 10, 8, 3, 0],
-        "au_distance": [20.0, 30, 40, 90, 0], "au_slope": [0.9, 0.85, 0.6, 0.2, np.nan],
-    })
-    rules = [ClassRule("Measured", max_pass=1, min_holes=3, min_slope=0.8),
-             ClassRule("Indicated", max_pass=2, min_holes=2, min_slope=0.5)]
+    t = pd.DataFrame(
+        {
+            "domain": ["d"] * 5,
+            "i": [0, 5, 10, 15, 20],
+            "j": 0,
+            "k": 0,
+            "au": [1.0, 1.0, 1.0, 1.0, np.nan],
+            "au_pass": [1, 1, 2, 3, 0],
+            "au_holes": [4, 2, 2, 1, 0],
+            "au_samples": [20, 10, 8, 3, 0],
+            "au_distance": [20.0, 30, 40, 90, 0],
+            "au_slope": [0.9, 0.85, 0.6, 0.2, np.nan],
+        }
+    )
+    rules = [
+        ClassRule("Measured", max_pass=1, min_holes=3, min_slope=0.8),
+        ClassRule("Indicated", max_pass=2, min_holes=2, min_slope=0.5),
+    ]
     labels = classify_blocks(t, "au", rules, "Inferred", clean_up=False)
     assert list(labels) == ["Measured", "Indicated", "Indicated", "Inferred", "Unestimated"]
 
@@ -70,15 +88,33 @@ def test_classification_rules_in_order():
 def test_clean_up_removes_isolated_block():
     ii, jj, kk = np.meshgrid(range(3), range(3), range(3), indexing="ij")
     n = ii.size
-    t = pd.DataFrame({"domain": "d", "i": ii.ravel(), "j": jj.ravel(), "k": kk.ravel(), "au": 1.0,
-                      "au_pass": 2, "au_holes": 2, "au_samples": 8, "au_distance": 30.0, "au_slope": 0.6})
+    t = pd.DataFrame(
+        {
+            "domain": "d",
+            "i": ii.ravel(),
+            "j": jj.ravel(),
+            "k": kk.ravel(),
+            "au": 1.0,
+            "au_pass": 2,
+            "au_holes": 2,
+            "au_samples": 8,
+            "au_distance": 30.0,
+            "au_slope": 0.6,
+        }
+    )
     centre = (t["i"] == 1) & (t["j"] == 1) & (t["k"] == 1)
     t.loc[centre, ["au_pass", "au_holes", "au_slope"]] = [1, 5, 0.95]
-    rules = [ClassRule("Measured", max_pass=1, min_holes=3, min_slope=0.8),
-             ClassRule("Indicated", max_pass=2, min_holes=2, min_slope=0.5)]
+    rules = [
+        ClassRule("Measured", max_pass=1, min_holes=3, min_slope=0.8),
+        ClassRule("Indicated", max_pass=2, min_holes=2, min_slope=0.5),
+    ]
     raw = classify_blocks(t, "au", rules, clean_up=False)
     cleaned = classify_blocks(t, "au", rules, clean_up=True)
-    assert raw[centre.to_numpy()][0] == "Measured" and set(cleaned) == {"Indicated"} and len(cleaned) == n
+    assert (
+        raw[centre.to_numpy()][0] == "Measured"
+        and set(cleaned) == {"Indicated"}
+        and len(cleaned) == n
+    )
 
 
 def test_hermite_orthonormal():
@@ -95,7 +131,9 @@ def test_lognormal_closed_forms(m, s, r):
     expected = np.array([m * (-s) ** n / sqrt(factorial(n)) for n in range(41)])
     np.testing.assert_allclose(ana.coefficients, expected, atol=1e-6 * m)
     assert ana.block_variance(r) == pytest.approx(m * m * (np.exp(s * s * r * r) - 1), rel=1e-6)
-    assert support_coefficient(ana, m * m * (np.exp(s * s * r * r) - 1)) == pytest.approx(r, rel=1e-6)
+    assert support_coefficient(ana, m * m * (np.exp(s * s * r * r) - 1)) == pytest.approx(
+        r, rel=1e-6
+    )
 
 
 def test_block_tonnage_of_lognormal_blocks():

@@ -47,8 +47,15 @@ def test_leave_one_out_uses_no_sample_at_the_target(stationary):
 
 
 def test_swath_and_bias():
-    blocks = pd.DataFrame({"domain": "d", "x": [5.0, 15, 25, 35], "tonnes": [1.0, 1, 2, 2],
-                           "au": [1.0, 2, 3, 4], "au_nn": [1.0, 2, 3, 6]})
+    blocks = pd.DataFrame(
+        {
+            "domain": "d",
+            "x": [5.0, 15, 25, 35],
+            "tonnes": [1.0, 1, 2, 2],
+            "au": [1.0, 2, 3, 4],
+            "au_nn": [1.0, 2, 3, 6],
+        }
+    )
     comps = pd.DataFrame({"x": [4.0, 16, 26, 36], "au": [1.0, 2, 3, 4], "weight": [1.0, 1, 1, 1]})
     s = swath(blocks, comps, "au", "x", 20.0)
     np.testing.assert_allclose(s["kriged"], [1.5, 3.5])

@@ -15,7 +15,12 @@ def _model(kind, sill=2.0, ranges=(100, 50, 10), nugget=0.5, o=None):
     ("kind", "share"),
     # Practical range: spherical and cubic reach the sill, exponential and Gaussian 95 %
     # (DESIGN §3; Chilès & Delfiner 2012, §2.5).
-    [("spherical", 1.0), ("cubic", 1.0), ("exponential", 1 - np.exp(-3)), ("gaussian", 1 - np.exp(-3))],
+    [
+        ("spherical", 1.0),
+        ("cubic", 1.0),
+        ("exponential", 1 - np.exp(-3)),
+        ("gaussian", 1 - np.exp(-3)),
+    ],
 )
 def test_practical_range_along_each_axis(kind, share):
     m = _model(kind)

@@ -58,8 +58,21 @@ def test_fit_recovers_simulated_anisotropy(anisotropic_field):
     evs = []
     for axis, (az, pl) in enumerate(principal_directions(o)):
         lag = 4.0 if axis < 2 else 1.5
-        evs.append((experimental_variogram(pts, vals, lag=lag, n_lags=12, direction=(az, pl), angular_tolerance=15,
-                                           horizontal_bandwidth=6, vertical_bandwidth=4), axis))
+        evs.append(
+            (
+                experimental_variogram(
+                    pts,
+                    vals,
+                    lag=lag,
+                    n_lags=12,
+                    direction=(az, pl),
+                    angular_tolerance=15,
+                    horizontal_bandwidth=6,
+                    vertical_bandwidth=4,
+                ),
+                axis,
+            )
+        )
     m = fit_variogram(evs, ["spherical"], o)
     print("fitted ranges", m.structures[0].ranges)
     np.testing.assert_allclose(m.structures[0].ranges, (40, 20, 8), rtol=0.2)
@@ -74,8 +87,13 @@ def test_major_direction_found(anisotropic_field):
 
 def test_pairs_within_a_hole_only():
     pts = np.array([[0, 0, 0], [0, 0, -2.0], [0, 0, -4.0], [1, 0, 0], [1, 0, -2.0]])
-    ev = experimental_variogram(pts, np.array([1.0, 2, 3, 5, 7]), lag=2.0, n_lags=2,
-                                holes=np.array(["a", "a", "a", "b", "b"]))
+    ev = experimental_variogram(
+        pts,
+        np.array([1.0, 2, 3, 5, 7]),
+        lag=2.0,
+        n_lags=2,
+        holes=np.array(["a", "a", "a", "b", "b"]),
+    )
     # lag 1 (0, 2]: a: (1,2), (2,3); b: (5,7) -> 3 pairs; lag 2 (2, 4]: a: (1,3)
     assert list(ev.pairs) == [3, 1]
     assert ev.value[0] == pytest.approx((1 + 1 + 4) / 2 / 3)
@@ -90,5 +108,7 @@ def test_normal_scores_round_trip(rng):
 
 def test_correlogram_of_independent_values_is_near_one(rng):
     pts = rng.uniform(0, 100, size=(800, 3))
-    ev = experimental_variogram(pts, rng.normal(size=800), lag=10, n_lags=5, estimator="correlogram")
+    ev = experimental_variogram(
+        pts, rng.normal(size=800), lag=10, n_lags=5, estimator="correlogram"
+    )
     assert np.all(np.abs(ev.value - 1) < 0.1)

@@ -23,9 +23,20 @@ def grid_and_blocks(rng):
     ii, jj, kk = np.meshgrid(range(20), range(15), range(6), indexing="ij")
     flat = grid.flat_index(ii.ravel(), jj.ravel(), kk.ravel())
     c = grid.centres(flat)
-    b = pd.DataFrame({"x": c[:, 0], "y": c[:, 1], "z": c[:, 2], "i": ii.ravel(), "j": jj.ravel(), "k": kk.ravel(),
-                      "domain": "lode", "tonnes": 1000.0, "au": rng.lognormal(0, 0.6, size=len(flat)),
-                      "class": rng.choice(["Measured", "Indicated", "Inferred"], size=len(flat))})
+    b = pd.DataFrame(
+        {
+            "x": c[:, 0],
+            "y": c[:, 1],
+            "z": c[:, 2],
+            "i": ii.ravel(),
+            "j": jj.ravel(),
+            "k": kk.ravel(),
+            "domain": "lode",
+            "tonnes": 1000.0,
+            "au": rng.lognormal(0, 0.6, size=len(flat)),
+            "class": rng.choice(["Measured", "Indicated", "Inferred"], size=len(flat)),
+        }
+    )
     return grid, b
 
 
@@ -48,7 +59,10 @@ def test_plan_shows_values_of_its_level(grid_and_blocks, tmp_path):
     # image extent fills the axes: map (i, j) to pixel by the frame of the coloured region
     coloured = np.nonzero(np.abs(img - img[:, :, :1]).sum(axis=2) > 0.02)
     top, bottom = coloured[0].min(), coloured[0].max()
-    left, right = coloured[1].min(), np.percentile(coloured[1][coloured[1] < img.shape[1] * 0.75], 100)
+    left, right = (
+        coloured[1].min(),
+        np.percentile(coloured[1][coloured[1] < img.shape[1] * 0.75], 100),
+    )
     px = int(left + (10.5 / 20) * (right - left))
     py = int(bottom - (7.5 / 15) * (bottom - top))
     assert np.abs(img[py, px] - expected).max() < 0.05
