@@ -39,6 +39,85 @@ def _structured_cov(dx, dy, dz, kinds, sills, mats):
     return total
 
 
+@njit(cache=_CACHE, inline="always")
+def _correlation(kind, r2):
+    """Correlation of one structure at squared reduced distance r2 (practical range 1)."""
+    if kind == 0:
+        if r2 < 1.0:
+            r = np.sqrt(r2)
+            return 1.0 - r * (1.5 - 0.5 * r2)
+        return 0.0
+    if kind == 1:
+        return np.exp(-3.0 * np.sqrt(r2))
+    if kind == 2:
+        return np.exp(-3.0 * r2)
+    if r2 < 1.0:
+        r = np.sqrt(r2)
+        return 1.0 - r2 * (7.0 - r * (8.75 - r2 * (3.5 - 0.75 * r2)))
+    return 0.0
+
+
+def reduced(points, mats):
+    """Points in each structure's reduced frame: (s, n, 3), written element-wise so every row
+    gets the same arithmetic whatever the batch."""
+    out = np.empty((mats.shape[0], points.shape[0], 3))
+    for s in range(mats.shape[0]):
+        for r in range(3):
+            out[s, :, r] = (
+                points[:, 0] * mats[s, r, 0]
+                + points[:, 1] * mats[s, r, 1]
+                + points[:, 2] * mats[s, r, 2]
+            )
+    return out
+
+
+@njit(cache=_CACHE, inline="always")
+def _mean_correlation(kind, px, py, pz, ox, oy, oz):
+    """Mean correlation between one reduced point (px, py, pz) and every discretisation
+    offset (ox, oy, oz: (d,) each). Branch-free per kind, four partial sums in a fixed order,
+    so the compiler can vectorise it while every call does the same arithmetic."""
+    d = ox.shape[0]
+    s0 = 0.0
+    s1 = 0.0
+    s2 = 0.0
+    s3 = 0.0
+    top = d - d % 4
+    for o in range(0, d, 4):
+        if o >= top:
+            break
+        for lane in range(4):
+            dx = px - ox[o + lane]
+            dy = py - oy[o + lane]
+            dz = pz - oz[o + lane]
+            r2 = dx * dx + dy * dy + dz * dz
+            if kind == 0:
+                r2c = min(r2, 1.0)
+                r = np.sqrt(r2c)
+                c = 1.0 - r * (1.5 - 0.5 * r2c)
+            elif kind == 1:
+                c = np.exp(-3.0 * np.sqrt(r2))
+            elif kind == 2:
+                c = np.exp(-3.0 * r2)
+            else:
+                r2c = min(r2, 1.0)
+                r = np.sqrt(r2c)
+                c = 1.0 - r2c * (7.0 - r * (8.75 - r2c * (3.5 - 0.75 * r2c)))
+            if lane == 0:
+                s0 += c
+            elif lane == 1:
+                s1 += c
+            elif lane == 2:
+                s2 += c
+            else:
+                s3 += c
+    for o in range(top, d):
+        dx = px - ox[o]
+        dy = py - oy[o]
+        dz = pz - oz[o]
+        s0 += _correlation(kind, dx * dx + dy * dy + dz * dz)
+    return ((s0 + s1) + (s2 + s3)) / d
+
+
 @njit(cache=_CACHE)
 def mean_block_covariance(offsets, kinds, sills, mats):
     """Mean structured covariance between all pairs of discretisation offsets, C(V, V)."""
@@ -58,65 +137,52 @@ def mean_block_covariance(offsets, kinds, sills, mats):
 
 
 @njit(cache=_CACHE)
-def _lu_factor(a, piv):
-    """In-place LU with partial pivoting; returns min |pivot| / max |pivot| (0 if singular)."""
+def _cholesky(a):
+    """In-place lower Cholesky factor of the leading block of ``a``; returns the ratio of the
+    smallest to the largest squared pivot (0 if not positive definite)."""
     n = a.shape[0]
     pmin = np.inf
     pmax = 0.0
-    for k in range(n):
-        p = k
-        best = abs(a[k, k])
-        for i in range(k + 1, n):
-            if abs(a[i, k]) > best:
-                best = abs(a[i, k])
-                p = i
-        piv[k] = p
-        if p != k:
-            for j in range(n):
-                tmp = a[k, j]
-                a[k, j] = a[p, j]
-                a[p, j] = tmp
-        pmin = min(pmin, best)
-        pmax = max(pmax, best)
-        if best == 0.0:
+    for j in range(n):
+        s = a[j, j]
+        for p in range(j):
+            s -= a[j, p] * a[j, p]
+        if not s > 0.0:
             return 0.0
-        inv = 1.0 / a[k, k]
-        for i in range(k + 1, n):
-            a[i, k] *= inv
-            f = a[i, k]
-            if f != 0.0:
-                for j in range(k + 1, n):
-                    a[i, j] -= f * a[k, j]
+        pmin = min(pmin, s)
+        pmax = max(pmax, s)
+        d = np.sqrt(s)
+        a[j, j] = d
+        inv = 1.0 / d
+        for i in range(j + 1, n):
+            t = a[i, j]
+            for p in range(j):
+                t -= a[i, p] * a[j, p]
+            a[i, j] = t * inv
     return pmin / pmax
 
 
-@njit(cache=_CACHE)
-def _lu_solve(lu, piv, b):
-    n = lu.shape[0]
-    for k in range(n):
-        p = piv[k]
-        if p != k:
-            tmp = b[k]
-            b[k] = b[p]
-            b[p] = tmp
+@njit(cache=_CACHE, inline="always")
+def _cholesky_solve(lower, b):
+    n = lower.shape[0]
     for i in range(n):
         s = b[i]
-        for j in range(i):
-            s -= lu[i, j] * b[j]
-        b[i] = s
+        for p in range(i):
+            s -= lower[i, p] * b[p]
+        b[i] = s / lower[i, i]
     for i in range(n - 1, -1, -1):
         s = b[i]
-        for j in range(i + 1, n):
-            s -= lu[i, j] * b[j]
-        b[i] = s / lu[i, i]
+        for p in range(i + 1, n):
+            s -= lower[p, i] * b[p]
+        b[i] = s / lower[i, i]
 
 
 @njit(cache=_CACHE, parallel=True)
 def krige_groups(
-    samples,
+    samples_r,
     values,
     targets,
-    offsets,
+    offsets_r,
     neighbours,
     counts,
     order,
@@ -142,11 +208,11 @@ def krige_groups(
 
     Parameters
     ----------
-    samples : (n, 3) float64, local metres
+    samples_r : (s, n, 3) float64, samples in each structure's reduced frame (:func:`reduced`)
     values : (n,) float64
     targets : (m, 3) float64, block centres or points, local metres
-    offsets : (d, 3) float64, discretisation offsets from the block centre (one zero row
-        for point support)
+    offsets_r : (s, 3, d) float64, discretisation offsets in each reduced frame, component
+        major (one zero offset for point support)
     neighbours : (m, k) int64, sample indices sorted ascending, padded at the end
     counts : (m,) int64, number of valid neighbours per target
     order : (m,) int64, targets ordered so that each group is contiguous
@@ -157,53 +223,91 @@ def krige_groups(
 
     Outputs (written in place, indexed by target): estimate, variance, slope, lagrange,
     negative_weights (sum of negative weights), weight_sum, ill_conditioned (bool).
+
+    Notes
+    -----
+    Covariances are evaluated in each structure's reduced frame, where the structure is
+    isotropic with range 1, so each separation costs three subtractions and a square sum.
     """
     n_groups = group_starts.shape[0] - 1
-    n_off = offsets.shape[0]
+    n_struct = kinds.shape[0]
+    c0 = 0.0
+    for st in range(n_struct):
+        c0 += sills[st]
     for g in prange(n_groups):
         first = order[group_starts[g]]
         k = counts[first]
-        size = k if simple else k + 1
-        a = np.zeros((size, size))
-        piv = np.zeros(size, dtype=np.int64)
+        a = np.zeros((k, k))
         idx = neighbours[first, :k]
         for i in range(k):
-            xi = samples[idx[i]]
-            a[i, i] = nugget + _structured_cov(0.0, 0.0, 0.0, kinds, sills, mats)
-            for j in range(i + 1, k):
-                xj = samples[idx[j]]
-                c = _structured_cov(xi[0] - xj[0], xi[1] - xj[1], xi[2] - xj[2], kinds, sills, mats)
+            a[i, i] = nugget + c0
+            for j in range(i):
+                c = 0.0
+                for st in range(n_struct):
+                    dx = samples_r[st, idx[i], 0] - samples_r[st, idx[j], 0]
+                    dy = samples_r[st, idx[i], 1] - samples_r[st, idx[j], 1]
+                    dz = samples_r[st, idx[i], 2] - samples_r[st, idx[j], 2]
+                    c += sills[st] * _correlation(kinds[st], dx * dx + dy * dy + dz * dz)
                 a[i, j] = c
-                a[j, i] = c
-            if not simple:
-                a[i, k] = 1.0
-                a[k, i] = 1.0
-        ratio = _lu_factor(a, piv)
-        rhs = np.empty(size)
-        cbar = np.empty(k)
+        # C = L L' once per group. Ordinary kriging by the Schur complement of the bordered
+        # system: C u = cbar, C v = 1, mu = (1'u - 1) / 1'v, lambda = u - mu v.
+        ratio = _cholesky(a)
+        v = np.ones(k)
+        sum_v = 0.0
+        if ratio > 0.0:
+            _cholesky_solve(a, v)
+            for i in range(k):
+                sum_v += v[i]
+        rhs = np.empty(k)
+        cbar = np.zeros(k)
+        tr = np.empty((n_struct, 3))
         for t in range(group_starts[g], group_starts[g + 1]):
             b = order[t]
-            cx = targets[b, 0]
-            cy = targets[b, 1]
-            cz = targets[b, 2]
+            for st in range(n_struct):
+                for r in range(3):
+                    tr[st, r] = (
+                        mats[st, r, 0] * targets[b, 0]
+                        + mats[st, r, 1] * targets[b, 1]
+                        + mats[st, r, 2] * targets[b, 2]
+                    )
             for i in range(k):
-                xi = samples[idx[i]]
+                s_i = idx[i]
                 acc = 0.0
-                for o in range(n_off):
-                    dx = xi[0] - cx - offsets[o, 0]
-                    dy = xi[1] - cy - offsets[o, 1]
-                    dz = xi[2] - cz - offsets[o, 2]
-                    acc += _structured_cov(dx, dy, dz, kinds, sills, mats)
-                    if point_support and dx == 0.0 and dy == 0.0 and dz == 0.0:
-                        acc += nugget
-                cbar[i] = acc / n_off
+                for st in range(n_struct):
+                    acc += sills[st] * _mean_correlation(
+                        kinds[st],
+                        samples_r[st, s_i, 0] - tr[st, 0],
+                        samples_r[st, s_i, 1] - tr[st, 1],
+                        samples_r[st, s_i, 2] - tr[st, 2],
+                        offsets_r[st, 0],
+                        offsets_r[st, 1],
+                        offsets_r[st, 2],
+                    )
+                cbar[i] = acc
+                if point_support:
+                    at_target = True
+                    for st in range(n_struct):
+                        if (
+                            samples_r[st, s_i, 0] != tr[st, 0]
+                            or samples_r[st, s_i, 1] != tr[st, 1]
+                            or samples_r[st, s_i, 2] != tr[st, 2]
+                        ):
+                            at_target = False
+                    if at_target:
+                        cbar[i] += nugget
                 rhs[i] = cbar[i]
-            if not simple:
-                rhs[k] = 1.0
             ill_conditioned[b] = ratio < condition_limit
             if ratio == 0.0:
                 continue
-            _lu_solve(a, piv, rhs)
+            _cholesky_solve(a, rhs)
+            mu = 0.0
+            if not simple:
+                sum_u = 0.0
+                for i in range(k):
+                    sum_u += rhs[i]
+                mu = (sum_u - 1.0) / sum_v
+                for i in range(k):
+                    rhs[i] -= mu * v[i]
             est = 0.0
             lc = 0.0
             wsum = 0.0
@@ -218,11 +322,8 @@ def krige_groups(
                     est += w * (values[idx[i]] - mean)
                 else:
                     est += w * values[idx[i]]
-            mu = 0.0
             if simple:
                 est += mean
-            else:
-                mu = rhs[k]
             estimate[b] = est
             variance[b] = cvv - lc - mu
             # lambda' C lambda = lambda' cbar - mu * sum(lambda); sum(lambda) = 1 for OK
@@ -300,3 +401,91 @@ def select_neighbours(
         octants_filled[t] = filled
         for c in range(used, max_samples):
             out[t, c] = n
+
+
+@njit(cache=_CACHE)
+def group_rows(rows):
+    """Order rows so that identical rows are contiguous; returns (order, group starts).
+
+    Rows are hashed (FNV-1a over their entries) and sorted by hash; a group ends wherever a
+    row differs from the one before, so a hash collision can only split a group, never merge
+    different rows.
+    """
+    m, k = rows.shape
+    h = np.empty(m, dtype=np.uint64)
+    prime = np.uint64(1099511628211)
+    for t in range(m):
+        x = np.uint64(14695981039346656037)
+        for c in range(k):
+            x = (x ^ np.uint64(rows[t, c])) * prime
+        h[t] = x
+    order = np.argsort(h, kind="mergesort").astype(np.int64)
+    starts = np.empty(m + 1, dtype=np.int64)
+    n = 0
+    for p in range(m):
+        new = p == 0
+        if not new:
+            a, b = order[p - 1], order[p]
+            for c in range(k):
+                if rows[a, c] != rows[b, c]:
+                    new = True
+                    break
+        if new:
+            starts[n] = p
+            n += 1
+    starts[n] = m
+    return order, starts[: n + 1].copy()
+
+
+@njit(cache=_CACHE, parallel=True)
+def summarise_neighbours(
+    index,
+    count,
+    distance,
+    samples,
+    targets,
+    values,
+    hole_codes,
+    power,
+    n_holes,
+    mean_distance,
+    nearest,
+    inverse_distance,
+):
+    """Per target: distinct holes, mean Euclidean distance (metres), nearest sample value and
+    inverse-distance estimate (anisotropic distance to the given power).
+
+    ``index`` and ``distance`` are ordered by increasing anisotropic distance.
+    """
+    m = index.shape[0]
+    for t in prange(m):
+        k = count[t]
+        holes = np.empty(k, dtype=np.int64)
+        dsum = 0.0
+        wsum = 0.0
+        vsum = 0.0
+        exact = -1
+        for i in range(k):
+            s = index[t, i]
+            holes[i] = hole_codes[s]
+            dx = samples[s, 0] - targets[t, 0]
+            dy = samples[s, 1] - targets[t, 1]
+            dz = samples[s, 2] - targets[t, 2]
+            dsum += np.sqrt(dx * dx + dy * dy + dz * dz)
+            d = distance[t, i]
+            if d <= 1e-12:
+                if exact < 0:
+                    exact = s
+            else:
+                w = 1.0 / d**power
+                wsum += w
+                vsum += w * values[s]
+        holes.sort()
+        distinct = 0
+        for i in range(k):
+            if i == 0 or holes[i] != holes[i - 1]:
+                distinct += 1
+        n_holes[t] = distinct
+        mean_distance[t] = dsum / k
+        nearest[t] = values[index[t, 0]]
+        inverse_distance[t] = values[exact] if exact >= 0 else vsum / wsum

@@ -79,6 +79,9 @@ def _parser() -> argparse.ArgumentParser:
     b = sub.add_parser("bench", help="speed and memory benchmark, figures measured side by side")
     b.add_argument("--blocks", type=int, default=200_000, help="blocks to estimate")
     b.add_argument("--quick", action="store_true", help="smaller sizes for a fast look")
+    b.add_argument(
+        "--scale", action="store_true", help="also estimate a 10,000,000-block model (minutes)"
+    )
 
     d = sub.add_parser("make-demo", help="regenerate the invented demo deposit's data files")
     d.add_argument("folder", type=Path)
@@ -137,7 +140,7 @@ def main(argv: list[str] | None = None) -> int:
         if args.command == "bench":
             from .bench import main as bench
 
-            bench(blocks=args.blocks, quick=args.quick)
+            bench(blocks=args.blocks, quick=args.quick, scale=args.scale)
             return 0
         if args.command == "make-demo":
             from .demo import write_demo

@@ -38,7 +38,9 @@ class EstimationJob:
     power: float = 2.0
 
 
-def _chunk(job: EstimationJob, targets: np.ndarray) -> dict[str, np.ndarray]:
+def _chunk(
+    job: EstimationJob, targets: np.ndarray, timings: dict | None = None
+) -> dict[str, np.ndarray]:
     out = estimate(
         job.samples,
         job.values,
@@ -52,6 +54,7 @@ def _chunk(job: EstimationJob, targets: np.ndarray) -> dict[str, np.ndarray]:
         hole_ids=job.hole_ids,
         power=job.power,
         chunk_size=max(len(targets), 1),
+        timings=timings,
     )
     out.pop("merged_duplicates")
     return out

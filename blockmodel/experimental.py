@@ -46,17 +46,21 @@ def direction_vector(azimuth: float, plunge: float) -> np.ndarray:
     return np.array([np.sin(az) * np.cos(pl), np.cos(az) * np.cos(pl), -np.sin(pl)])
 
 
-def _pairs(points, max_distance, chunk, same_group=None):
+def _pairs(points, max_distance, pair_budget, same_group=None):
+    """Yield index arrays (i, j), i < j, of pairs closer than ``max_distance``, in chunks of
+    samples sized so each chunk holds about ``pair_budget`` pairs (memory stays bounded)."""
     tree = cKDTree(points)
     n = len(points)
+    # pairs per sample, from a sample of up to 2,000 points, sets the chunk size
+    probe = np.linspace(0, n - 1, min(n, 2000)).astype(np.int64)
+    per_point = float(np.mean(tree.query_ball_point(points[probe], max_distance, return_length=True)))
+    chunk = int(np.clip(pair_budget / max(per_point, 1.0), 16, n))
     for start in range(0, n, chunk):
         rows = np.arange(start, min(n, start + chunk))
-        lists = tree.query_ball_point(points[rows], max_distance)
-        lengths = np.fromiter((len(x) for x in lists), dtype=np.int64, count=len(rows))
-        if lengths.sum() == 0:
-            continue
-        i = np.repeat(rows, lengths)
-        j = np.concatenate([np.asarray(x, dtype=np.int64) for x in lists])
+        sub = cKDTree(points[rows])
+        found = sub.sparse_distance_matrix(tree, max_distance, output_type="ndarray")
+        i = rows[found["i"]]
+        j = found["j"].astype(np.int64)
         keep = j > i
         if same_group is not None:
             keep &= same_group[i] == same_group[j]
@@ -77,7 +81,7 @@ def experimental_variogram(
     estimator: str = "semivariogram",
     weights: np.ndarray | None = None,
     holes: np.ndarray | None = None,
-    chunk: int = 4096,
+    pair_budget: int = 2_000_000,
     label: str = "",
 ) -> ExperimentalVariogram:
     """Experimental variogram of values at points.
@@ -102,8 +106,8 @@ def experimental_variogram(
         Declustering weights; a pair weighs ``w_i w_j``.
     holes : (n,) array, optional
         When given, only pairs within one hole are used (downhole variogram).
-    chunk : int
-        Samples per KD-tree query batch; bounds memory.
+    pair_budget : int
+        Pairs handled at once (before the direction test); bounds memory.
 
     Returns
     -------
@@ -126,7 +130,7 @@ def experimental_variogram(
         e_v = np.cross(e_h, u)
         cos_tol = np.cos(np.radians(angular_tolerance))
     sums = {k: np.zeros(nb) for k in ("w", "d", "g", "h", "t", "hh", "tt", "ht", "n")}
-    for i, j in _pairs(points, edges[-1], chunk, group):
+    for i, j in _pairs(points, edges[-1], pair_budget, group):
         h = points[j] - points[i]
         d = np.linalg.norm(h, axis=1)
         ok = d > 0

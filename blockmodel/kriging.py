@@ -7,6 +7,7 @@ The numerical work is done by :func:`estimate`, which takes and returns plain ar
 
 from __future__ import annotations
 
+import time
 from collections.abc import Sequence
 from typing import TYPE_CHECKING
 
@@ -44,6 +45,13 @@ COLUMNS = (
 
 # A system whose smallest LU pivot is this small relative to the largest is flagged.
 _CONDITION_LIMIT = 1e-12
+
+
+def _lap(timings: dict[str, float] | None, key: str, since: float) -> float:
+    now = time.perf_counter()
+    if timings is not None:
+        timings[key] = timings.get(key, 0.0) + now - since
+    return now
 
 
 def discretisation_offsets(
@@ -100,15 +108,6 @@ def _merge_duplicates(
     return points[keep], merged_values, holes[keep], int(len(points) - len(keep))
 
 
-def _group_rows(index: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Order targets so that rows with identical sorted neighbour sets are contiguous."""
-    _, inverse = np.unique(index, axis=0, return_inverse=True)
-    inverse = inverse.ravel()
-    order = np.argsort(inverse, kind="stable").astype(np.int64)
-    starts = np.concatenate([[0], np.cumsum(np.bincount(inverse))]).astype(np.int64)
-    return order, starts
-
-
 def estimate(
     samples: np.ndarray,
     values: np.ndarray,
@@ -124,11 +123,14 @@ def estimate(
     power: float = 2.0,
     chunk_size: int = 20_000,
     skip_coincident: bool = False,
+    timings: dict[str, float] | None = None,
 ) -> dict[str, np.ndarray]:
     """Estimate at targets; arrays in, arrays out. See :func:`krige` for the parameters.
 
     skip_coincident : bool
         Never use a sample at the target's location (leave-one-out cross-validation).
+    timings : dict, optional
+        Seconds spent are added to its ``search`` and ``kriging`` entries.
 
     Returns
     -------
@@ -191,6 +193,8 @@ def estimate(
             if point_support
             else float(_kernels.mean_block_covariance(offsets, kinds, sills, mats))
         )
+        samples_r = _kernels.reduced(local, mats)
+        offsets_r = np.ascontiguousarray(_kernels.reduced(offsets, mats).transpose(0, 2, 1))
 
     remaining = np.arange(m)
     for number, s in enumerate(passes, start=1):
@@ -201,46 +205,52 @@ def estimate(
         not_found = []
         for start in range(0, len(remaining), chunk_size):
             rows = remaining[start : start + chunk_size]
+            clock = time.perf_counter()
             nb = find_neighbours(
                 tree, samples_t, local_targets[rows], s, hole_codes, skip_coincident=skip_coincident
             )
+            clock = _lap(timings, "search", clock)
             not_found.append(rows[~nb.found])
             sel = np.flatnonzero(nb.found)
             if len(sel) == 0:
                 continue
             tgt = rows[sel]
             idx, cnt, dist = nb.index[sel], nb.count[sel], nb.distance[sel]
-            n = len(local)
-            valid = idx < n
-            safe = np.where(valid, idx, 0)
             out["search_pass"][tgt] = number
             out["n_samples"][tgt] = cnt
-            holes = np.where(valid, hole_codes[safe], -1)
-            holes.sort(axis=1)
-            changes = (np.diff(holes, axis=1) != 0) & (holes[:, 1:] >= 0)
-            out["n_holes"][tgt] = changes.sum(axis=1) + (holes[:, 0] >= 0)
-            euclid = np.linalg.norm(local[safe] - local_targets[tgt][:, None, :], axis=2)
-            out["mean_distance"][tgt] = np.where(valid, euclid, 0.0).sum(axis=1) / cnt
-            # Validation estimators in the search's anisotropic distance.
-            out["nearest"][tgt] = values[safe[:, 0]]
-            vals = np.where(valid, values[safe], 0.0)
-            exact = dist[:, 0] <= 1e-12
-            with np.errstate(divide="ignore"):
-                w = np.where(valid, 1.0 / np.maximum(dist, 1e-12) ** power, 0.0)
-            idw = (w * vals).sum(axis=1) / w.sum(axis=1)
-            out["inverse_distance"][tgt] = np.where(exact, vals[:, 0], idw)
+            summary = {
+                c: np.empty(len(tgt)) for c in ("mean_distance", "nearest", "inverse_distance")
+            }
+            holes_found = np.empty(len(tgt), dtype=np.int64)
+            _kernels.summarise_neighbours(
+                idx,
+                cnt.astype(np.int64),
+                dist,
+                local,
+                np.ascontiguousarray(local_targets[tgt]),
+                values,
+                hole_codes,
+                float(power),
+                holes_found,
+                summary["mean_distance"],
+                summary["nearest"],
+                summary["inverse_distance"],
+            )
+            out["n_holes"][tgt] = holes_found
+            for c, v in summary.items():
+                out[c][tgt] = v
             if not kriging:
                 out["estimate"][tgt] = out[method][tgt]
                 continue
             canonical = np.sort(idx, axis=1)
-            order, starts = _group_rows(canonical)
+            order, starts = _kernels.group_rows(canonical)
             res = {c: np.full(len(tgt), np.nan) for c in ("est", "var", "slope", "mu", "neg", "ws")}
             flag = np.zeros(len(tgt), dtype=bool)
             _kernels.krige_groups(
-                local,
+                samples_r,
                 values,
                 np.ascontiguousarray(local_targets[tgt]),
-                offsets,
+                offsets_r,
                 canonical,
                 cnt.astype(np.int64),
                 order,
@@ -270,6 +280,7 @@ def estimate(
             out["negative_weights"][tgt] = res["neg"]
             out["weight_sum"][tgt] = res["ws"]
             out["ill_conditioned"][tgt] = flag
+            _lap(timings, "kriging", clock)
         remaining = np.concatenate(not_found) if not_found else remaining[:0]
     return out
 

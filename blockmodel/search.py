@@ -150,7 +150,7 @@ def find_neighbours(
     limited = search.has_limits
     q = min(n, kmax * candidate_factor) if limited else kmax
     extra = 1 if skip_coincident and q < n else 0
-    dist, idx = tree.query(targets_t, k=q + extra, distance_upper_bound=1.0 + 1e-12)
+    dist, idx = tree.query(targets_t, k=q + extra, distance_upper_bound=1.0 + 1e-12, workers=-1)
     dist = np.asarray(dist).reshape(len(targets), q + extra)
     idx = np.asarray(idx, dtype=np.int64).reshape(len(targets), q + extra)
     if skip_coincident:
