@@ -110,7 +110,8 @@ def read_table(path: Path, required: dict[str, str]) -> pd.DataFrame:
                 for meaning, col in absent
             ]
         )
-    body = [r for r in rows[1:]]
+    body = rows[1:]
+    hole_at = header.index(required["hole id"]) if "hole id" in required else None
     lines = []
     records = []
     for i, r in enumerate(body, start=2):

@@ -73,3 +73,76 @@ def small_project(tmp_path):
     path = tmp_path / "project.toml"
     path.write_text(SMALL_PROJECT)
     return path
+
+
+def box_surface(lo, hi):
+    """A closed box as a triangulated surface (12 triangles)."""
+    from blockmodel.solids import Surface
+
+    x0, y0, z0 = lo
+    x1, y1, z1 = hi
+    v = np.array([[x0, y0, z0], [x1, y0, z0], [x1, y1, z0], [x0, y1, z0],
+                  [x0, y0, z1], [x1, y0, z1], [x1, y1, z1], [x0, y1, z1]], float)
+    t = np.array([[0, 2, 1], [0, 3, 2], [4, 5, 6], [4, 6, 7], [0, 1, 5], [0, 5, 4],
+                  [1, 2, 6], [1, 6, 5], [2, 3, 7], [2, 7, 6], [3, 0, 4], [3, 4, 7]])
+    return Surface(v, t)
+
+
+BOX_PROJECT = """
+name = "box test project"
+
+[data]
+collars = "collars.csv"
+surveys = "surveys.csv"
+intervals = "assays.csv"
+grades = { cu = "%" }
+
+[[domains]]
+name = "ore"
+solid = "ore.ply"
+density = 2.8
+
+[variography]
+lag = 10.0
+lags = 8
+
+[[search]]
+ranges = [80.0, 80.0, 40.0]
+min_samples = 3
+max_samples = 16
+
+[grid]
+origin = [0.0, 0.0, 0.0]
+block_size = [10.0, 10.0, 10.0]
+shape = [10, 10, 10]
+
+[estimation]
+backend = "serial"
+
+[report]
+folder = "out"
+cutoffs = [0.0, 0.5, 1.0]
+"""
+
+
+@pytest.fixture
+def box_project(tmp_path):
+    """A small complete project: 16 vertical holes through a box of ore; returns its file."""
+    from blockmodel.solids import write_ply
+
+    rng = np.random.default_rng(7)
+    collars, surveys, assays = ["hole_id,x,y,z,depth"], ["hole_id,depth,azimuth,dip"], ["hole_id,from,to,cu,domain"]
+    for n, (x, y) in enumerate(rng.uniform(5, 95, size=(16, 2))):
+        hole = f"B{n:02d}"
+        collars.append(f"{hole},{x:.2f},{y:.2f},100,100")
+        surveys.append(f"{hole},0,0,-90")
+        for f in range(0, 100, 2):
+            dom = "ore" if 20 <= f < 80 else "waste"
+            grade = rng.lognormal(0, 0.5) if dom == "ore" else rng.lognormal(-3, 0.5)
+            assays.append(f"{hole},{f},{f + 2},{grade:.4f},{dom}")
+    for name, lines in (("collars.csv", collars), ("surveys.csv", surveys), ("assays.csv", assays)):
+        (tmp_path / name).write_text("\n".join(lines) + "\n")
+    write_ply(tmp_path / "ore.ply", box_surface((0, 0, 20), (100, 100, 80)))
+    path = tmp_path / "project.toml"
+    path.write_text(BOX_PROJECT)
+    return path

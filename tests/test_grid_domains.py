@@ -8,41 +8,7 @@ from blockmodel.domains import block_proportions
 from blockmodel.grid import BlockGrid
 from blockmodel.solids import Surface
 
-
-def _box(lo, hi) -> Surface:
-    """Closed box as 12 triangles."""
-    x0, y0, z0 = lo
-    x1, y1, z1 = hi
-    v = np.array(
-        [
-            [x0, y0, z0],
-            [x1, y0, z0],
-            [x1, y1, z0],
-            [x0, y1, z0],
-            [x0, y0, z1],
-            [x1, y0, z1],
-            [x1, y1, z1],
-            [x0, y1, z1],
-        ],
-        float,
-    )
-    t = np.array(
-        [
-            [0, 2, 1],
-            [0, 3, 2],
-            [4, 5, 6],
-            [4, 6, 7],
-            [0, 1, 5],
-            [0, 5, 4],
-            [1, 2, 6],
-            [1, 6, 5],
-            [2, 3, 7],
-            [2, 7, 6],
-            [3, 0, 4],
-            [3, 4, 7],
-        ]
-    )
-    return Surface(v, t)
+from .conftest import box_surface
 
 
 def _tilted_slab(normal, offset, size=1000.0) -> Surface:
@@ -97,13 +63,13 @@ def test_unit_cube_inside_one_block():
     # 1 m cube in a 10 m block: 1/1000 of it. Resolution of (20, 20, 20) sub-cells is
     # 0.5 m, which the cube's faces are aligned with, so the answer is exact.
     g = BlockGrid((0.0, 0.0, 0.0), (10.0, 10.0, 10.0), (2, 1, 1))
-    prop = block_proportions(g, [_box((3.0, 3.0, 3.0), (4.0, 4.0, 4.0))], subcells=(20, 20, 20))
+    prop = block_proportions(g, [box_surface((3.0, 3.0, 3.0), (4.0, 4.0, 4.0))], subcells=(20, 20, 20))
     assert prop[0, 0] == pytest.approx(1e-3, abs=1e-12) and prop[1, 0] == 0
 
 
 def test_priority_and_topography():
     g = BlockGrid((0.0, 0.0, 0.0), (10.0, 10.0, 10.0), (1, 1, 2))
-    inner, outer = _box((0, 0, 0), (10, 10, 5)), _box((0, 0, 0), (10, 10, 20))
+    inner, outer = box_surface((0, 0, 0), (10, 10, 5)), box_surface((0, 0, 0), (10, 10, 20))
     topo = Surface(
         np.array([[-50, -50, 15.0], [50, -50, 15.0], [50, 50, 15.0], [-50, 50, 15.0]]),
         np.array([[0, 1, 2], [0, 2, 3]]),
