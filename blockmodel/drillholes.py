@@ -118,9 +118,9 @@ def read_table(path: Path, required: dict[str, str]) -> pd.DataFrame:
         if not any(c.strip() for c in r):
             continue
         if len(r) != len(header):
-            raise InputError(
-                [Problem(name, i, None, None, f"row has {len(r)} fields, header has {len(header)}")]
-            )
+            hole = r[hole_at].strip() if hole_at is not None and hole_at < len(r) else None
+            message = f"row has {len(r)} fields, header has {len(header)}"
+            raise InputError([Problem(name, i, hole, None, message)])
         records.append([c.strip() for c in r])
         lines.append(i)
     if not records:

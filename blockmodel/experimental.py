@@ -53,7 +53,9 @@ def _pairs(points, max_distance, pair_budget, same_group=None):
     n = len(points)
     # pairs per sample, from a sample of up to 2,000 points, sets the chunk size
     probe = np.linspace(0, n - 1, min(n, 2000)).astype(np.int64)
-    per_point = float(np.mean(tree.query_ball_point(points[probe], max_distance, return_length=True)))
+    per_point = float(
+        np.mean(tree.query_ball_point(points[probe], max_distance, return_length=True))
+    )
     chunk = int(np.clip(pair_budget / max(per_point, 1.0), 16, n))
     for start in range(0, n, chunk):
         rows = np.arange(start, min(n, start + chunk))

@@ -50,9 +50,20 @@ class StagedFolder:
     def __init__(self, target: Path):
         self.target = Path(target).resolve()
         self.target.parent.mkdir(parents=True, exist_ok=True)
-        self.path = Path(
-            tempfile.mkdtemp(prefix=f".{self.target.name}.partial-", dir=self.target.parent)
-        )
+        self._remove_stale()
+        prefix = f".{self.target.name}.partial-{os.getpid()}-"
+        self.path = Path(tempfile.mkdtemp(prefix=prefix, dir=self.target.parent))
+
+    def _remove_stale(self) -> None:
+        """Remove staging folders left by runs that were killed (their process is gone)."""
+        for kind in ("partial", "old"):
+            for folder in self.target.parent.glob(f".{self.target.name}.{kind}-*"):
+                try:
+                    pid = int(folder.name.rsplit(f".{kind}-", 1)[1].split("-")[0])
+                except ValueError:
+                    continue
+                if pid != os.getpid() and not _alive(pid):
+                    shutil.rmtree(folder, ignore_errors=True)
 
     def commit(self) -> None:
         old = None
@@ -65,6 +76,16 @@ class StagedFolder:
 
     def discard(self) -> None:
         shutil.rmtree(self.path, ignore_errors=True)
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
 
 
 def atomic_path(path: Path) -> Path:

@@ -206,10 +206,19 @@ def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]
                 try:
                     azimuth, _ = find_azimuth(pts, vals, lag=v.lag, n_lags=v.lags)
                 except ValueError as exc:
-                    raise InputError([Problem(str(project.source), None, None, "variography.orientation",
-                                              f"cannot find the direction of continuity for {key} ({exc}); "
-                                              f"give variography.orientation or a model in "
-                                              f"[variogram.{d.name}.{g}]")]) from None
+                    raise InputError(
+                        [
+                            Problem(
+                                str(project.source),
+                                None,
+                                None,
+                                "variography.orientation",
+                                f"cannot find the direction of continuity for {key} ({exc}); "
+                                f"give variography.orientation or a model in "
+                                f"[variogram.{d.name}.{g}]",
+                            )
+                        ]
+                    ) from None
                 orient = Orientation(azimuth, 0.0, 0.0)
             res = Variography(d.name, g, orient)
             for axis, (az, pl) in enumerate(principal_directions(orient)):
@@ -240,10 +249,19 @@ def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]
                 label="downhole",
             )
             if model is None and (len(vals) < 2 or np.ptp(vals) == 0):
-                raise InputError([Problem(str(project.data.intervals), None, None, g,
-                                          f"{key}: {len(vals)} composite(s), all grades equal"
-                                          f"{f' ({vals[0]:g})' if len(vals) else ''}: no variogram can be "
-                                          f"fitted; give a model in [variogram.{d.name}.{g}]")])
+                raise InputError(
+                    [
+                        Problem(
+                            str(project.data.intervals),
+                            None,
+                            None,
+                            g,
+                            f"{key}: {len(vals)} composite(s), all grades equal"
+                            f"{f' ({vals[0]:g})' if len(vals) else ''}: no variogram can be "
+                            f"fitted; give a model in [variogram.{d.name}.{g}]",
+                        )
+                    ]
+                )
             if model is None:
                 try:
                     model = fit_variogram(

@@ -48,9 +48,10 @@ def grade_tonnage(
     Returns
     -------
     DataFrame
-        Columns ``domain, class, cutoff, tonnes, grade, metal, metal_unit`` (one row per
+        Columns ``domain, class, cutoff, tonnes, grade, metal, metal_unit, note`` (one row per
         metal unit), with ``all`` rows for totals over domains, classes or both.  Blocks
-        whose grade was not estimated are left out.
+        whose grade was not estimated are left out.  ``grade`` is empty only where no tonnes
+        lie above the cut-off, and ``note`` then says so.
     """
     g = table[grade].to_numpy(float)
     est = np.isfinite(g)
@@ -79,8 +80,8 @@ def grade_tonnage(
             tonnes = float(t[above].sum())
             gram_units = float(t[above] @ v[above])
             mean = gram_units / tonnes if tonnes > 0 else float("nan")
+            note = "" if tonnes > 0 else "no tonnes at or above this cut-off"
             for unit, factor in units:
-                rows.append((dom, cls, float(c), tonnes, mean, gram_units * factor, unit))
-    return pd.DataFrame(
-        rows, columns=["domain", "class", "cutoff", "tonnes", "grade", "metal", "metal_unit"]
-    )
+                rows.append((dom, cls, float(c), tonnes, mean, gram_units * factor, unit, note))
+    columns = ["domain", "class", "cutoff", "tonnes", "grade", "metal", "metal_unit", "note"]
+    return pd.DataFrame(rows, columns=columns)

@@ -211,12 +211,10 @@ def _grade_tonnage_outputs(
             "Tonnes and grade of estimated blocks at or above each cut-off, rounded for reading; "
             f"the CSV keeps full precision. Metal in {', '.join(gt['metal_unit'].unique())}."
         )
-        shown = gt.pivot_table(
-            index=["domain", "class", "cutoff", "tonnes", "grade"],
-            columns="metal_unit",
-            values="metal",
-            sort=False,
-        ).reset_index()
+        units = list(gt["metal_unit"].unique())
+        shown = gt[gt["metal_unit"] == units[0]].drop(columns=["metal_unit", "metal", "note"])
+        for u in units:  # one metal column per unit; rows come in the same order per unit
+            shown[u] = gt.loc[gt["metal_unit"] == u, "metal"].to_numpy()
         shown["tonnes"] = shown["tonnes"].round(-3)
         shown["grade"] = shown["grade"].round(2)
         for u in gt["metal_unit"].unique():

@@ -81,10 +81,35 @@ def box_surface(lo, hi):
 
     x0, y0, z0 = lo
     x1, y1, z1 = hi
-    v = np.array([[x0, y0, z0], [x1, y0, z0], [x1, y1, z0], [x0, y1, z0],
-                  [x0, y0, z1], [x1, y0, z1], [x1, y1, z1], [x0, y1, z1]], float)
-    t = np.array([[0, 2, 1], [0, 3, 2], [4, 5, 6], [4, 6, 7], [0, 1, 5], [0, 5, 4],
-                  [1, 2, 6], [1, 6, 5], [2, 3, 7], [2, 7, 6], [3, 0, 4], [3, 4, 7]])
+    v = np.array(
+        [
+            [x0, y0, z0],
+            [x1, y0, z0],
+            [x1, y1, z0],
+            [x0, y1, z0],
+            [x0, y0, z1],
+            [x1, y0, z1],
+            [x1, y1, z1],
+            [x0, y1, z1],
+        ],
+        float,
+    )
+    t = np.array(
+        [
+            [0, 2, 1],
+            [0, 3, 2],
+            [4, 5, 6],
+            [4, 6, 7],
+            [0, 1, 5],
+            [0, 5, 4],
+            [1, 2, 6],
+            [1, 6, 5],
+            [2, 3, 7],
+            [2, 7, 6],
+            [3, 0, 4],
+            [3, 4, 7],
+        ]
+    )
     return Surface(v, t)
 
 
@@ -131,7 +156,11 @@ def box_project(tmp_path):
     from blockmodel.solids import write_ply
 
     rng = np.random.default_rng(7)
-    collars, surveys, assays = ["hole_id,x,y,z,depth"], ["hole_id,depth,azimuth,dip"], ["hole_id,from,to,cu,domain"]
+    collars, surveys, assays = (
+        ["hole_id,x,y,z,depth"],
+        ["hole_id,depth,azimuth,dip"],
+        ["hole_id,from,to,cu,domain"],
+    )
     for n, (x, y) in enumerate(rng.uniform(5, 95, size=(16, 2))):
         hole = f"B{n:02d}"
         collars.append(f"{hole},{x:.2f},{y:.2f},100,100")

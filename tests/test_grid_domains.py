@@ -63,7 +63,9 @@ def test_unit_cube_inside_one_block():
     # 1 m cube in a 10 m block: 1/1000 of it. Resolution of (20, 20, 20) sub-cells is
     # 0.5 m, which the cube's faces are aligned with, so the answer is exact.
     g = BlockGrid((0.0, 0.0, 0.0), (10.0, 10.0, 10.0), (2, 1, 1))
-    prop = block_proportions(g, [box_surface((3.0, 3.0, 3.0), (4.0, 4.0, 4.0))], subcells=(20, 20, 20))
+    prop = block_proportions(
+        g, [box_surface((3.0, 3.0, 3.0), (4.0, 4.0, 4.0))], subcells=(20, 20, 20)
+    )
     assert prop[0, 0] == pytest.approx(1e-3, abs=1e-12) and prop[1, 0] == 0
 
 

@@ -24,26 +24,89 @@ def _set_assays(folder, transform):
 def _faults():
     p, c, s, a = "project.toml", "collars.csv", "surveys.csv", "assays.csv"
     return [
-        ("unknown key", (p, "[estimation]", "[estimation]\nbakend = 'serial'"), 2, ["bakend", "did you mean 'backend'"]),
+        (
+            "unknown key",
+            (p, "[estimation]", "[estimation]\nbakend = 'serial'"),
+            2,
+            ["bakend", "did you mean 'backend'"],
+        ),
         ("wrong type", (p, "lags = 8", "lags = 'eight'"), 2, ["variography.lags"]),
-        ("missing file", (p, 'solid = "ore.ply"', 'solid = "nothere.ply"'), 2, ["domains.ore.solid", "not found"]),
-        ("negative block size", (p, "block_size = [10.0, 10.0, 10.0]", "block_size = [10.0, -10.0, 10.0]"), 2, ["grid.block_size"]),
+        (
+            "missing file",
+            (p, 'solid = "ore.ply"', 'solid = "nothere.ply"'),
+            2,
+            ["domains.ore.solid", "not found"],
+        ),
+        (
+            "negative block size",
+            (p, "block_size = [10.0, 10.0, 10.0]", "block_size = [10.0, -10.0, 10.0]"),
+            2,
+            ["grid.block_size"],
+        ),
         ("zero lag", (p, "lag = 10.0", "lag = 0.0"), 2, ["variography.lag"]),
-        ("zero search range", (p, "ranges = [80.0, 80.0, 40.0]", "ranges = [80.0, 0.0, 40.0]"), 2, ["search[0].ranges"]),
-        ("unsorted cut-offs", (p, "cutoffs = [0.0, 0.5, 1.0]", "cutoffs = [0.0, 1.0, 0.5]"), 2, ["report.cutoffs"]),
-        ("zero variogram range", (p, "[[search]]", "[variogram.ore.cu]\nnugget = 0.1\n[[variogram.ore.cu.structures]]\n"
-                                  "kind = 'spherical'\nsill = 0.5\nranges = [50.0, 0.0, 10.0]\n\n[[search]]"), 2,
-         ["variogram.ore.cu.structures[0].ranges"]),
-        ("min above max samples", (p, "min_samples = 3", "min_samples = 30"), 2, ["search[0]", "min_samples"]),
+        (
+            "zero search range",
+            (p, "ranges = [80.0, 80.0, 40.0]", "ranges = [80.0, 0.0, 40.0]"),
+            2,
+            ["search[0].ranges"],
+        ),
+        (
+            "unsorted cut-offs",
+            (p, "cutoffs = [0.0, 0.5, 1.0]", "cutoffs = [0.0, 1.0, 0.5]"),
+            2,
+            ["report.cutoffs"],
+        ),
+        (
+            "zero variogram range",
+            (
+                p,
+                "[[search]]",
+                "[variogram.ore.cu]\nnugget = 0.1\n[[variogram.ore.cu.structures]]\n"
+                "kind = 'spherical'\nsill = 0.5\nranges = [50.0, 0.0, 10.0]\n\n[[search]]",
+            ),
+            2,
+            ["variogram.ore.cu.structures[0].ranges"],
+        ),
+        (
+            "min above max samples",
+            (p, "min_samples = 3", "min_samples = 30"),
+            2,
+            ["search[0]", "min_samples"],
+        ),
         ("unknown grade unit", (p, 'cu = "%"', 'cu = "lb/t"'), 2, ["data.grades.cu"]),
         ("duplicate collar", (c, "B01,", "B00,"), 2, ["collars.csv", "B00", "duplicate collar"]),
-        ("interval without collar", (a, "B03,0,2", "Q99,0,2"), 2, ["assays.csv", "Q99", "no collar"]),
-        ("survey without collar", (s, "B03,0,0,-90", "Q98,0,0,-90\nB03,0,0,-90"), 2, ["surveys.csv", "Q98"]),
-        ("from not below to", (a, "B02,10,12", "B02,12,12"), 2, ["assays.csv", "B02", "not less than"]),
+        (
+            "interval without collar",
+            (a, "B03,0,2", "Q99,0,2"),
+            2,
+            ["assays.csv", "Q99", "no collar"],
+        ),
+        (
+            "survey without collar",
+            (s, "B03,0,0,-90", "Q98,0,0,-90\nB03,0,0,-90"),
+            2,
+            ["surveys.csv", "Q98"],
+        ),
+        (
+            "from not below to",
+            (a, "B02,10,12", "B02,12,12"),
+            2,
+            ["assays.csv", "B02", "not less than"],
+        ),
         ("overlap", (a, "B02,10,12", "B02,9,12"), 2, ["B02", "overlaps"]),
         ("past the depth", (a, "B02,98,100", "B02,98,104"), 2, ["B02", "past the hole depth"]),
-        ("surveys unsorted", (s, "B04,0,0,-90", "B04,0,0,-90\nB04,50,0,-89\nB04,20,0,-89"), 2, ["B04", "increasing"]),
-        ("survey depth twice", (s, "B04,0,0,-90", "B04,0,0,-90\nB04,0,0,-89"), 2, ["B04", "duplicated survey depth"]),
+        (
+            "surveys unsorted",
+            (s, "B04,0,0,-90", "B04,0,0,-90\nB04,50,0,-89\nB04,20,0,-89"),
+            2,
+            ["B04", "increasing"],
+        ),
+        (
+            "survey depth twice",
+            (s, "B04,0,0,-90", "B04,0,0,-90\nB04,0,0,-89"),
+            2,
+            ["B04", "duplicated survey depth"],
+        ),
         ("azimuth 400", (s, "B05,0,0,-90", "B05,0,400,-90"), 2, ["B05", "azimuth"]),
         ("dip 100", (s, "B05,0,0,-90", "B05,0,0,-100"), 2, ["B05", "dip"]),
         ("text grade", (a, "B06,30,32,", "B06,30,32,abc"), 2, ["B06", "not a number"]),
@@ -76,8 +139,13 @@ def test_fault(box_project, capsys, label, edit, status, words):
             _set_assays(box_project.parent, change)
     elif new.endswith("REMOVE"):  # blank the x coordinate of that collar
         f = box_project.parent / name
-        f.write_text("\n".join(",".join([x.split(",")[0], "", *x.split(",")[2:]]) if x.startswith(old) else x
-                               for x in f.read_text().splitlines()) + "\n")
+        f.write_text(
+            "\n".join(
+                ",".join([x.split(",")[0], "", *x.split(",")[2:]]) if x.startswith(old) else x
+                for x in f.read_text().splitlines()
+            )
+            + "\n"
+        )
     else:
         _edit(box_project.parent / name, old, new)
     code = main(["run", str(box_project)])
@@ -91,10 +159,22 @@ def test_fault(box_project, capsys, label, edit, status, words):
 
 @pytest.mark.parametrize(
     ("content", "words"),
-    [(b"", "empty"), (b"hole_id,from,to,cu,domain\n", "no rows"), (b"hole_id;from;to;cu;domain\nB00;0;2;1;ore\n", "commas"),
-     (b"hole_id,from,from,cu,domain\nB00,0,2,1,ore\n", "more than once"), (b"hole_id,from,to,cu,domain\nB00,0,2,\xe91,ore\n", "UTF-8"),
-     (b"hole_id,from,to,au,domain\nB00,0,2,1,ore\n", "missing column 'cu'")],
-    ids=["empty", "header only", "semicolons", "duplicated header", "latin-1 byte", "no grade column"],
+    [
+        (b"", "empty"),
+        (b"hole_id,from,to,cu,domain\n", "no rows"),
+        (b"hole_id;from;to;cu;domain\nB00;0;2;1;ore\n", "commas"),
+        (b"hole_id,from,from,cu,domain\nB00,0,2,1,ore\n", "more than once"),
+        (b"hole_id,from,to,cu,domain\nB00,0,2,\xe91,ore\n", "UTF-8"),
+        (b"hole_id,from,to,au,domain\nB00,0,2,1,ore\n", "missing column 'cu'"),
+    ],
+    ids=[
+        "empty",
+        "header only",
+        "semicolons",
+        "duplicated header",
+        "latin-1 byte",
+        "no grade column",
+    ],
 )
 def test_unreadable_assays(box_project, capsys, content, words):
     (box_project.parent / "assays.csv").write_bytes(content)
@@ -111,7 +191,9 @@ def _run_ok(box_project, capsys):
 
 
 def test_hole_with_all_grades_missing_warns(box_project, capsys):
-    _set_assays(box_project.parent, lambda f: f.__setitem__("cu", f["cu"].where(f["hole_id"] != "B03", "")))
+    _set_assays(
+        box_project.parent, lambda f: f.__setitem__("cu", f["cu"].where(f["hole_id"] != "B03", ""))
+    )
     code, err = _run_ok(box_project, capsys)
     assert code == 0, err
     html = (box_project.parent / "out" / "report.html").read_text()
@@ -156,7 +238,7 @@ def test_collinear_holes(box_project, capsys):
         out.append(",".join([hole, f"{5 + 6 * n}", "50", *rest]))
     f.write_text("\n".join(out) + "\n")
     code, err = _run_ok(box_project, capsys)
-    assert code in (0, 2)
+    assert code == 0 or (code == 2 and "ore.cu" in err), err
     if code == 0:
         gt = pd.read_csv(box_project.parent / "out" / "grade_tonnage.csv")
         assert gt["tonnes"].notna().all() and gt["metal"].notna().all()

@@ -1,0 +1,87 @@
+"""A run interrupted mid-way (SIGINT or SIGKILL) leaves the previous report intact and no
+partial file under a final name; a rerun completes."""
+
+import hashlib
+import os
+import signal
+import subprocess
+import sys
+import time
+
+import pytest
+
+from .conftest import DEMO
+
+
+def _hashes(folder):
+    return {p.name: hashlib.sha256(p.read_bytes()).hexdigest() for p in sorted(folder.iterdir())}
+
+
+def _start(out):
+    return subprocess.Popen(
+        [sys.executable, "-m", "blockmodel", "run", str(DEMO / "project.toml"), "--out", str(out)],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        start_new_session=True,
+    )
+
+
+def _wait_for_staging(parent, name, proc, seconds=60):
+    end = time.time() + seconds
+    while time.time() < end:
+        staged = list(parent.glob(f".{name}.partial-*"))
+        if staged and any(staged[0].iterdir()):  # past the first stage: composites written
+            return staged[0]
+        assert proc.poll() is None, proc.communicate()
+        time.sleep(0.05)
+    raise AssertionError("the run never started writing")
+
+
+@pytest.fixture(scope="module")
+def previous(tmp_path_factory):
+    parent = tmp_path_factory.mktemp("interrupts")
+    out = parent / "report"
+    subprocess.run(
+        [sys.executable, "-m", "blockmodel", "run", str(DEMO / "project.toml"), "--out", str(out)],
+        check=True,
+        capture_output=True,
+    )
+    return out
+
+
+@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGKILL], ids=["SIGINT", "SIGKILL"])
+def test_interrupted_run_keeps_previous_report(previous, sig):
+    before = _hashes(previous)
+    proc = _start(previous)
+    staging = _wait_for_staging(previous.parent, previous.name, proc)
+    time.sleep(1.0)
+    if sig == signal.SIGINT:
+        os.killpg(proc.pid, signal.SIGINT)  # as Ctrl-C on a terminal: the whole group
+    else:
+        proc.kill()
+    _, err = proc.communicate(timeout=60)
+    assert _hashes(previous) == before
+    if sig == signal.SIGINT:
+        assert proc.returncode == 130 and "Traceback" not in err
+        assert not staging.exists()  # cleaned up on the way out
+    else:
+        assert proc.returncode == -signal.SIGKILL
+    # a rerun completes, replaces the report and clears what a killed run left behind
+    done = subprocess.run(
+        [
+            sys.executable,
+            "-m",
+            "blockmodel",
+            "run",
+            str(DEMO / "project.toml"),
+            "--out",
+            str(previous),
+        ],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
+    assert done.returncode == 0, done.stderr
+    assert not list(previous.parent.glob(f".{previous.name}.*"))
+    assert _hashes(previous)["block_model.parquet"] == before["block_model.parquet"]
