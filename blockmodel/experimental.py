@@ -261,6 +261,7 @@ def scan_directions(
     score = np.where(pairs.sum(axis=2) > 0, score, np.inf)
     p, a = np.unravel_index(np.argmin(score), score.shape)
     return {
+        "lag": lag,
         "value": value,
         "pairs": pairs,
         "azimuths": azimuths,

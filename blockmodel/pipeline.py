@@ -16,8 +16,14 @@ from .declustering import CellDeclustering, cell_declustering, nearest_neighbour
 from .drillholes import DrillholeSet, load_drillholes
 from .engine import EstimationJob, passes_from, run_job
 from .errors import InputError, Problem
-from .experimental import ExperimentalVariogram, experimental_variogram
-from .fitting import fit_variogram, principal_directions
+from .experimental import (
+    ExperimentalVariogram,
+    NormalScores,
+    experimental_variogram,
+    normal_scores,
+    scan_directions,
+)
+from .fitting import find_azimuth, fit_variogram, principal_directions
 from .grid import BlockGrid
 from .orientation import Orientation
 from .project import Project
@@ -149,7 +155,12 @@ def decluster(
 
 @dataclass
 class Variography:
-    """One domain and grade: experimental variograms, the model and where it came from."""
+    """One domain and grade: experimental variograms, the model and where it came from.
+
+    ``scale`` converts the experimental values to the model's units: 1 for the
+    semivariogram of grades; the (declustered) variance for a correlogram or normal-score
+    variogram; the squared mean for the pairwise relative variogram.
+    """
 
     domain: str
     grade: str
@@ -158,6 +169,9 @@ class Variography:
     downhole: ExperimentalVariogram | None = None
     model: VariogramModel | None = None
     source: str = "fitted"
+    scale: float = 1.0
+    scores: NormalScores | None = None
+    scan: dict | None = None
 
 
 def _model_from_spec(spec) -> VariogramModel:
@@ -174,8 +188,13 @@ def _scaled(model: VariogramModel, factor: float) -> VariogramModel:
     )
 
 
+def _fail(path, field_name: str, message: str) -> InputError:
+    return InputError([Problem(str(path), None, None, field_name, message)])
+
+
 def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]:
-    """Experimental variograms along the principal axes and a fitted (or given) model."""
+    """Experimental variograms along the principal axes, downhole and over a fan of
+    directions, and the fitted (or given) model, per estimated domain and grade."""
     v = project.variography
     out = {}
     for d in project.domains:
@@ -186,114 +205,97 @@ def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]
             key = f"{d.name}.{g}"
             ok = sub[g].notna().to_numpy()
             pts = sub.loc[ok, ["x", "y", "z"]].to_numpy(float)
-            vals = sub.loc[ok, g].to_numpy(float)
-            weights = (
-                sub.loc[ok, "weight"].to_numpy(float)
-                if v.use_declustering_weights and "weight" in sub
-                else None
+            grades = sub.loc[ok, g].to_numpy(float)
+            decl = (
+                sub.loc[ok, "weight"].to_numpy(float) if "weight" in sub else np.ones(len(grades))
             )
-            if key in project.variogram:
+            weights = decl if v.use_declustering_weights else None
+            given = key in project.variogram
+            if not given and (len(grades) < 2 or np.ptp(grades) == 0):
+                shown = f" ({grades[0]:g})" if len(grades) else ""
+                raise _fail(
+                    project.data.intervals,
+                    g,
+                    f"{key}: {len(grades)} composite(s), all grades "
+                    f"equal{shown}: no variogram can be fitted; give a model in [variogram.{key}]",
+                )
+            mean = float(decl @ grades / decl.sum()) if len(grades) else 0.0
+            variance = float(decl @ (grades - mean) ** 2 / decl.sum()) if len(grades) else 0.0
+            values, scores, scale = grades, None, 1.0
+            if v.transform == "normal_scores":
+                values, scores = normal_scores(grades, decl)
+                scale = variance
+            elif v.estimator == "correlogram":
+                scale = variance
+            elif v.estimator == "pairwise_relative":
+                scale = mean * mean
+            if given:
                 model = _model_from_spec(project.variogram[key])
                 orient = model.structures[0].orientation if model.structures else Orientation()
             elif v.orientation is not None:
-                model = None
-                orient = Orientation(*v.orientation)
-            else:
-                # no orientation given: find the horizontal direction of continuity
-                from .fitting import find_azimuth
-
-                model = None
+                model, orient = None, Orientation(*v.orientation)
+            else:  # find the horizontal direction of continuity
                 try:
-                    azimuth, _ = find_azimuth(pts, vals, lag=v.lag, n_lags=v.lags)
+                    azimuth, _ = find_azimuth(pts, values, lag=v.lag, n_lags=v.lags)
                 except ValueError as exc:
-                    raise InputError(
-                        [
-                            Problem(
-                                str(project.source),
-                                None,
-                                None,
-                                "variography.orientation",
-                                f"cannot find the direction of continuity for {key} ({exc}); "
-                                f"give variography.orientation or a model in "
-                                f"[variogram.{d.name}.{g}]",
-                            )
-                        ]
+                    raise _fail(
+                        project.source,
+                        "variography.orientation",
+                        f"cannot find the direction "
+                        f"of continuity for {key} ({exc}); give variography.orientation or a "
+                        f"model in [variogram.{key}]",
                     ) from None
-                orient = Orientation(azimuth, 0.0, 0.0)
-            res = Variography(d.name, g, orient)
+                model, orient = None, Orientation(azimuth, 0.0, 0.0)
+            res = Variography(d.name, g, orient, scale=scale, scores=scores)
+            common = {"estimator": v.estimator, "weights": weights}
             for axis, (az, pl) in enumerate(principal_directions(orient)):
-                lag = v.lag if axis < 2 else max(v.lag / 4, 1.0)
                 res.directional.append(
                     experimental_variogram(
                         pts,
-                        vals,
-                        lag=lag,
+                        values,
+                        lag=v.lag if axis < 2 else v.minor_lag,
                         n_lags=v.lags,
                         direction=(az, pl),
                         angular_tolerance=v.angular_tolerance,
                         horizontal_bandwidth=v.horizontal_bandwidth,
                         vertical_bandwidth=v.vertical_bandwidth,
-                        estimator=v.estimator,
-                        weights=weights,
                         label=("major", "semi", "minor")[axis],
+                        **common,
                     )
                 )
             res.downhole = experimental_variogram(
                 pts,
-                vals,
+                values,
                 lag=project.compositing.length,
                 n_lags=v.lags,
-                estimator=v.estimator,
-                weights=weights,
                 holes=sub.loc[ok, "hole"].to_numpy(),
                 label="downhole",
+                **common,
             )
-            if model is None and (len(vals) < 2 or np.ptp(vals) == 0):
-                raise InputError(
-                    [
-                        Problem(
-                            str(project.data.intervals),
-                            None,
-                            None,
-                            g,
-                            f"{key}: {len(vals)} composite(s), all grades equal"
-                            f"{f' ({vals[0]:g})' if len(vals) else ''}: no variogram can be "
-                            f"fitted; give a model in [variogram.{d.name}.{g}]",
-                        )
-                    ]
+            if len(values) > 1:
+                res.scan = scan_directions(
+                    pts,
+                    values,
+                    np.arange(0.0, 180.0, 15.0),
+                    np.array([0.0, 30.0, 60.0]),
+                    lag=v.lag,
+                    n_lags=min(v.lags, 8),
+                    angular_tolerance=15.0,
+                    **common,
                 )
             if model is None:
                 try:
-                    model = fit_variogram(
+                    fitted = fit_variogram(
                         [(e, a) for a, e in enumerate(res.directional)],
                         v.kinds[: v.structures],
                         orient,
                     )
                 except ValueError as exc:
-                    raise InputError(
-                        [
-                            Problem(
-                                str(project.source),
-                                None,
-                                None,
-                                "variography",
-                                f"cannot fit a variogram for {key}: {exc}",
-                            )
-                        ]
+                    raise _fail(
+                        project.source, "variography", f"cannot fit a variogram for {key}: {exc}"
                     ) from None
-                if v.estimator != "semivariogram":
-                    # Standardised estimators: scale the fitted sills to the (declustered)
-                    # variance of the data, the usual practice (common practice).
-                    w = (
-                        sub.loc[ok, "weight"].to_numpy(float)
-                        if "weight" in sub
-                        else np.ones(len(vals))
-                    )
-                    m = w @ vals / w.sum()
-                    var = w @ (vals - m) ** 2 / w.sum()
-                    scale = var if v.estimator == "correlogram" else m * m
-                    model = _scaled(model, scale)
-                res.source = "fitted"
+                # standardised variograms: sills scaled to the declustered variance (common practice)
+                model, res.source = _scaled(fitted, scale), "fitted"
             else:
                 res.source = "project file"
             res.model = model

@@ -54,7 +54,8 @@ def variogram_figure(res, path: Path, unit: str) -> None:
         if res.model is not None and n < 3:
             hmax = max(float(np.nanmax(ev.distance[ok], initial=1.0)), 1.0) * 1.1
             h = np.linspace(0, hmax, 200)
-            gam = res.model.variogram(h[:, None] * axes_vec[n][None, :])
+            # the model is in grade units; draw it in the experimental variogram's units
+            gam = res.model.variogram(h[:, None] * axes_vec[n][None, :]) / res.scale
             ax.plot(h, gam, "-", color="#d95f0e", label="model")
         title = ("major", "semi", "minor", "downhole")[n]
         if n < 3:
@@ -62,13 +63,49 @@ def variogram_figure(res, path: Path, unit: str) -> None:
         ax.set_title(title, fontsize=9)
         ax.set_xlabel("distance (m)")
         ax.grid(alpha=0.3)
-    axes[0].set_ylabel(
-        f"{res.directional[0].estimator} ({unit})²"
-        if res.directional[0].estimator == "semivariogram"
-        else res.directional[0].estimator
-    )
+    axes[0].set_ylabel(_variogram_label(res, unit))
     axes[0].legend(fontsize=8)
     fig.suptitle(f"Variograms: {res.domain} {res.grade}; numbers are pair counts", fontsize=10)
+    _save(fig, path)
+
+
+def _variogram_label(res, unit: str) -> str:
+    estimator = res.directional[0].estimator
+    if res.scores is not None:
+        return (
+            "semivariogram of normal scores"
+            if estimator == "semivariogram"
+            else f"{estimator} of normal scores"
+        )
+    return {
+        "semivariogram": f"semivariogram ({unit})²",
+        "correlogram": "1 − correlation",
+        "pairwise_relative": "pairwise relative variogram",
+    }[estimator]
+
+
+def direction_map_figure(res, path: Path, unit: str) -> None:
+    """Variogram value by azimuth and lag for a fan of plunges, to choose the axes."""
+    plt = _plt()
+    scan = res.scan
+    plunges = scan["plunges"]
+    fig, axes = plt.subplots(1, len(plunges), figsize=(5 * len(plunges), 4), sharey=True)
+    top = np.nanpercentile(scan["value"], 95)
+    for ax, p, values in zip(np.atleast_1d(axes), plunges, scan["value"], strict=True):
+        lag = np.arange(1, values.shape[1] + 1)
+        im = ax.pcolormesh(
+            lag, scan["azimuths"], values, cmap=GRADE_CMAP, vmin=0, vmax=top, shading="nearest"
+        )
+        ax.set_title(f"plunge {p:.0f}°", fontsize=9)
+        ax.set_xlabel(f"lag (distance in units of {scan['lag']:g} m)")
+    np.atleast_1d(axes)[0].set_ylabel("azimuth (degrees)")
+    fig.colorbar(im, ax=axes, label=_variogram_label(res, unit))
+    az, pl = scan["major"]
+    fig.suptitle(
+        f"Variogram by direction, {res.domain} {res.grade}: slowest rise at azimuth {az:.0f}, "
+        f"plunge {pl:.0f} (low values = long continuity)",
+        fontsize=10,
+    )
     _save(fig, path)
 
 

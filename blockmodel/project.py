@@ -118,6 +118,8 @@ class Variography:
     kinds: tuple[str, ...] = ("spherical", "spherical")
     orientation: tuple[float, float, float] | None = None
     use_declustering_weights: bool = False
+    transform: str = "none"  # none | normal_scores
+    minor_lag: float = 2.5
 
 
 @dataclass(frozen=True)
@@ -224,6 +226,7 @@ _CHOICES = {
     ("declustering", "method"): ("cell", "nearest", "none"),
     ("declustering", "choose"): ("minimum", "maximum", "fixed"),
     ("variography", "estimator"): ("semivariogram", "correlogram", "pairwise_relative"),
+    ("variography", "transform"): ("none", "normal_scores"),
     ("estimation", "method"): ("ordinary", "simple"),
     ("estimation", "boundaries"): ("hard", "soft"),
     ("estimation", "backend"): ("serial", "processes", "dask"),
@@ -339,6 +342,7 @@ def _check_values(p: Project, r: _Reader) -> None:
     if not 0 <= p.compositing.min_coverage <= 1:
         r.fail("compositing.min_coverage", "'compositing.min_coverage' must lie in [0, 1]")
     positive("variography.lag", [p.variography.lag])
+    positive("variography.minor_lag", [p.variography.minor_lag])
     positive("variography.lags", [p.variography.lags])
     positive("estimation.discretisation", p.estimation.discretisation)
     positive("estimation.chunk_size", [p.estimation.chunk_size])

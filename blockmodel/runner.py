@@ -159,6 +159,18 @@ def _variography_outputs(project, comps, vario, decl, folder: Path, report: Html
             + f"; orientation (azimuth, plunge, tilt) {dataclasses.astuple(res.orientation)}."
         )
         report.image(p, f"Experimental variograms and model, {key}")
+        stem = key.replace(".", "_")
+        if res.scan is not None:
+            p = folder / f"direction_map_{stem}.png"
+            plots.direction_map_figure(res, p, units[res.grade])
+            report.image(p, f"Variogram by direction and lag, {key}")
+        if res.scores is not None:
+            table = pd.DataFrame({"value": res.scores.values, "normal_score": res.scores.scores})
+            _write_table(table, folder / f"normal_scores_{stem}.csv")
+            report.paragraph(
+                f"{key}: variograms of normal scores; back-transform table in "
+                f"normal_scores_{stem}.csv."
+            )
     (folder / "variogram_models.toml").write_text("\n".join(snippets), encoding="utf-8")
 
 
