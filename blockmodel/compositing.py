@@ -130,6 +130,11 @@ def composite(
                     )
                 coverage = np.maximum(coverage, cov)
             record["coverage"] = coverage
+            if "density" in run:  # measured density: length-weighted where measured
+                v = run["density"].to_numpy(float)
+                has = np.isfinite(v)
+                with np.errstate(invalid="ignore", divide="ignore"):
+                    record["density"] = (overlap[:, has] @ v[has]) / overlap[:, has].sum(axis=1)
             part = pd.DataFrame(record)
             # a grade under the minimum coverage is NaN; a composite with no grade is dropped
             keep = np.isfinite(part[grades].to_numpy(float)).any(axis=1)
@@ -144,7 +149,10 @@ def composite(
         holes, comps["hole"].to_numpy(), ((comps["from"] + comps["to"]) / 2).to_numpy(float)
     )
     comps["x"], comps["y"], comps["z"] = mid[:, 0], mid[:, 1], mid[:, 2]
-    comps = comps[["hole", "from", "to", "x", "y", "z", "domain", "length", "coverage", *grades]]
+    extra = ["density"] if "density" in comps else []
+    comps = comps[
+        ["hole", "from", "to", "x", "y", "z", "domain", "length", "coverage", *grades, *extra]
+    ]
     return comps, CompositingSummary(len(comps), dropped, merged, residual_dropped)
 
 

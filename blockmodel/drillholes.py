@@ -209,6 +209,8 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
     )
     required = {"hole id": c.hole, "from": c.depth_from, "to": c.depth_to}
     required.update({f"grade {g}": g for g in data.grades})
+    if data.density:
+        required["density"] = data.density
     intervals_raw = read_table(data.intervals, required)
     problems: list[Problem] = []
     warnings: list[Problem] = []
@@ -299,6 +301,15 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
     intervals["domain"] = (
         intervals_raw[c.domain].astype(str) if c.domain in intervals_raw.columns else ""
     )
+    if data.density:
+        intervals["density"] = _numbers(
+            intervals_raw, data.density, af, problems, c.hole, allow_blank=True
+        )
+        bad = intervals["density"] <= 0
+        for line, hole in zip(intervals["_line"][bad], intervals["hole"][bad], strict=True):
+            problems.append(
+                Problem(af, int(line), hole, data.density, "density must be positive (t/m3)")
+            )
     below, missing = {}, {}
     for g in data.grades:
         intervals[g], below[g], missing[g] = _grades(intervals_raw, g, af, data, problems, c.hole)

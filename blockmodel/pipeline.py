@@ -76,26 +76,83 @@ def block_model_grid(project: Project) -> BlockGrid:
     return BlockGrid(project.grid.origin, project.grid.block_size, project.grid.shape)
 
 
-def model_proportions(project: Project, grid: BlockGrid) -> np.ndarray:
-    """(n_blocks, n_domains) proportions: solids where given, topography applied."""
+def model_proportions(
+    project: Project, grid: BlockGrid, composites: pd.DataFrame | None = None
+) -> np.ndarray:
+    """(n_blocks, n_domains) proportions below the topography.
+
+    Domains with a solid take the share of each block inside it (first listed wins). A
+    domain without a solid takes what the solids leave of a block whose nearest composite,
+    within ``grid.code_reach`` metres, carries its code.
+    """
+    from scipy.spatial import cKDTree
+
     from .domains import block_proportions
     from .solids import read_surface
 
-    solids = [read_surface(d.solid) for d in project.domains if d.solid is not None]
-    if len(solids) != len(project.domains):
-        raise InputError(
-            [
-                Problem(
-                    str(project.source),
-                    None,
-                    None,
-                    "domains.solid",
-                    "every domain needs a solid to build the block model",
-                )
-            ]
-        )
     topo = read_surface(project.grid.topography) if project.grid.topography else None
-    return block_proportions(grid, solids, topo, subcells=project.grid.subcells)
+    with_solid = [n for n, d in enumerate(project.domains) if d.solid is not None]
+    solids = [read_surface(project.domains[n].solid) for n in with_solid]
+    out = np.zeros((grid.n_blocks, len(project.domains)), dtype=np.float32)
+    if solids:
+        out[:, with_solid] = block_proportions(grid, solids, topo, subcells=project.grid.subcells)
+    coded = [n for n, d in enumerate(project.domains) if d.solid is None]
+    if not coded:
+        return out
+    if composites is None or len(composites) == 0:
+        raise _fail(
+            project.source, "domains.solid", "domains without a solid need composites to place them"
+        )
+    lo = np.asarray(grid.origin) - 1.0
+    hi = lo + np.asarray(grid.shape) * np.asarray(grid.block_size) + 2.0
+    from .solids import Surface
+
+    box = Surface(*_box_mesh(lo, hi))
+    below = block_proportions(grid, [box], topo, subcells=project.grid.subcells)[:, 0]
+    free = np.clip(below - out.sum(axis=1), 0.0, 1.0)
+    dist, nearest = cKDTree(composites[["x", "y", "z"]].to_numpy(float)).query(
+        grid.centres(), workers=-1
+    )
+    names = composites["domain"].to_numpy()[nearest]
+    for n in coded:
+        take = (names == project.domains[n].name) & (dist <= project.grid.code_reach)
+        out[take, n] = free[take]
+    return out
+
+
+def _box_mesh(lo, hi):
+    x0, y0, z0 = lo
+    x1, y1, z1 = hi
+    v = np.array(
+        [
+            [x0, y0, z0],
+            [x1, y0, z0],
+            [x1, y1, z0],
+            [x0, y1, z0],
+            [x0, y0, z1],
+            [x1, y0, z1],
+            [x1, y1, z1],
+            [x0, y1, z1],
+        ],
+        float,
+    )
+    t = np.array(
+        [
+            [0, 2, 1],
+            [0, 3, 2],
+            [4, 5, 6],
+            [4, 6, 7],
+            [0, 1, 5],
+            [0, 5, 4],
+            [1, 2, 6],
+            [1, 6, 5],
+            [2, 3, 7],
+            [2, 7, 6],
+            [3, 0, 4],
+            [3, 4, 7],
+        ]
+    )
+    return v, t
 
 
 @dataclass
@@ -303,6 +360,36 @@ def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]
     return out
 
 
+def _estimated_density(project, table, domain, centres, grid, e) -> np.ndarray:
+    """Inverse-distance estimate of measured density from the domain's composites, with the
+    search passes; blocks the search cannot reach keep the domain's constant density."""
+    source = table[(table["domain"] == domain.name) & table["density"].notna()]
+    if len(source) == 0:
+        return np.full(len(centres), domain.density)
+    passes = passes_from(
+        project.search,
+        Orientation(*project.variography.orientation)
+        if project.variography.orientation
+        else Orientation(),
+    )
+    job = EstimationJob(
+        source[["x", "y", "z"]].to_numpy(float),
+        source["density"].to_numpy(float),
+        source["hole"].to_numpy(),
+        None,
+        passes,
+        "inverse_distance",
+        None,
+        grid.block_size,
+        e.discretisation,
+        e.idw_power,
+    )
+    res = run_job(
+        job, centres, chunk_size=e.chunk_size, backend="serial", label=f"{domain.name} density"
+    )
+    return np.where(np.isfinite(res["estimate"]), res["estimate"], domain.density)
+
+
 def estimate_block_model(
     project: Project,
     table: pd.DataFrame,
@@ -354,6 +441,9 @@ def estimate_block_model(
             }
         )
         frame["_flat"] = flat
+        if d.density_from_composites:
+            frame["density"] = _estimated_density(project, table, d, centres, grid, e)
+            frame["tonnes"] = grid.block_volume * prop * frame["density"].to_numpy()
         for g in project.grades:
             key = f"{d.name}.{g}"
             source = table if e.boundaries == "soft" else table[table["domain"] == d.name]

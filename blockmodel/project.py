@@ -68,6 +68,7 @@ class DataFiles:
     columns: Columns = field(default_factory=Columns)
     below_detection_factor: float = 0.5
     missing_values: tuple[float, ...] = (-99.0, -999.0)
+    density: str = ""  # optional column of measured density (t/m3) in the intervals
 
 
 @dataclass(frozen=True)
@@ -79,6 +80,7 @@ class Domain:
     code: str = ""
     solid: Path | None = None
     estimate: bool = True
+    density_from_composites: bool = False  # inverse-distance estimate of data.density
 
 
 @dataclass(frozen=True)
@@ -154,6 +156,7 @@ class Grid:
     shape: tuple[int, int, int]
     subcells: tuple[int, int, int] = (4, 4, 4)
     topography: Path | None = None
+    code_reach: float = 50.0  # metres: blocks of solid-less domains lie this near their composites
 
 
 @dataclass(frozen=True)
@@ -353,6 +356,11 @@ def _check_values(p: Project, r: _Reader) -> None:
         r.fail("domains", f"domain names must be unique; got {names}")
     for i, d in enumerate(p.domains):
         positive(f"domains[{i}].density", [d.density])
+        if d.density_from_composites and not p.data.density:
+            r.fail(
+                f"domains[{i}].density_from_composites", "needs data.density, the density column"
+            )
+    positive("grid.code_reach", [p.grid.code_reach])
     for i, c in enumerate(p.capping):
         if c.domain not in names:
             r.fail(

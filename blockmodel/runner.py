@@ -263,7 +263,7 @@ def run(
         _write_table(comps.table, folder / "composites.csv")
         with timer("domain proportions"):
             grid = stages.block_model_grid(project)
-            props = stages.model_proportions(project, grid)
+            props = stages.model_proportions(project, grid, comps.table)
         with timer("declustering"):
             decl = stages.decluster(project, comps.table, grid, props)
         with timer("variography"):

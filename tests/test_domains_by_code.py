@@ -1,0 +1,43 @@
+"""Domains placed from composite codes (no solid) and density estimated from composites."""
+
+import numpy as np
+import pandas as pd
+
+from blockmodel.cli import main
+
+
+def test_domain_from_codes_without_solid(box_project, capsys):
+    text = box_project.read_text().replace('solid = "ore.ply"\n', "")
+    box_project.write_text(text.replace("[grid]", "[grid]\ncode_reach = 12.0"))
+    assert main(["run", str(box_project)]) == 0, capsys.readouterr().err
+    b = pd.read_parquet(box_project.parent / "out" / "block_model.parquet")
+    # ore composites lie between 20 and 80 m elevation: blocks there near a hole are ore,
+    # blocks among the waste samples above are not
+    assert b["z"].between(20, 80).all()
+    assert len(b) > 50 and (b["proportion"] == 1.0).all()
+
+
+def test_density_estimated_from_composites(box_project, capsys):
+    a = pd.read_csv(box_project.parent / "assays.csv")
+    a["sg"] = np.where(a["domain"] == "ore", 3.1, 2.6)
+    a.to_csv(box_project.parent / "assays.csv", index=False)
+    text = box_project.read_text().replace(
+        'grades = { cu = "%" }', 'grades = { cu = "%" }\ndensity = "sg"'
+    )
+    box_project.write_text(
+        text.replace("density = 2.8", "density = 2.8\ndensity_from_composites = true")
+    )
+    assert main(["run", str(box_project)]) == 0, capsys.readouterr().err
+    b = pd.read_parquet(box_project.parent / "out" / "block_model.parquet")
+    np.testing.assert_allclose(b["density"], 3.1)
+    np.testing.assert_allclose(b["tonnes"], 1000.0 * b["proportion"] * 3.1)
+
+
+def test_density_option_needs_a_column(box_project, capsys):
+    box_project.write_text(
+        box_project.read_text().replace(
+            "density = 2.8", "density = 2.8\ndensity_from_composites = true"
+        )
+    )
+    assert main(["run", str(box_project)]) == 2
+    assert "data.density" in capsys.readouterr().err
