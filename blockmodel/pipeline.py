@@ -12,7 +12,12 @@ import numpy as np
 import pandas as pd
 
 from .compositing import CappingSummary, CompositingSummary, cap_grades, composite
-from .declustering import CellDeclustering, cell_declustering, nearest_neighbour_weights
+from .declustering import (
+    CellDeclustering,
+    cell_declustering,
+    nearest_neighbour_weights,
+    weighted_quantiles,
+)
 from .drillholes import DrillholeSet, load_drillholes
 from .engine import EstimationJob, passes_from, run_job
 from .errors import InputError, Problem
@@ -155,12 +160,19 @@ def _box_mesh(lo, hi):
     return v, t
 
 
+QUANTILES = np.array([0.1, 0.25, 0.5, 0.75, 0.9, 0.95])
+
+
 @dataclass
 class DomainDeclustering:
+    """Weights of one domain's composites and the statistics they give, per grade."""
+
     weights: np.ndarray
     cell: CellDeclustering | None
     naive_mean: dict[str, float]
     declustered_mean: dict[str, float]
+    declustered_variance: dict[str, float] = field(default_factory=dict)
+    declustered_quantiles: dict[str, np.ndarray] = field(default_factory=dict)
 
 
 def decluster(
@@ -200,13 +212,16 @@ def decluster(
             flat = np.flatnonzero(proportions[:, d_index] > 0)
             w = nearest_neighbour_weights(pts, grid.centres(flat))
         table.loc[table.index[rows], "weight"] = w
-        naive, decl = {}, {}
+        naive, decl, var, quant = {}, {}, {}, {}
         for g in project.grades:
             v = table.loc[table.index[rows], g].to_numpy(float)
             f = np.isfinite(v)
             naive[g] = float(v[f].mean()) if f.any() else float("nan")
             decl[g] = float(w[f] @ v[f] / w[f].sum()) if f.any() else float("nan")
-        out[d.name] = DomainDeclustering(w, cell, naive, decl)
+            if f.any():
+                var[g] = float(w[f] @ (v[f] - decl[g]) ** 2 / w[f].sum())
+                quant[g] = weighted_quantiles(v[f], w[f], QUANTILES)
+        out[d.name] = DomainDeclustering(w, cell, naive, decl, var, quant)
     return out
 
 
@@ -346,6 +361,7 @@ def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]
                         [(e, a) for a, e in enumerate(res.directional)],
                         v.kinds[: v.structures],
                         orient,
+                        fixed=dict(v.fixed),
                     )
                 except ValueError as exc:
                     raise _fail(

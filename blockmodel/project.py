@@ -34,6 +34,7 @@ __all__ = [
     "Report",
     "SearchPass",
     "StructureSpec",
+    "Validation",
     "Variography",
     "load_project",
     "resolved",
@@ -121,6 +122,9 @@ class Variography:
     orientation: tuple[float, float, float] | None = None
     use_declustering_weights: bool = False
     transform: str = "none"  # none | normal_scores
+    fixed: dict[str, float] = field(
+        default_factory=dict
+    )  # e.g. { nugget = 0.2, range1_major = 60.0 }
     minor_lag: float = 2.5
 
 
@@ -172,6 +176,11 @@ class Estimation:
 
 
 @dataclass(frozen=True)
+class Validation:
+    leave_out: str = "hole"  # hole | sample
+
+
+@dataclass(frozen=True)
 class ClassRule:
     name: str
     max_pass: int = 99
@@ -212,6 +221,7 @@ class Project:
     variogram: dict[str, ModelSpec] = field(default_factory=dict)
     search: tuple[SearchPass, ...] = ()
     estimation: Estimation = field(default_factory=Estimation)
+    validation: Validation = field(default_factory=Validation)
     classification: Classification = field(default_factory=Classification)
     source: Path = Path("project.toml")
     truth: Path | None = None
@@ -233,6 +243,7 @@ _CHOICES = {
     ("estimation", "method"): ("ordinary", "simple"),
     ("estimation", "boundaries"): ("hard", "soft"),
     ("estimation", "backend"): ("serial", "processes", "dask"),
+    ("validation", "leave_out"): ("hole", "sample"),
 }
 _UNITS = ("g/t", "ppm", "%", "ppb")
 

@@ -117,6 +117,15 @@ def _variography_outputs(project, comps, vario, decl, folder: Path, report: Html
                     "composites": int((comps.table["domain"] == name).sum()),
                     "naive_mean": d.naive_mean[g],
                     "declustered_mean": d.declustered_mean[g],
+                    "declustered_variance": d.declustered_variance.get(g, float("nan")),
+                    **{
+                        f"declustered_p{round(100 * q)}": v
+                        for q, v in zip(
+                            stages.QUANTILES,
+                            d.declustered_quantiles.get(g, [float("nan")] * 6),
+                            strict=True,
+                        )
+                    },
                     "cell_size": d.cell.chosen_size if d.cell else float("nan"),
                 }
             )
@@ -351,6 +360,7 @@ def run(
                     sub["hole"].to_numpy(),
                     model,
                     passes_from(project.search, model.structures[0].orientation),
+                    leave_out=project.validation.leave_out,
                 )
                 cv_rows.append({"domain": d.name, **cv.summary()})
                 p = folder / f"cross_validation_{d.name}.png"
@@ -359,7 +369,7 @@ def run(
                     p,
                     primary,
                     project.data.grades[primary],
-                    f"Leave-one-hole-out cross-validation, {d.name}",
+                    f"Cross-validation (leave one {project.validation.leave_out} out), {d.name}",
                 )
                 report.image(p, f"Cross-validation, {d.name}")
                 b = blocks[blocks["domain"] == d.name]
@@ -376,7 +386,9 @@ def run(
                     sw, p, primary, project.data.grades[primary], f"Swaths, {d.name}"
                 )
                 report.image(p, f"Swath plots, {d.name}")
-            report.paragraph("Cross-validation, leave one hole out (error = estimate − true):")
+            report.paragraph(
+                f"Cross-validation, leave one {project.validation.leave_out} out (error = estimate − true):"
+            )
             report.table(pd.DataFrame(cv_rows))
             report.paragraph("Global bias, kriged against nearest-sample model (tonnage-weighted):")
             report.table(global_bias(blocks, primary))
@@ -559,9 +571,12 @@ def _standard_views(project, grid, blocks, composites, folder: Path, report: Htm
                 composites=composites[composites["domain"] == main],
             )
             report.image(p, f"3D slice normal to {axis} through the {main} centre, {primary}")
+        from .solids import read_surface
+
+        solids = [read_surface(d.solid) for d in project.domains if d.solid is not None]
         p = folder / "slices_class.png"
-        render_view(grid, blocks, "class", p, slices=tuple(centre))
-        report.image(p, "3D slices coloured by proposed class")
+        render_view(grid, blocks, "class", p, slices=tuple(centre), solids=solids)
+        report.image(p, "3D slices coloured by proposed class, with the domain solids")
     except Exception as exc:  # no rendering back end on this machine: say so, keep the run
         report.paragraph(f"3D views could not be rendered here: {exc}")
 

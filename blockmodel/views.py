@@ -88,8 +88,8 @@ def render_view(
         from matplotlib.colors import ListedColormap
 
         cmap = ListedColormap(list(CLASS_COLOURS.values()))
-        clim = [0, len(CLASS_COLOURS) - 1]
-        bar = {"title": "class", "n_labels": 0}
+        clim = [-0.5, len(CLASS_COLOURS) - 0.5]  # each label in the middle of its colour
+        bar = {"title": "class", "n_labels": 0, "color": "black", "width": 0.7, "position_x": 0.15}
         annotations = {float(n): name for n, name in enumerate(CLASS_COLOURS)}
     else:
         cmap = GRADE_CMAP
@@ -153,9 +153,7 @@ def render_view(
             plotter.add_mesh(pts, color="black", point_size=2)
     for s in solids or []:
         faces = np.column_stack([np.full(len(s.triangles), 3), s.triangles]).ravel()
-        plotter.add_mesh(
-            pv.PolyData(s.vertices, faces), color="grey", opacity=0.12, style="wireframe"
-        )
+        plotter.add_mesh(pv.PolyData(s.vertices, faces), color="grey", opacity=0.15)
     plotter.show_bounds(
         color="black",
         font_size=8,

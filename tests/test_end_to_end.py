@@ -145,3 +145,51 @@ def test_slope_true_on_kriged_indicated_or_better(truth_figures):
 
 def test_tonnage_above_median_within_10_percent(truth_figures):
     assert abs(truth_figures["tonnage_difference_percent"]) <= 10.0
+
+
+@pytest.mark.parametrize(
+    ("args", "name"),
+    [
+        (["--kind", "slices", "--field", "au_slope"], "slices.png"),
+        (["--kind", "cutoff", "--cutoff", "3.0"], "cutoff.png"),
+        (["--kind", "plan", "--z", "1050"], "plan.png"),
+        (["--kind", "section", "--azimuth", "110", "--width", "20"], "section.png"),
+    ],
+)
+def test_view_command_writes_png(two_runs, tmp_path, args, name):
+    from matplotlib.image import imread
+
+    png = tmp_path / name
+    assert (
+        main(
+            [
+                "view",
+                str(DEMO / "project.toml"),
+                str(two_runs[0] / "block_model.parquet"),
+                *args,
+                "--png",
+                str(png),
+            ]
+        )
+        == 0
+    )
+    img = imread(png)[..., :3]
+    assert len(np.unique((img.reshape(-1, 3) * 255).astype(int), axis=0)) > 100
+
+
+def test_view_unknown_field(two_runs, capsys):
+    assert (
+        main(
+            [
+                "view",
+                str(DEMO / "project.toml"),
+                str(two_runs[0] / "block_model.parquet"),
+                "--field",
+                "ag",
+                "--png",
+                "x.png",
+            ]
+        )
+        == 2
+    )
+    assert "no column 'ag'" in capsys.readouterr().err

@@ -40,6 +40,17 @@ def test_meuse_spherical_fit_matches_gstat(meuse_log_zinc):
     assert m.structures[0].ranges[0] == pytest.approx(897, rel=0.01)
 
 
+def test_fixed_parameters_are_held(meuse_log_zinc):
+    pts, v, width = meuse_log_zinc
+    ev = experimental_variogram(pts, v, lag=width, n_lags=15)
+    m = fit_variogram(
+        [(ev, None)], ["spherical"], bm.Orientation(), fixed={"nugget": 0.1, "range1_major": 700.0}
+    )
+    assert m.nugget == 0.1 and m.structures[0].ranges[0] == 700.0
+    with pytest.raises(ValueError, match="cannot fix"):
+        fit_variogram([(ev, None)], ["spherical"], bm.Orientation(), fixed={"sill": 1.0})
+
+
 @pytest.fixture(scope="module")
 def anisotropic_field():
     o = bm.Orientation(30, 0, 0)
