@@ -76,6 +76,7 @@ def experimental_variogram(
     lag: float,
     n_lags: int,
     edges: np.ndarray | None = None,
+    lag_tolerance: float | None = None,
     direction: tuple[float, float] | None = None,
     angular_tolerance: float = 22.5,
     horizontal_bandwidth: float = np.inf,
@@ -97,6 +98,9 @@ def experimental_variogram(
     n_lags : int
     edges : (n_lags + 1,) float64, optional
         Explicit lag bin edges (metres).
+    lag_tolerance : float, optional, metres
+        When given, lag k holds pairs with ``|d - k lag| <= lag_tolerance`` (k = 1 ..
+        n_lags); at most ``lag / 2``.
     direction : (azimuth, plunge) degrees, optional
         None for omnidirectional.
     angular_tolerance : float, degrees
@@ -123,7 +127,14 @@ def experimental_variogram(
     points = points - points.min(axis=0)
     values = np.asarray(values, dtype=np.float64)
     w = np.ones(len(values)) if weights is None else np.asarray(weights, dtype=np.float64)
-    edges = lag * np.arange(n_lags + 1) if edges is None else np.asarray(edges, dtype=np.float64)
+    if lag_tolerance is not None and not 0 < lag_tolerance <= lag / 2:
+        raise ValueError("lag_tolerance must lie in (0, lag / 2]")
+    if lag_tolerance is not None:  # centred lags: edges only bound the pair search
+        edges = lag * np.arange(n_lags + 1) + lag_tolerance
+    elif edges is None:
+        edges = lag * np.arange(n_lags + 1)
+    else:
+        edges = np.asarray(edges, dtype=np.float64)
     nb = len(edges) - 1
     group = None if holes is None else np.unique(np.asarray(holes), return_inverse=True)[1].ravel()
     if direction is not None:
@@ -141,7 +152,11 @@ def experimental_variogram(
             perp = h - along[:, None] * u
             ok &= (np.abs(along) >= cos_tol * d) & (np.abs(perp @ e_h) <= horizontal_bandwidth)
             ok &= np.abs(perp @ e_v) <= vertical_bandwidth
-        b = np.searchsorted(edges, d, side="left") - 1
+        if lag_tolerance is None:
+            b = np.searchsorted(edges, d, side="left") - 1
+        else:
+            b = np.rint(d / lag).astype(np.int64) - 1
+            ok &= np.abs(d - (b + 1) * lag) <= lag_tolerance
         ok &= (b >= 0) & (b < nb)
         i, j, d, b = i[ok], j[ok], d[ok], b[ok]
         pw = w[i] * w[j]

@@ -327,6 +327,9 @@ def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]
                         values,
                         lag=v.lag if axis < 2 else v.minor_lag,
                         n_lags=v.lags,
+                        lag_tolerance=None
+                        if v.lag_tolerance is None
+                        else v.lag_tolerance * (1.0 if axis < 2 else v.minor_lag / v.lag),
                         direction=(az, pl),
                         angular_tolerance=v.angular_tolerance,
                         horizontal_bandwidth=v.horizontal_bandwidth,
@@ -383,7 +386,7 @@ def _estimated_density(project, table, domain, centres, grid, e) -> np.ndarray:
     if len(source) == 0:
         return np.full(len(centres), domain.density)
     passes = passes_from(
-        project.search,
+        project.passes_for(domain.name),
         Orientation(*project.variography.orientation)
         if project.variography.orientation
         else Orientation(),
@@ -432,6 +435,11 @@ def estimate_block_model(
     workers = e.workers if workers is None else workers
     chunk_size = chunk_size or e.chunk_size
     cluster = cluster if cluster is not None else e.cluster
+    for d in project.domains:
+        if d.estimate and not project.passes_for(d.name):
+            raise _fail(
+                project.source, "search", f"domain '{d.name}' has no search: add [[search]] passes"
+            )
     frames = []
     for d_index, d in enumerate(project.domains):
         if not d.estimate:
@@ -466,7 +474,7 @@ def estimate_block_model(
             source = source[source[g].notna()]
             model = models[key]
             passes = passes_from(
-                project.search,
+                project.passes_for(d.name),
                 model.structures[0].orientation if model.structures else Orientation(),
             )
             mean = None

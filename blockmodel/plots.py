@@ -196,6 +196,40 @@ def _norm(values, vmin=None, vmax=None):
     return lo, max(hi, lo + 1e-12)
 
 
+def composite_segments(composites) -> tuple[np.ndarray, np.ndarray]:
+    """Start and end (n, 3) of each composite along its hole: the mid-point plus or minus
+    half its length along the local hole direction (from its neighbours in the hole)."""
+    mid = composites[["x", "y", "z"]].to_numpy(float)
+    half = composites["length"].to_numpy(float)[:, None] / 2 if "length" in composites else 1.0
+    holes = composites["hole"].to_numpy() if "hole" in composites else np.arange(len(mid))
+    direction = np.tile([0.0, 0.0, -1.0], (len(mid), 1))
+    same_next = np.r_[holes[1:] == holes[:-1], False]
+    same_prev = np.r_[False, holes[1:] == holes[:-1]]
+    nxt = np.where(same_next[:, None], np.roll(mid, -1, axis=0), mid)
+    prv = np.where(same_prev[:, None], np.roll(mid, 1, axis=0), mid)
+    step = nxt - prv
+    norm = np.linalg.norm(step, axis=1)
+    ok = norm > 0
+    direction[ok] = step[ok] / norm[ok, None]
+    return mid - direction * half, mid + direction * half
+
+
+def _draw_segments(ax, start, end, values, lo, hi, label):
+    from matplotlib.collections import LineCollection
+
+    lines = LineCollection(
+        np.stack([start, end], axis=1), cmap=GRADE_CMAP, linewidths=4, label=label
+    )
+    lines.set_array(np.asarray(values, dtype=float))
+    lines.set_clim(lo, hi)
+    ax.add_collection(lines)
+    # thin dark outline so bars stand out from blocks of the same colour
+    outline = LineCollection(
+        np.stack([start, end], axis=1), colors="k", linewidths=5.5, zorder=lines.get_zorder() - 0.1
+    )
+    ax.add_collection(outline)
+
+
 def per_block(blocks, column: str):
     """One row per block: tonnage-weighted mean of ``column`` over its domain rows.
 
@@ -255,21 +289,22 @@ def plan_figure(
     im = ax.imshow(
         img, origin="lower", extent=ext, cmap=GRADE_CMAP, vmin=lo, vmax=hi, interpolation="nearest"
     )
-    if composites is not None:
+    g = column.split("_")[0]
+    if composites is not None and g in composites:
         tol = tolerance if tolerance is not None else grid.block_size[2]
         z_c = grid.origin[2] + (k + 0.5) * grid.block_size[2]
-        near = composites[np.abs(composites["z"] - z_c) <= tol]
-        ax.scatter(
-            near["x"],
-            near["y"],
-            c=near[column.split("_")[0]] if column.split("_")[0] in near else "k",
-            cmap=GRADE_CMAP,
-            vmin=lo,
-            vmax=hi,
-            s=18,
-            edgecolors="k",
-            linewidths=0.5,
+        start, end = composite_segments(composites)
+        near = np.abs(composites["z"].to_numpy(float) - z_c) <= tol
+        _draw_segments(
+            ax,
+            start[near, :2],
+            end[near, :2],
+            composites[g].to_numpy()[near],
+            lo,
+            hi,
+            f"composites within {tol:g} m",
         )
+        ax.legend(fontsize=8, loc="lower right")
     fig.colorbar(im, ax=ax, shrink=0.8, label=f"{column} ({unit})")
     _north_and_scale(ax, ext)
     ax.set_xlabel("east (m)")
@@ -282,11 +317,17 @@ def plan_figure(
     _save(fig, path)
 
 
+def _nice_length(approx: float) -> float:
+    """1, 2 or 5 times a power of ten, at most ``approx``."""
+    power = 10 ** np.floor(np.log10(approx))
+    return float(max(m * power for m in (1, 2, 5) if m * power <= approx))
+
+
 def _north_and_scale(ax, ext) -> None:
     w = ext[1] - ext[0]
     h = ext[3] - ext[2]
     x0, y0 = ext[0] + 0.05 * w, ext[2] + 0.05 * h
-    bar = 10 ** np.floor(np.log10(w / 4))
+    bar = _nice_length(w / 5)
     ax.plot([x0, x0 + bar], [y0, y0], "k-", lw=3)
     ax.text(x0 + bar / 2, y0 + 0.015 * h, f"{bar:.0f} m", ha="center", fontsize=8)
     ax.annotate(
@@ -338,28 +379,44 @@ def section_figure(
     pc.set_array(b[column].to_numpy())
     pc.set_clim(lo, hi)
     ax.add_collection(pc)
-    if composites is not None and len(composites):
+    g = column.split("_")[0]
+    if composites is not None and len(composites) and g in composites:
         crel = composites[["x", "y"]].to_numpy() - np.asarray(point)[:2]
         cn = np.abs(crel @ across) <= width / 2
-        g = column.split("_")[0]
-        if g in composites:
-            ax.scatter(
-                crel[cn] @ along,
-                composites.loc[cn, "z"],
-                c=composites.loc[cn, g],
-                cmap=GRADE_CMAP,
-                vmin=lo,
-                vmax=hi,
-                marker="s",
-                s=14,
-                edgecolors="k",
-                linewidths=0.4,
-                label="composites",
-            )
-            ax.legend(fontsize=8, loc="lower left")
+        start, end = composite_segments(composites)
+
+        def project(p):
+            return np.column_stack([(p[:, :2] - np.asarray(point)[:2]) @ along, p[:, 2]])
+
+        _draw_segments(
+            ax,
+            project(start[cn]),
+            project(end[cn]),
+            composites[g].to_numpy()[cn],
+            lo,
+            hi,
+            f"composites within {width / 2:g} m",
+        )
+        ax.legend(fontsize=8, loc="lower left")
     fig.colorbar(pc, ax=ax, shrink=0.8, label=f"{column} ({unit})")
     ax.autoscale()
     ax.set_aspect("equal")
+    x0, x1 = ax.get_xlim()
+    y0, y1 = ax.get_ylim()
+    bar = 10 ** np.floor(np.log10((x1 - x0) / 4))
+    ax.plot(
+        [x0 + 0.05 * (x1 - x0), x0 + 0.05 * (x1 - x0) + bar],
+        [y1 - 0.06 * (y1 - y0)] * 2,
+        "k-",
+        lw=3,
+    )
+    ax.text(
+        x0 + 0.05 * (x1 - x0) + bar / 2,
+        y1 - 0.045 * (y1 - y0),
+        f"{bar:.0f} m",
+        ha="center",
+        fontsize=8,
+    )
     ax.set_xlabel(f"distance along azimuth {azimuth:.0f} from ({point[0]:.0f}, {point[1]:.0f}) (m)")
     ax.set_ylabel("elevation (m)")
     ax.set_title(f"Section along {azimuth:.0f}°, width {width:.0f} m: {column}")

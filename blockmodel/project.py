@@ -82,6 +82,7 @@ class Domain:
     solid: Path | None = None
     estimate: bool = True
     density_from_composites: bool = False  # inverse-distance estimate of data.density
+    search: tuple[SearchPass, ...] = ()  # this domain's own passes; empty: the project's
 
 
 @dataclass(frozen=True)
@@ -113,6 +114,7 @@ class Declustering:
 class Variography:
     lag: float = 10.0
     lags: int = 15
+    lag_tolerance: float | None = None  # None: lag k holds (k-1) lag < d <= k lag
     angular_tolerance: float = 22.5
     horizontal_bandwidth: float = 25.0
     vertical_bandwidth: float = 10.0
@@ -229,6 +231,10 @@ class Project:
     @property
     def grades(self) -> list[str]:
         return list(self.data.grades)
+
+    def passes_for(self, domain: str) -> tuple[SearchPass, ...]:
+        """The search passes of a domain: its own, or the project's."""
+        return self.domain(domain).search or self.search
 
     def domain(self, name: str) -> Domain:
         return next(d for d in self.domains if d.name == name)
@@ -357,6 +363,9 @@ def _check_values(p: Project, r: _Reader) -> None:
         r.fail("compositing.min_coverage", "'compositing.min_coverage' must lie in [0, 1]")
     positive("variography.lag", [p.variography.lag])
     positive("variography.minor_lag", [p.variography.minor_lag])
+    tol = p.variography.lag_tolerance
+    if tol is not None and not 0 < tol <= p.variography.lag / 2:
+        r.fail("variography.lag_tolerance", "'variography.lag_tolerance' must lie in (0, lag / 2]")
     positive("variography.lags", [p.variography.lags])
     positive("estimation.discretisation", p.estimation.discretisation)
     positive("estimation.chunk_size", [p.estimation.chunk_size])
@@ -384,10 +393,16 @@ def _check_values(p: Project, r: _Reader) -> None:
             r.fail(f"capping[{i}]", "give exactly one of 'value' or 'percentile'")
         if c.percentile is not None and not 0 < c.percentile < 100:
             r.fail(f"capping[{i}].percentile", "'percentile' must lie in (0, 100)")
-    for i, s in enumerate(p.search):
-        positive(f"search[{i}].ranges", s.ranges)
+    searches = [(f"search[{i}]", s) for i, s in enumerate(p.search)]
+    searches += [
+        (f"domains[{n}].search[{i}]", s)
+        for n, d in enumerate(p.domains)
+        for i, s in enumerate(d.search)
+    ]
+    for key, s in searches:
+        positive(f"{key}.ranges", s.ranges)
         if not 1 <= s.min_samples <= s.max_samples:
-            r.fail(f"search[{i}]", "need 1 <= min_samples <= max_samples")
+            r.fail(key, "need 1 <= min_samples <= max_samples")
     cut = list(p.report.cutoffs)
     if cut != sorted(cut) or len(set(cut)) != len(cut) or any(c < 0 for c in cut):
         r.fail(

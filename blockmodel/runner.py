@@ -337,7 +337,12 @@ def run(
             f"block {grid.block_size} m, discretisation {project.estimation.discretisation}; "
             f"grid origin {grid.origin}, shape {grid.shape}."
         )
-        report.table(pd.DataFrame([dataclasses.asdict(s) for s in project.search]).astype(str))
+        for d in project.domains:
+            if d.estimate:
+                passes = pd.DataFrame([dataclasses.asdict(s) for s in project.passes_for(d.name)])
+                passes.insert(0, "domain", d.name)
+                passes.insert(1, "pass", range(1, len(passes) + 1))
+                report.table(passes.astype(str))
         passes = blocks.groupby(["domain", f"{primary}_pass"]).size().reset_index(name="blocks")
         report.table(passes)
         ill = int(blocks.filter(like="_ill_conditioned").to_numpy().sum())
@@ -359,7 +364,7 @@ def run(
                     sub[primary].to_numpy(float),
                     sub["hole"].to_numpy(),
                     model,
-                    passes_from(project.search, model.structures[0].orientation),
+                    passes_from(project.passes_for(d.name), model.structures[0].orientation),
                     leave_out=project.validation.leave_out,
                 )
                 cv_rows.append({"domain": d.name, **cv.summary()})
@@ -458,7 +463,7 @@ def run(
 
         # --- views
         with timer("views"):
-            _standard_views(project, grid, blocks, comps.table, folder, report)
+            _standard_views(project, grid, blocks, comps.table, models, folder, report)
 
         if project.truth is not None:
             from .truth import compare_with_truth
@@ -515,7 +520,9 @@ def run(
     return out
 
 
-def _standard_views(project, grid, blocks, composites, folder: Path, report: HtmlReport) -> None:
+def _standard_views(
+    project, grid, blocks, composites, models, folder: Path, report: HtmlReport
+) -> None:
     from . import plots
 
     primary = project.grades[0]
@@ -534,13 +541,13 @@ def _standard_views(project, grid, blocks, composites, folder: Path, report: Htm
     p = folder / "plan.png"
     plots.plan_figure(blocks, grid, primary, float(centre[2]), p, unit, composites=composites)
     report.image(p, f"Plan through the centre of the {main} domain")
+    # across strike: a right angle to the major axis of the main domain's model
+    model = models.get(f"{main}.{primary}")
     strike_normal = (
-        (project.search[0].orientation[0] + 90.0)
-        if project.search and project.search[0].orientation
+        (model.structures[0].orientation.azimuth + 90.0) % 360.0
+        if model and model.structures
         else 90.0
     )
-    if project.variography.orientation is not None:
-        strike_normal = project.variography.orientation[0] + 90.0
     p = folder / "section.png"
     plots.section_figure(
         blocks,

@@ -49,6 +49,23 @@ def block_image(grid: BlockGrid, blocks, columns: list[str]):
     return image
 
 
+def _traces(composites, grade: str | None):
+    """Drillhole traces as polylines through the composites' ends, coloured by grade."""
+    import pyvista as pv
+
+    from .plots import composite_segments
+
+    start, end = composite_segments(composites)
+    n = len(start)
+    points = np.empty((2 * n, 3))
+    points[0::2], points[1::2] = start, end
+    lines = np.column_stack([np.full(n, 2), 2 * np.arange(n), 2 * np.arange(n) + 1]).ravel()
+    poly = pv.PolyData(points, lines=lines)
+    if grade is not None:
+        poly.point_data["grade"] = np.repeat(composites[grade].to_numpy(float), 2)
+    return poly
+
+
 def render_view(
     grid: BlockGrid,
     blocks,
@@ -74,7 +91,7 @@ def render_view(
     cutoff : float, optional
         Show blocks with ``column >= cutoff`` as a solid instead of slices.
     composites : DataFrame, optional
-        Drillhole composites drawn as coloured points along the traces.
+        Drillhole composites, drawn as segments of their traces coloured by grade.
     solids : list of Surface, optional
         Domain solids, drawn as translucent outlines.
     """
@@ -136,21 +153,19 @@ def render_view(
                         <= 2 * grid.block_size["xyz".index(axis)]
                     )
             composites = composites[near]
-        pts = pv.PolyData(composites[["x", "y", "z"]].to_numpy(float))
-        g = column if column in composites else None
-        if g is not None and not categorical:
-            pts["grade"] = composites[g].to_numpy(float)
+        traces = _traces(composites, column if column in composites and not categorical else None)
+        if "grade" in traces.point_data:
             plotter.add_mesh(
-                pts,
+                traces,
                 scalars="grade",
                 cmap=cmap,
                 clim=clim,
-                point_size=4,
-                render_points_as_spheres=True,
+                line_width=5,
+                render_lines_as_tubes=True,
                 show_scalar_bar=False,
             )
         else:
-            plotter.add_mesh(pts, color="black", point_size=2)
+            plotter.add_mesh(traces, color="black", line_width=2)
     for s in solids or []:
         faces = np.column_stack([np.full(len(s.triangles), 3), s.triangles]).ravel()
         plotter.add_mesh(pv.PolyData(s.vertices, faces), color="grey", opacity=0.15)
@@ -163,7 +178,6 @@ def render_view(
         fmt="%.0f",
     )
     plotter.view_isometric()
-    plotter.camera.zoom(1.3)
     if path is None:
         plotter.show()
     else:

@@ -41,3 +41,13 @@ def test_density_option_needs_a_column(box_project, capsys):
     )
     assert main(["run", str(box_project)]) == 2
     assert "data.density" in capsys.readouterr().err
+
+
+def test_domain_with_its_own_search(box_project, capsys):
+    text = box_project.read_text()
+    own = "[[domains.search]]\nranges = [30.0, 30.0, 15.0]\nmin_samples = 2\nmax_samples = 6\n\n"
+    text = text.replace("[variography]", own + "[variography]")
+    box_project.write_text(text)
+    assert main(["run", str(box_project)]) == 0, capsys.readouterr().err
+    b = pd.read_parquet(box_project.parent / "out" / "block_model.parquet")
+    assert b["cu_samples"].max() == 6  # the domain's passes, not the project's (16)

@@ -110,6 +110,18 @@ def test_pairs_within_a_hole_only():
     assert ev.value[0] == pytest.approx((1 + 1 + 4) / 2 / 3)
 
 
+def test_centred_lags_with_tolerance():
+    # lag k holds |d - k lag| <= tolerance; distances 4.9, 5.6, 10.2 and 7.5 (in a gap)
+    pts = np.array([[0, 0, 0], [4.9, 0, 0], [0, 5.6, 0], [0, 0, 10.2], [7.5, 100, 0]])
+    vals = np.array([0.0, 1.0, 2.0, 3.0, 9.0])
+    ev = experimental_variogram(pts[:4], vals[:4], lag=5.0, n_lags=2, lag_tolerance=1.0)
+    # pairs from the origin: 4.9 and 5.6 in lag 1, 10.2 in lag 2; others: |(4.9,0,0)-(0,5.6,0)| = 7.44 (gap),
+    # |(4.9,0,0)-(0,0,10.2)| = 11.3 (out), |(0,5.6,0)-(0,0,10.2)| = 11.6 (out)
+    assert list(ev.pairs) == [2, 1]
+    with pytest.raises(ValueError, match="lag_tolerance"):
+        experimental_variogram(pts, vals, lag=5.0, n_lags=2, lag_tolerance=3.0)
+
+
 def test_normal_scores_round_trip(rng):
     v = rng.lognormal(size=500)
     y, table = normal_scores(v)
