@@ -2,7 +2,7 @@
 everywhere, and a drilling programme through it.
 
 Scenario (invented): the Tarnwick lode of the Corrie Vale project, held by the fictional
-Halden Ridge Minerals. A tabular lode striking 020 and dipping 55 degrees toward 110,
+Orrimond Minerals. A tabular lode striking 020 and dipping 55 degrees toward 110,
 8 to 25 m thick, with a high-grade shoot plunging within it, a low-grade halo and waste.
 
 Everything is deterministic from the seed.  The truth is used by tests and by the marked

@@ -107,3 +107,23 @@ def test_pykrige_anisotropic_3d(rng, n_closest):
     table = bm.krige(pts, vals, targets, model, search)
     np.testing.assert_allclose(table.estimate, np.asarray(ref), rtol=1e-6)
     np.testing.assert_allclose(table.variance, np.asarray(ref_var), rtol=1e-6)
+
+
+def test_gstools_ordinary_kriging_3d(rng):
+    # gstools (general-purpose library) ordinary kriging, exact interpolation (exact=True)
+    # and a true inverse (pseudo_inv=False). Its Exponential len_scale is a third of the
+    # practical range (DESIGN §10).
+    import gstools as gs
+
+    pts = rng.uniform(0, 100, size=(120, 3))
+    vals = rng.normal(size=120)
+    targets = rng.uniform(10, 90, size=(30, 3))
+    model = bm.VariogramModel(0.2, [bm.Structure("exponential", 1.5, (60.0, 60.0, 60.0))])
+    ref_model = gs.Exponential(dim=3, var=1.5, len_scale=20.0, nugget=0.2)
+    ok = gs.krige.Ordinary(ref_model, pts.T, vals, exact=True, pseudo_inv=False)
+    field, var = ok(targets.T, return_var=True)
+    table = bm.krige(
+        pts, vals, targets, model, bm.SearchEllipsoid((1e4, 1e4, 1e4), max_samples=500)
+    )
+    np.testing.assert_allclose(table.estimate, field, rtol=1e-8, atol=1e-10)
+    np.testing.assert_allclose(table.variance, var, rtol=1e-8)
