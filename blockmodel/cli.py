@@ -136,6 +136,9 @@ def _view(args) -> None:
 
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
+    from .outputs import watch_interrupts
+
+    watch_interrupts()
     try:
         if args.command == "bench":
             from .bench import main as bench

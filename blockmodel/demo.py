@@ -19,7 +19,7 @@ import numpy as np
 from .desurvey import positions_along_hole
 from .orientation import Orientation
 from .simulation import simulate_gaussian
-from .solids import Lattice, Surface, column_crossings, points_inside, write_ply
+from .solids import Lattice, Surface, column_crossings, grid_triangles, points_inside, write_ply
 from .variogram import Structure, VariogramModel
 
 __all__ = ["DemoDeposit", "build_demo", "write_demo"]
@@ -96,20 +96,10 @@ def _slab(extent_u, extent_v, extra, step=10.0) -> Surface:
 
     top, bottom = sheet(half), sheet(-half)
     verts = np.vstack([top, bottom])
-    tris = []
-    idx = np.arange(nu * nv).reshape(nu, nv)
-    a, b, c, e = (
-        idx[:-1, :-1].ravel(),
-        idx[1:, :-1].ravel(),
-        idx[1:, 1:].ravel(),
-        idx[:-1, 1:].ravel(),
-    )
+    sheet_tris = grid_triangles(nu, nv)
     off = nu * nv
-    tris += [np.column_stack([a, b, c]), np.column_stack([a, c, e])]
-    tris += [
-        np.column_stack([a + off, c + off, b + off]),
-        np.column_stack([a + off, e + off, c + off]),
-    ]
+    tris = [sheet_tris, sheet_tris[:, [0, 2, 1]] + off]  # bottom sheet faces the other way
+    idx = np.arange(nu * nv).reshape(nu, nv)
     ring = np.concatenate([idx[:, 0], idx[-1, 1:], idx[-2::-1, -1], idx[0, -2:0:-1]])
     r0, r1 = ring, np.roll(ring, -1)
     tris += [np.column_stack([r0, r1, r1 + off]), np.column_stack([r0, r1 + off, r0 + off])]
@@ -130,15 +120,7 @@ def topography_surface(step=20.0) -> Surface:
     X, Y = np.meshgrid(xs, ys, indexing="ij")
     verts = np.column_stack([X.ravel(), Y.ravel(), topography_elevation(X, Y).ravel()])
     nu, nv = X.shape
-    idx = np.arange(nu * nv).reshape(nu, nv)
-    a, b, c, e = (
-        idx[:-1, :-1].ravel(),
-        idx[1:, :-1].ravel(),
-        idx[1:, 1:].ravel(),
-        idx[:-1, 1:].ravel(),
-    )
-    tris = np.vstack([np.column_stack([a, b, c]), np.column_stack([a, c, e])])
-    return Surface(verts, tris.astype(np.int64))
+    return Surface(verts, grid_triangles(nu, nv))
 
 
 def classify(

@@ -10,12 +10,20 @@ import hashlib
 import json
 import os
 import shutil
+import signal
 import tempfile
 from pathlib import Path
 
 from .errors import InputError, Problem
 
-__all__ = ["StagedFolder", "atomic_path", "check_writable", "file_hash", "write_json"]
+__all__ = [
+    "StagedFolder",
+    "atomic_path",
+    "check_writable",
+    "file_hash",
+    "watch_interrupts",
+    "write_json",
+]
 
 
 def check_writable(folder: Path) -> None:
@@ -44,6 +52,25 @@ def check_writable(folder: Path) -> None:
         raise InputError([Problem(str(folder), None, None, None, "the report folder is read-only")])
 
 
+_interrupted = False
+
+
+def _on_interrupt(signum, frame) -> None:
+    """SIGINT: remember it, then raise KeyboardInterrupt as Python does by default."""
+    global _interrupted
+    _interrupted = True
+    signal.default_int_handler(signum, frame)
+
+
+def watch_interrupts() -> None:
+    """Remember any Ctrl-C (SIGINT), so that no staged folder is committed after one even if
+    a library swallowed the KeyboardInterrupt it raised. Call from the main thread."""
+    try:
+        signal.signal(signal.SIGINT, _on_interrupt)
+    except ValueError:  # not the main thread: leave signals alone
+        pass
+
+
 class StagedFolder:
     """Write into ``.NAME.partial-PID`` beside ``target``; :meth:`commit` swaps it in."""
 
@@ -66,6 +93,9 @@ class StagedFolder:
                     shutil.rmtree(folder, ignore_errors=True)
 
     def commit(self) -> None:
+        if _interrupted:  # a Ctrl-C arrived during the run: never publish its output
+            self.discard()
+            raise KeyboardInterrupt
         old = None
         if self.target.exists():
             old = self.target.with_name(f".{self.target.name}.old-{os.getpid()}")

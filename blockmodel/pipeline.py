@@ -110,9 +110,9 @@ def model_proportions(
         )
     lo = np.asarray(grid.origin) - 1.0
     hi = lo + np.asarray(grid.shape) * np.asarray(grid.block_size) + 2.0
-    from .solids import Surface
+    from .solids import box_surface
 
-    box = Surface(*_box_mesh(lo, hi))
+    box = box_surface(lo, hi)
     below = block_proportions(grid, [box], topo, subcells=project.grid.subcells)[:, 0]
     free = np.clip(below - out.sum(axis=1), 0.0, 1.0)
     dist, nearest = cKDTree(composites[["x", "y", "z"]].to_numpy(float)).query(
@@ -123,41 +123,6 @@ def model_proportions(
         take = (names == project.domains[n].name) & (dist <= project.grid.code_reach)
         out[take, n] = free[take]
     return out
-
-
-def _box_mesh(lo, hi):
-    x0, y0, z0 = lo
-    x1, y1, z1 = hi
-    v = np.array(
-        [
-            [x0, y0, z0],
-            [x1, y0, z0],
-            [x1, y1, z0],
-            [x0, y1, z0],
-            [x0, y0, z1],
-            [x1, y0, z1],
-            [x1, y1, z1],
-            [x0, y1, z1],
-        ],
-        float,
-    )
-    t = np.array(
-        [
-            [0, 2, 1],
-            [0, 3, 2],
-            [4, 5, 6],
-            [4, 6, 7],
-            [0, 1, 5],
-            [0, 5, 4],
-            [1, 2, 6],
-            [1, 6, 5],
-            [2, 3, 7],
-            [2, 7, 6],
-            [3, 0, 4],
-            [3, 4, 7],
-        ]
-    )
-    return v, t
 
 
 QUANTILES = np.array([0.1, 0.25, 0.5, 0.75, 0.9, 0.95])

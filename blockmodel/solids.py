@@ -15,9 +15,12 @@ import numpy as np
 from .errors import InputError, Problem
 
 __all__ = [
+    "BOX_TRIANGLES",
     "Lattice",
     "Surface",
+    "box_surface",
     "column_crossings",
+    "grid_triangles",
     "points_inside",
     "read_surface",
     "surface_elevation",
@@ -46,6 +49,54 @@ class Lattice:
     y0: float
     dy: float
     ny: int
+
+
+#: Triangles of a box whose corners are numbered (x, y, z) bits: 0 (0,0,0), 1 (1,0,0),
+#: 2 (1,1,0), 3 (0,1,0), then 4 to 7 the same on top.
+BOX_TRIANGLES = np.array(
+    [
+        [0, 2, 1],
+        [0, 3, 2],
+        [4, 5, 6],
+        [4, 6, 7],
+        [0, 1, 5],
+        [0, 5, 4],
+        [1, 2, 6],
+        [1, 6, 5],
+        [2, 3, 7],
+        [2, 7, 6],
+        [3, 0, 4],
+        [3, 4, 7],
+    ],
+    dtype=np.int64,
+)
+
+
+def box_surface(lo, hi) -> Surface:
+    """A closed axis-aligned box between corners ``lo`` and ``hi`` (metres)."""
+    (x0, y0, z0), (x1, y1, z1) = lo, hi
+    v = np.array(
+        [
+            [x0, y0, z0],
+            [x1, y0, z0],
+            [x1, y1, z0],
+            [x0, y1, z0],
+            [x0, y0, z1],
+            [x1, y0, z1],
+            [x1, y1, z1],
+            [x0, y1, z1],
+        ],
+        dtype=np.float64,
+    )
+    return Surface(v, BOX_TRIANGLES.copy())
+
+
+def grid_triangles(nu: int, nv: int) -> np.ndarray:
+    """Two triangles per cell of an (nu, nv) grid of vertices numbered ``v + nv * u``."""
+    idx = np.arange(nu * nv).reshape(nu, nv)
+    a, b = idx[:-1, :-1].ravel(), idx[1:, :-1].ravel()
+    c, e = idx[1:, 1:].ravel(), idx[:-1, 1:].ravel()
+    return np.vstack([np.column_stack([a, b, c]), np.column_stack([a, c, e])]).astype(np.int64)
 
 
 def read_surface(path: Path) -> Surface:

@@ -75,44 +75,6 @@ def small_project(tmp_path):
     return path
 
 
-def box_surface(lo, hi):
-    """A closed box as a triangulated surface (12 triangles)."""
-    from blockmodel.solids import Surface
-
-    x0, y0, z0 = lo
-    x1, y1, z1 = hi
-    v = np.array(
-        [
-            [x0, y0, z0],
-            [x1, y0, z0],
-            [x1, y1, z0],
-            [x0, y1, z0],
-            [x0, y0, z1],
-            [x1, y0, z1],
-            [x1, y1, z1],
-            [x0, y1, z1],
-        ],
-        float,
-    )
-    t = np.array(
-        [
-            [0, 2, 1],
-            [0, 3, 2],
-            [4, 5, 6],
-            [4, 6, 7],
-            [0, 1, 5],
-            [0, 5, 4],
-            [1, 2, 6],
-            [1, 6, 5],
-            [2, 3, 7],
-            [2, 7, 6],
-            [3, 0, 4],
-            [3, 4, 7],
-        ]
-    )
-    return Surface(v, t)
-
-
 BOX_PROJECT = """
 name = "box test project"
 
@@ -153,7 +115,7 @@ cutoffs = [0.0, 0.5, 1.0]
 @pytest.fixture
 def box_project(tmp_path):
     """A small complete project: 16 vertical holes through a box of ore; returns its file."""
-    from blockmodel.solids import write_ply
+    from blockmodel.solids import box_surface, write_ply
 
     rng = np.random.default_rng(7)
     collars, surveys, assays = (

@@ -6,9 +6,7 @@ import pytest
 import blockmodel as bm
 from blockmodel.domains import block_proportions
 from blockmodel.grid import BlockGrid
-from blockmodel.solids import Surface
-
-from .conftest import box_surface
+from blockmodel.solids import BOX_TRIANGLES, Surface, box_surface
 
 
 def _tilted_slab(normal, offset, size=1000.0) -> Surface:
@@ -17,24 +15,7 @@ def _tilted_slab(normal, offset, size=1000.0) -> Surface:
     corners = np.array([[-size, -size], [size, -size], [size, size], [-size, size]], float)
     top = np.column_stack([corners, (offset - corners @ n[:2]) / n[2]])
     bottom = np.column_stack([corners, np.full(4, -size)])
-    v = np.vstack([bottom, top])
-    t = np.array(
-        [
-            [0, 2, 1],
-            [0, 3, 2],
-            [4, 5, 6],
-            [4, 6, 7],
-            [0, 1, 5],
-            [0, 5, 4],
-            [1, 2, 6],
-            [1, 6, 5],
-            [2, 3, 7],
-            [2, 7, 6],
-            [3, 0, 4],
-            [3, 4, 7],
-        ]
-    )
-    return Surface(v, t)
+    return Surface(np.vstack([bottom, top]), BOX_TRIANGLES.copy())
 
 
 def test_grid_conventions():
