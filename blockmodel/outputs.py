@@ -124,10 +124,6 @@ def atomic_path(path: Path) -> Path:
     return path.with_name(f".{path.stem}.partial-{os.getpid()}{path.suffix}")
 
 
-def replace_into(tmp: Path, path: Path) -> None:
-    os.replace(tmp, path)
-
-
 def write_json(path: Path, data: dict) -> None:
     tmp = atomic_path(path)
     tmp.write_text(json.dumps(data, indent=2, sort_keys=True, default=str) + "\n", encoding="utf-8")
