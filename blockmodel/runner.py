@@ -160,7 +160,8 @@ def _variography_outputs(project, comps, vario, decl, folder: Path, report: Html
         plots.variogram_figure(res, p, units[res.grade])
         snippets.append(f"# {key}: {res.source}\n" + res.model.to_toml(key))
         report.paragraph(
-            f"{key}: model from the {res.source}; nugget {res.model.nugget:.4g}; "
+            f"{key}: model {'fitted to the experimental variograms' if res.source == 'fitted' else 'given in the project file'}; "
+            f"nugget {res.model.nugget:.4g}; "
             + "; ".join(
                 f"{s.kind} sill {s.sill:.4g} ranges {tuple(round(a, 1) for a in s.ranges)}"
                 for s in res.model.structures
@@ -327,6 +328,8 @@ def run(
             report.table(pd.DataFrame([dataclasses.asdict(s) for s in comps.capping]))
         stats = comps.table.groupby("domain")[project.grades].describe().reset_index()
         stats.columns = [" ".join(x).strip() if isinstance(x, tuple) else x for x in stats.columns]
+        for g in project.grades:  # counts are whole numbers
+            stats[f"{g} count"] = stats[f"{g} count"].astype(int)
         report.table(stats)
         with timer("declustering and variogram plots"):
             _variography_outputs(project, comps, vario, decl, folder, report)
@@ -339,7 +342,15 @@ def run(
         )
         for d in project.domains:
             if d.estimate:
-                passes = pd.DataFrame([dataclasses.asdict(s) for s in project.passes_for(d.name)])
+                passes = pd.DataFrame(
+                    [
+                        {
+                            k: ("model's" if k == "orientation" else "none") if v is None else v
+                            for k, v in dataclasses.asdict(s).items()
+                        }
+                        for s in project.passes_for(d.name)
+                    ]
+                )
                 passes.insert(0, "domain", d.name)
                 passes.insert(1, "pass", range(1, len(passes) + 1))
                 report.table(passes.astype(str))
