@@ -28,7 +28,7 @@ def _plain_loop(pts, vals, targets, model, search, block_size, disc):
     """Reference: one block at a time, brute-force search, numpy solve of the bordered system."""
     offsets = bm.discretisation_offsets(block_size, disc)
     a = search.transform()
-    out = np.full((len(targets), 2), np.nan)
+    out = np.full((len(targets), 4), np.nan)
     for b, t in enumerate(targets):
         d = np.linalg.norm((pts - t) @ a.T, axis=1)
         order = np.argsort(d, kind="stable")
@@ -50,7 +50,11 @@ def _plain_loop(pts, vals, targets, model, search, block_size, disc):
             (offsets[:, None, :] - offsets[None, :, :]).reshape(-1, 3)
         ).mean()
         sol = np.linalg.solve(lhs, np.append(cbar, 1.0))
-        out[b] = sol[:k] @ vals[near], cvv - sol[:k] @ cbar - sol[k]
+        lam = sol[:k]
+        variance = cvv - lam @ cbar - sol[k]
+        # slope of the regression of true block on estimate, and efficiency (DESIGN §4)
+        slope = (lam @ cbar) / (lam @ lhs[:k, :k] @ lam)
+        out[b] = lam @ vals[near], variance, slope, (cvv - variance) / cvv
     return out
 
 
@@ -62,6 +66,8 @@ def test_fast_path_equals_plain_loop(rng):
     ref = _plain_loop(pts, vals, targets, MODEL, SEARCH, (10, 10, 5), (3, 3, 2))
     np.testing.assert_allclose(table.estimate, ref[:, 0], rtol=1e-9, atol=1e-12)
     np.testing.assert_allclose(table.variance, ref[:, 1], rtol=1e-9, atol=1e-12)
+    np.testing.assert_allclose(table.slope, ref[:, 2], rtol=1e-9)
+    np.testing.assert_allclose(table.efficiency, ref[:, 3], rtol=1e-9, atol=1e-12)
 
 
 def test_weights_sum_to_one_and_slope_definition(rng):
@@ -189,6 +195,8 @@ def test_idw_and_nearest(rng):
         if len(order) < 3:
             continue
         assert nn.estimate[b] == vals[order[0]]
+        euclid = np.linalg.norm(pts[order] - targets[b], axis=1).mean()
+        assert nn.mean_distance[b] == pytest.approx(euclid, rel=1e-12)
         w = 1 / d[order] ** 2
         assert idw.estimate[b] == pytest.approx((w * vals[order]).sum() / w.sum(), rel=1e-12)
 
