@@ -6,12 +6,19 @@ Input errors print one clear message and exit with status 2, without a traceback
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 
-from .errors import InputError
+from .errors import InputError, Problem
 
 __all__ = ["main"]
+
+
+_REPLACE = (
+    "write into an existing folder that holds other files; files blockmodel did not write "
+    "are never removed or overwritten"
+)
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -43,12 +50,14 @@ def _parser() -> argparse.ArgumentParser:
         "--chunk-size", type=int, help="blocks per chunk (memory bound; results do not change)"
     )
     r.add_argument("--csv", action="store_true", help="also write the block model as CSV")
+    r.add_argument("--replace", action="store_true", help=_REPLACE)
 
     v = sub.add_parser(
         "variography", help="declustering and variography alone: plots, table, fitted models"
     )
     v.add_argument("project", type=Path)
     v.add_argument("--out", type=Path, help="output folder (default: beside the report folder)")
+    v.add_argument("--replace", action="store_true", help=_REPLACE)
 
     a = sub.add_parser(
         "report", help="re-report an existing block model at new cut-offs or class rules"
@@ -60,6 +69,7 @@ def _parser() -> argparse.ArgumentParser:
     a.add_argument(
         "--reclassify", action="store_true", help="apply the project's classification rules again"
     )
+    a.add_argument("--replace", action="store_true", help=_REPLACE)
 
     w = sub.add_parser(
         "view", help="render a view of a block model to PNG, or open it interactively"
@@ -83,7 +93,9 @@ def _parser() -> argparse.ArgumentParser:
         "--scale", action="store_true", help="also estimate a 10,000,000-block model (minutes)"
     )
 
-    d = sub.add_parser("make-demo", help="regenerate the invented demo deposit's data files")
+    d = sub.add_parser(
+        "make-demo", help="write the invented demo deposit's data files (never overwrites a file)"
+    )
     d.add_argument("folder", type=Path)
     return p
 
@@ -92,9 +104,14 @@ def _view(args) -> None:
     import pandas as pd
 
     from . import pipeline as stages
+    from .outputs import atomic_path, need_file
     from .project import load_project
+    from .runner import input_files
 
     project = load_project(args.project)
+    need_file(args.block_model)
+    if args.png is not None:
+        _check_png_target(args.png, [*input_files(project), args.block_model])
     grid = stages.block_model_grid(project)
     blocks = pd.read_parquet(args.block_model)
     field = args.field or project.grades[0]
@@ -107,31 +124,69 @@ def _view(args) -> None:
     point = [
         v if v is not None else c for v, c in zip((args.x, args.y, args.z), centre, strict=True)
     ]
-    if args.kind in ("plan", "section"):
-        from . import plots
-
-        if args.png is None:
-            raise InputError("plans and sections are written to PNG: give --png")
-        if args.kind == "plan":
-            plots.plan_figure(blocks, grid, field, point[2], args.png, unit)
-        else:
-            plots.section_figure(
-                blocks, grid, field, point, args.azimuth, args.width, args.png, unit
-            )
-        return
-    from .views import render_view
-
+    if args.kind in ("plan", "section") and args.png is None:
+        raise InputError("plans and sections are written to PNG: give --png")
     if args.kind == "cutoff" and args.cutoff is None:
         raise InputError("--kind cutoff needs --cutoff")
-    render_view(
-        grid,
-        blocks,
-        field,
-        args.png,
-        unit=unit,
-        slices=tuple(point),
-        cutoff=args.cutoff if args.kind == "cutoff" else None,
-    )
+    tmp = None if args.png is None else atomic_path(args.png)
+    try:
+        if args.kind == "plan":
+            from . import plots
+
+            plots.plan_figure(blocks, grid, field, point[2], tmp, unit)
+        elif args.kind == "section":
+            from . import plots
+
+            plots.section_figure(blocks, grid, field, point, args.azimuth, args.width, tmp, unit)
+        else:
+            from .views import render_view
+
+            render_view(
+                grid,
+                blocks,
+                field,
+                tmp,
+                unit=unit,
+                slices=tuple(point),
+                cutoff=args.cutoff if args.kind == "cutoff" else None,
+            )
+        if tmp is not None:
+            os.replace(tmp, args.png)
+    finally:
+        if tmp is not None:
+            tmp.unlink(missing_ok=True)
+
+
+def _check_png_target(png: Path, inputs: list[Path]) -> None:
+    """A view may replace a PNG the tool wrote, never an input or any other file."""
+    from .plots import PNG_SOFTWARE
+
+    png = Path(png)
+    if any(png.resolve() == Path(p).resolve() for p in inputs):
+        raise InputError([Problem(str(png), None, None, None, "is an input file; not overwritten")])
+    if png.is_dir():
+        raise InputError([Problem(str(png), None, None, None, "is a folder; give a PNG file name")])
+    if png.exists():
+        try:
+            from PIL import Image
+
+            with Image.open(png) as im:
+                ours = getattr(im, "text", {}).get("Software") == PNG_SOFTWARE
+        except Exception:
+            ours = False
+        if not ours:
+            raise InputError(
+                [
+                    Problem(
+                        str(png),
+                        None,
+                        None,
+                        None,
+                        "exists and was not written by blockmodel; not overwritten (choose "
+                        "another file name)",
+                    )
+                ]
+            )
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -169,10 +224,11 @@ def main(argv: list[str] | None = None) -> int:
                 chunk_size=args.chunk_size,
                 cluster=args.cluster,
                 write_csv=args.csv or None,
+                replace=args.replace,
             )
             print(f"report written to {out}")
         elif args.command == "variography":
-            out = runner.run_variography(project, args.out)
+            out = runner.run_variography(project, args.out, replace=args.replace)
             print(f"variography written to {out}")
         elif args.command == "report":
             out = runner.report_again(
@@ -181,6 +237,7 @@ def main(argv: list[str] | None = None) -> int:
                 args.out,
                 cutoffs=args.cutoffs,
                 reclassify=args.reclassify,
+                replace=args.replace,
             )
             print(f"report written to {out}")
     except InputError as exc:
@@ -189,6 +246,17 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("blockmodel: interrupted; the previous report folder is unchanged", file=sys.stderr)
         return 130
+    except OSError as exc:
+        from .outputs import disk_full
+
+        if not disk_full(exc):
+            raise
+        print(
+            f"blockmodel: the disk is full ({exc.filename or 'while writing'}); nothing was "
+            "published and the previous report folder is unchanged",
+            file=sys.stderr,
+        )
+        return 2
     return 0
 
 

@@ -22,7 +22,17 @@ from .simulation import simulate_gaussian
 from .solids import Lattice, Surface, column_crossings, grid_triangles, points_inside, write_ply
 from .variogram import Structure, VariogramModel
 
-__all__ = ["DemoDeposit", "build_demo", "write_demo"]
+__all__ = ["DEMO_FILES", "DemoDeposit", "build_demo", "write_demo"]
+
+DEMO_FILES = (
+    "collars.csv",
+    "surveys.csv",
+    "assays.csv",
+    "lode.ply",
+    "halo.ply",
+    "topography.ply",
+    "truth_blocks.parquet",
+)
 
 SEED = 20261201
 ORIGIN = np.array([512000.0, 7034000.0, 900.0])  # minimum corner of the demo block grid
@@ -305,24 +315,41 @@ def truth_blocks(deposit: DemoDeposit):
 def write_demo(folder: Path, seed: int = SEED) -> DemoDeposit:
     """Write the demo's data files (CSV tables, PLY surfaces, true block grades).
 
-    The hand-written ``project.toml`` and ``README.md`` beside them are not touched.
+    Never overwrites: if any of the files exists already, nothing is written and
+    :class:`~blockmodel.errors.InputError` names them.  Each file is written under a
+    temporary name and renamed when complete.
     """
+    import os
+
     import pandas as pd
 
+    from .outputs import atomic_path, check_new_files
+
     folder = Path(folder)
+    check_new_files([folder / n for n in DEMO_FILES])
     folder.mkdir(parents=True, exist_ok=True)
     deposit = build_demo(seed)
-    pd.DataFrame(deposit.collars, columns=["hole_id", "x", "y", "z", "depth"]).to_csv(
-        folder / "collars.csv", index=False
-    )
-    pd.DataFrame(deposit.surveys, columns=["hole_id", "depth", "azimuth", "dip"]).to_csv(
-        folder / "surveys.csv", index=False
-    )
-    pd.DataFrame(deposit.assays, columns=["hole_id", "from", "to", "au", "domain"]).to_csv(
-        folder / "assays.csv", index=False
-    )
-    write_ply(folder / "lode.ply", lode_surface())
-    write_ply(folder / "halo.ply", halo_surface())
-    write_ply(folder / "topography.ply", topography_surface())
-    truth_blocks(deposit).to_parquet(folder / "truth_blocks.parquet", index=False)
+    writers = {
+        "collars.csv": lambda p: pd.DataFrame(
+            deposit.collars, columns=["hole_id", "x", "y", "z", "depth"]
+        ).to_csv(p, index=False),
+        "surveys.csv": lambda p: pd.DataFrame(
+            deposit.surveys, columns=["hole_id", "depth", "azimuth", "dip"]
+        ).to_csv(p, index=False),
+        "assays.csv": lambda p: pd.DataFrame(
+            deposit.assays, columns=["hole_id", "from", "to", "au", "domain"]
+        ).to_csv(p, index=False),
+        "lode.ply": lambda p: write_ply(p, lode_surface()),
+        "halo.ply": lambda p: write_ply(p, halo_surface()),
+        "topography.ply": lambda p: write_ply(p, topography_surface()),
+        "truth_blocks.parquet": lambda p: truth_blocks(deposit).to_parquet(p, index=False),
+    }
+    for name in DEMO_FILES:
+        tmp = atomic_path(folder / name)
+        try:
+            writers[name](tmp)
+            check_new_files([folder / name])  # appeared meanwhile: still never overwrite
+            os.replace(tmp, folder / name)
+        finally:
+            tmp.unlink(missing_ok=True)
     return deposit

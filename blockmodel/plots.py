@@ -30,8 +30,11 @@ def _plt():
     return plt
 
 
+PNG_SOFTWARE = "blockmodel"  # PNG text chunk "Software": marks the images the tool wrote
+
+
 def _save(fig, path: Path) -> None:
-    fig.savefig(path, dpi=110, bbox_inches="tight")
+    fig.savefig(path, dpi=110, bbox_inches="tight", metadata={"Software": PNG_SOFTWARE})
     _plt().close(fig)
 
 

@@ -15,7 +15,7 @@ import pandas as pd
 
 from . import pipeline as stages
 from .classification import classify_blocks
-from .outputs import StagedFolder, check_writable, file_hash, write_json
+from .outputs import OutputFolder, file_hash, need_file
 from .project import Project, resolved
 from .report_html import CAUTIONS, HtmlReport
 from .reporting import grade_tonnage
@@ -89,11 +89,16 @@ def _versions() -> dict[str, str]:
     return out
 
 
-def _inputs(project: Project) -> dict[str, str]:
+def input_files(project: Project) -> list[Path]:
+    """Every file a project reads: the project file, data tables, solids, topography, truth."""
     files = [project.source, project.data.collars, project.data.surveys, project.data.intervals]
     files += [d.solid for d in project.domains if d.solid is not None]
     files += [p for p in (project.grid.topography, project.truth) if p is not None]
-    return {str(p): file_hash(p) for p in files}
+    return files
+
+
+def _inputs(project: Project) -> dict[str, str]:
+    return {str(p): file_hash(p) for p in input_files(project)}
 
 
 def _write_table(frame: pd.DataFrame, path: Path) -> None:
@@ -184,24 +189,27 @@ def _variography_outputs(project, comps, vario, decl, folder: Path, report: Html
     (folder / "variogram_models.toml").write_text("\n".join(snippets), encoding="utf-8")
 
 
-def run_variography(project: Project, out: Path | None = None) -> Path:
+def run_variography(project: Project, out: Path | None = None, *, replace: bool = False) -> Path:
     """Declustering and variography alone: plots, declustering table, fitted models."""
     folder = project.report.folder
     out = Path(out) if out is not None else folder.with_name(f"{folder.name}_variography")
-    check_writable(out)
-    staged = StagedFolder(out)
-    try:
+    with OutputFolder(out, input_files(project), replace=replace) as staged:
         comps = stages.load_and_composite(project)
         decl = stages.decluster(project, comps.table)
         vario = stages.variography(project, comps.table)
         report = HtmlReport(f"{project.name}: declustering and variography")
         _variography_outputs(project, comps, vario, decl, staged.path, report)
         report.write(staged.path / "variography.html")
-        staged.commit()
-    except BaseException:
-        staged.discard()
-        raise
-    return out
+        staged.commit(
+            {
+                "command": "variography",
+                "project": str(project.source),
+                "inputs_sha256": _inputs(project),
+                "configuration": resolved(project),
+                "versions": _versions(),
+            }
+        )
+    return staged.target
 
 
 def _grade_tonnage_outputs(
@@ -255,17 +263,16 @@ def run(
     chunk_size: int | None = None,
     cluster: str | None = None,
     write_csv: bool | None = None,
+    replace: bool = False,
 ) -> Path:
     """The whole chain; returns the report folder."""
     from . import plots
     from .support import block_grade_tonnage, empirical_anamorphosis, support_coefficient
     from .validation import cross_validate, global_bias, swath
 
-    out = Path(out or project.report.folder).resolve()
-    check_writable(out)
     timer = _Timer()
-    staged = StagedFolder(out)
-    try:
+    staged = OutputFolder(out or project.report.folder, input_files(project), replace=replace)
+    with staged:
         folder = staged.path
         report = HtmlReport(f"{project.name}: block model estimate")
         with timer("load, check and composite"):
@@ -514,6 +521,7 @@ def run(
         report.paragraph(f"Timings (s): {timer.timings}")
         report.write(folder / "report.html")
         manifest = {
+            "command": "run",
             "project": str(project.source),
             "inputs_sha256": _inputs(project),
             "configuration": resolved(project),
@@ -523,12 +531,8 @@ def run(
             "blocks": len(blocks),
             "options": {"backend": backend, "workers": workers, "chunk_size": chunk_size},
         }
-        write_json(folder / "manifest.json", manifest)
-        staged.commit()
-    except BaseException:
-        staged.discard()
-        raise
-    return out
+        staged.commit(manifest)
+    return staged.target
 
 
 def _standard_views(
@@ -600,13 +604,19 @@ def _standard_views(
 
 
 def report_again(
-    project: Project, block_model: Path, out: Path, *, cutoffs=None, reclassify: bool = False
+    project: Project,
+    block_model: Path,
+    out: Path,
+    *,
+    cutoffs=None,
+    reclassify: bool = False,
+    replace: bool = False,
 ) -> Path:
     """Re-report an existing block model at new cut-offs or classification rules."""
-    check_writable(out)
-    blocks = pd.read_parquet(block_model)
-    staged = StagedFolder(out)
-    try:
+    staged = OutputFolder(out, [*input_files(project), block_model], replace=replace)
+    with staged:
+        need_file(block_model)
+        blocks = pd.read_parquet(block_model)
         primary = project.grades[0]
         if reclassify or "class" not in blocks:
             cls = project.classification
@@ -618,19 +628,15 @@ def report_again(
             project, blocks, staged.path, report, cutoffs or project.report.cutoffs
         )
         report.write(staged.path / "report.html")
-        write_json(
-            staged.path / "manifest.json",
+        staged.commit(
             {
+                "command": "report",
                 "block_model": str(block_model),
                 "block_model_sha256": file_hash(block_model),
                 "cutoffs": list(cutoffs or project.report.cutoffs),
                 "configuration": resolved(project),
                 "versions": _versions(),
                 "cautions": CAUTIONS,
-            },
+            }
         )
-        staged.commit()
-    except BaseException:
-        staged.discard()
-        raise
-    return out
+    return staged.target

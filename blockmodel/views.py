@@ -17,6 +17,17 @@ from .plots import CLASS_COLOURS, GRADE_CMAP
 __all__ = ["block_image", "render_view"]
 
 
+def _write_png(image: np.ndarray, path: Path) -> None:
+    """Write an RGB(A) array as PNG, with the tool's "Software" text chunk."""
+    from PIL import Image, PngImagePlugin
+
+    from .plots import PNG_SOFTWARE
+
+    info = PngImagePlugin.PngInfo()
+    info.add_text("Software", PNG_SOFTWARE)
+    Image.fromarray(np.ascontiguousarray(image)).save(path, format="PNG", pnginfo=info)
+
+
 def block_image(grid: BlockGrid, blocks, columns: list[str]):
     """pyvista ImageData with one cell per block; per column the tonnage-weighted mean over
     the block's domain rows (NaN where none). Cell order is x fastest (DESIGN §3)."""
@@ -181,5 +192,6 @@ def render_view(
     if path is None:
         plotter.show()
     else:
-        plotter.screenshot(str(path))
+        image = plotter.screenshot(None, return_img=True)
         plotter.close()
+        _write_png(image, path)

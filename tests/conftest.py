@@ -115,6 +115,11 @@ cutoffs = [0.0, 0.5, 1.0]
 @pytest.fixture
 def box_project(tmp_path):
     """A small complete project: 16 vertical holes through a box of ore; returns its file."""
+    return make_box_project(tmp_path)
+
+
+def make_box_project(tmp_path: Path) -> Path:
+    """Write the box project's files into ``tmp_path``; returns the project file."""
     from blockmodel.solids import box_surface, write_ply
 
     rng = np.random.default_rng(7)
