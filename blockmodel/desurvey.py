@@ -50,37 +50,52 @@ def positions_along_hole(
 
     Notes
     -----
-    Over an arc of length L with dogleg angle b between unit directions t1 and t2, the
-    position a distance s along it is
-    ``p1 + L / (b sin b) * [(cos(b - b s/L) - cos b) t1 + (1 - cos(b s/L)) t2]``,
-    which at s = L is the minimum-curvature step ``L/2 (t1 + t2) * 2/b tan(b/2)``.
-    Above the first station and below the last, the hole is straight.
+    Over an arc of length L with dogleg angle b between unit directions t1 and t2 the
+    direction turns at a constant rate (spherical interpolation), so the position a
+    fraction σ = s/L along it is the integral of that direction:
+
+    ``p1 + L/(b sin b) · 2 sin(bσ/2) · [sin(b(1 − σ/2)) t1 + sin(bσ/2) t2]``,
+
+    which at σ = 1 is the minimum-curvature step ``L/2 (t1 + t2) · 2/b tan(b/2)``.  It is
+    evaluated with ``sinc(x) = sin(x)/x`` as
+    ``L σ sinc(bσ/2)/sinc(b) · [(1 − σ/2) sinc(b(1 − σ/2)) t1 + σ/2 sinc(bσ/2) t2]``,
+    which has no cancellation as b → 0, and b is found from the half-angle formula
+    ``b = 2 atan2(|t1 − t2|, |t1 + t2|)``, exact for tiny angles where ``arccos(t1·t2)``
+    is not.  Above the first station and below the last, the hole is straight.
     """
     sd = np.asarray(station_depths, dtype=np.float64)
     t = direction(azimuths, dips)
     if sd[0] > 0:  # extend the first station to the collar
         sd = np.concatenate([[0.0], sd])
         t = np.vstack([t[:1], t])
+    lengths = np.diff(sd)
     # station positions
     pos = np.zeros((len(sd), 3))
     pos[0] = collar
     for k in range(1, len(sd)):
-        pos[k] = pos[k - 1] + _arc(t[k - 1], t[k], sd[k] - sd[k - 1], sd[k] - sd[k - 1])
+        pos[k] = pos[k - 1] + _arc(t[k - 1], t[k], lengths[k - 1], np.ones(1))[0]
     depths = np.asarray(depths, dtype=np.float64)
     seg = np.clip(np.searchsorted(sd, depths, side="right") - 1, 0, len(sd) - 1)
     out = np.empty((len(depths), 3))
-    for n, (d, k) in enumerate(zip(depths, seg, strict=True)):
-        if k == len(sd) - 1:
-            out[n] = pos[k] + t[k] * (d - sd[k])
-        else:
-            out[n] = pos[k] + _arc(t[k], t[k + 1], sd[k + 1] - sd[k], d - sd[k])
+    last = seg == len(sd) - 1
+    out[last] = pos[-1] + (depths[last] - sd[-1])[:, None] * t[-1]
+    for k in np.unique(seg[~last]):
+        rows = np.flatnonzero(seg == k)
+        frac = (depths[rows] - sd[k]) / lengths[k]
+        out[rows] = pos[k] + _arc(t[k], t[k + 1], lengths[k], frac)
     return out
 
 
-def _arc(t1: np.ndarray, t2: np.ndarray, length: float, s: float) -> np.ndarray:
-    cos_b = float(np.clip(t1 @ t2, -1.0, 1.0))
-    b = np.arccos(cos_b)
-    if b < 1e-9 or length <= 0:
-        return s * (t1 + (t2 - t1) * (s / length if length > 0 else 0.0) * 0.5)
-    f = b * s / length
-    return length / (b * np.sin(b)) * ((np.cos(b - f) - cos_b) * t1 + (1.0 - np.cos(f)) * t2)
+def _sinc(x: np.ndarray | float) -> np.ndarray:
+    """sin(x) / x, 1 at x = 0."""
+    return np.sinc(np.asarray(x) / np.pi)
+
+
+def _arc(t1: np.ndarray, t2: np.ndarray, length: float, frac: np.ndarray) -> np.ndarray:
+    """Offsets (len(frac), 3) from the start of a minimum-curvature arc at fractions of it."""
+    b = 2.0 * np.arctan2(np.linalg.norm(t1 - t2), np.linalg.norm(t1 + t2))
+    frac = np.asarray(frac, dtype=np.float64)
+    scale = length * frac * _sinc(b * frac / 2) / _sinc(b)
+    w1 = (1 - frac / 2) * _sinc(b * (1 - frac / 2))
+    w2 = frac / 2 * _sinc(b * frac / 2)
+    return scale[:, None] * (w1[:, None] * t1 + w2[:, None] * t2)

@@ -18,7 +18,7 @@ from .classification import classify_blocks
 from .outputs import OutputFolder, file_hash, need_file
 from .project import Project, resolved
 from .report_html import CAUTIONS, HtmlReport
-from .reporting import grade_tonnage
+from .reporting import grade_tonnage, metal_units
 
 __all__ = ["check", "report_again", "run", "run_variography"]
 
@@ -267,7 +267,7 @@ def run(
 ) -> Path:
     """The whole chain; returns the report folder."""
     from . import plots
-    from .support import block_grade_tonnage, empirical_anamorphosis, support_coefficient
+    from .support import change_of_support
     from .validation import cross_validate, global_bias, swath
 
     timer = _Timer()
@@ -419,31 +419,36 @@ def run(
             # change of support: discrete Gaussian model beside the kriged curve
             report.heading("Change of support")
             cut = np.asarray(project.report.cutoffs, dtype=float)
+            support_rows = []
             for d in project.domains:
                 if not d.estimate:
                     continue
                 sub = comps.table[(comps.table["domain"] == d.name) & comps.table[primary].notna()]
-                ana = empirical_anamorphosis(
-                    sub[primary].to_numpy(float), sub["weight"].to_numpy(float)
-                )
                 model = models[f"{d.name}.{primary}"]
-                from . import _kernels
-                from .kriging import discretisation_offsets
-
-                kinds, sills, mats = model.packed()
-                cvv = float(
-                    _kernels.mean_block_covariance(
-                        discretisation_offsets(grid.block_size, project.estimation.discretisation),
-                        kinds,
-                        sills,
-                        mats,
-                    )
-                )
-                block_var = ana.variance * cvv / model.total_sill
-                r = support_coefficient(ana, block_var)
-                theo = block_grade_tonnage(ana, r, cut)
                 b = blocks[(blocks["domain"] == d.name) & np.isfinite(blocks[primary])]
-                total = float(b["tonnes"].sum())
+                curve = change_of_support(
+                    sub[primary].to_numpy(float),
+                    sub["weight"].to_numpy(float),
+                    model,
+                    grid.block_size,
+                    project.estimation.discretisation,
+                    cut,
+                    float(b["tonnes"].sum()),
+                )
+                unit = project.data.grades[primary]
+                for metal_unit, factor in metal_units(unit):
+                    support_rows.append(
+                        pd.DataFrame(
+                            {
+                                "domain": d.name,
+                                "cutoff": cut,
+                                "tonnes": curve.tonnes,
+                                "grade": curve.grade,
+                                "metal": curve.tonnes * np.nan_to_num(curve.grade) * factor,
+                                "metal_unit": metal_unit,
+                            }
+                        )
+                    )
                 kt = np.array([b["tonnes"][b[primary] >= c].sum() for c in cut])
                 kg = np.array(
                     [
@@ -459,14 +464,23 @@ def run(
                 plots.grade_tonnage_figure(
                     {
                         "kriged": (cut, kt, kg),
-                        "discrete Gaussian": (cut, theo[:, 0] * total, theo[:, 1]),
+                        "discrete Gaussian": (cut, curve.tonnes, curve.grade),
                     },
                     p,
-                    project.data.grades[primary],
-                    f"Change of support, {d.name} (r = {r:.3f})",
+                    unit,
+                    f"Change of support, {d.name} (r = {curve.support_coefficient:.3f})",
                 )
                 report.image(
                     p, f"Kriged grade–tonnage curve against the discrete Gaussian model, {d.name}"
+                )
+            if support_rows:
+                _write_table(
+                    pd.concat(support_rows, ignore_index=True), folder / "change_of_support.csv"
+                )
+                report.paragraph(
+                    "Tonnes, grade and metal expected at block support by the discrete Gaussian "
+                    "model (declustered composites, block variance from the variogram model): "
+                    "change_of_support.csv."
                 )
 
         # --- classification and grade-tonnage

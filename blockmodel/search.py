@@ -136,7 +136,7 @@ def find_neighbours(
         Integer code of each sample's hole; needed for ``max_per_hole``.
     candidate_factor : int
         With per-hole or octant rules, this many times ``max_samples`` nearest candidates
-        are examined.
+        are examined first; more are fetched where the limits leave a selection short.
     skip_coincident : bool
         Never use a sample at the target's own location (leave-one-out).
 
@@ -147,27 +147,28 @@ def find_neighbours(
     n = len(samples_t)
     targets_t = search.to_unit_frame(targets)
     kmax = min(int(search.max_samples), n)
-    limited = search.has_limits
-    q = min(n, kmax * candidate_factor) if limited else kmax
-    extra = 1 if skip_coincident and q < n else 0
-    dist, idx = tree.query(targets_t, k=q + extra, distance_upper_bound=1.0 + 1e-12, workers=-1)
-    dist = np.asarray(dist).reshape(len(targets), q + extra)
-    idx = np.asarray(idx, dtype=np.int64).reshape(len(targets), q + extra)
-    if skip_coincident:
-        drop = dist <= 1e-12
-        idx[drop], dist[drop] = n, np.inf
-        order = np.argsort(drop, axis=1, kind="stable")[:, :q]
-        idx = np.take_along_axis(idx, order, axis=1)
-        dist = np.take_along_axis(dist, order, axis=1)
-    if limited:
-        if search.max_per_hole and hole_codes is None:
-            raise ValueError("SearchEllipsoid.max_per_hole needs hole_ids")
-        holes = np.zeros(n, dtype=np.int64) if hole_codes is None else hole_codes
-        safe = np.minimum(idx, n - 1)
-        local = samples_t[safe] - targets_t[:, None, :]
-        out = np.empty((len(targets), kmax), dtype=np.int64)
-        count = np.empty(len(targets), dtype=np.int64)
-        octants = np.empty(len(targets), dtype=np.int64)
+    if not search.has_limits:
+        dist, idx, _ = _query(tree, targets_t, kmax, n, skip_coincident)
+        count = np.sum(idx < n, axis=1)
+        return Neighbourhoods(idx, count, dist, count >= search.min_samples)
+    if search.max_per_hole and hole_codes is None:
+        raise ValueError("SearchEllipsoid.max_per_hole needs hole_ids")
+    holes = np.zeros(n, dtype=np.int64) if hole_codes is None else hole_codes
+    out = np.empty((len(targets), kmax), dtype=np.int64)
+    count = np.empty(len(targets), dtype=np.int64)
+    octants = np.empty(len(targets), dtype=np.int64)
+    # Limits may reject many near candidates: fetch a first batch, then, for targets whose
+    # selection is short while their batch was full (more samples may lie inside the
+    # ellipsoid), fetch again with four times as many until every sample inside is seen.
+    # The result equals applying the limits to all samples inside, in distance order.
+    rows = np.arange(len(targets))
+    q = min(n, kmax * candidate_factor)
+    while len(rows):
+        dist, idx, full = _query(tree, targets_t[rows], q, n, skip_coincident)
+        local = samples_t[np.minimum(idx, n - 1)] - targets_t[rows, None, :]
+        sub_out = np.empty((len(rows), kmax), dtype=np.int64)
+        sub_count = np.empty(len(rows), dtype=np.int64)
+        sub_octants = np.empty(len(rows), dtype=np.int64)
         _kernels.select_neighbours(
             idx,
             local,
@@ -175,14 +176,38 @@ def find_neighbours(
             kmax,
             int(search.max_per_hole or 0),
             int(search.max_per_octant or 0),
-            out,
-            count,
-            octants,
+            sub_out,
+            sub_count,
+            sub_octants,
         )
-        chosen = np.minimum(out, n - 1)
-        d = np.linalg.norm(samples_t[chosen] - targets_t[:, None, :], axis=2)
-        d[out >= n] = np.inf
-        found = (count >= search.min_samples) & (octants >= search.min_octants)
-        return Neighbourhoods(out, count, d, found)
-    count = np.sum(idx < n, axis=1)
-    return Neighbourhoods(idx, count, dist, count >= search.min_samples)
+        out[rows], count[rows], octants[rows] = sub_out, sub_count, sub_octants
+        if q >= n:
+            break
+        short = (sub_count < kmax) & full
+        rows = rows[short]
+        q = min(n, 4 * q)
+    chosen = np.minimum(out, n - 1)
+    d = np.linalg.norm(samples_t[chosen] - targets_t[:, None, :], axis=2)
+    d[out >= n] = np.inf
+    found = (count >= search.min_samples) & (octants >= search.min_octants)
+    return Neighbourhoods(out, count, d, found)
+
+
+def _query(
+    tree: cKDTree, targets_t: np.ndarray, q: int, n: int, skip_coincident: bool
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The ``q`` nearest samples inside the unit sphere: (m, q) distances and indices by
+    increasing distance, padded with inf and ``n``, coincident samples dropped on request;
+    and (m,) whether the query came back full (more samples may lie inside)."""
+    extra = 1 if skip_coincident and q < n else 0
+    dist, idx = tree.query(targets_t, k=q + extra, distance_upper_bound=1.0 + 1e-12, workers=-1)
+    dist = np.asarray(dist).reshape(len(targets_t), q + extra)
+    idx = np.asarray(idx, dtype=np.int64).reshape(len(targets_t), q + extra)
+    full = idx[:, -1] < n
+    if skip_coincident:
+        drop = dist <= 1e-12
+        idx[drop], dist[drop] = n, np.inf
+        order = np.argsort(drop, axis=1, kind="stable")[:, :q]
+        idx = np.take_along_axis(idx, order, axis=1)
+        dist = np.take_along_axis(dist, order, axis=1)
+    return dist, idx, full

@@ -62,3 +62,54 @@ def test_single_survey_below_collar_extends_up():
     )
     np.testing.assert_allclose(p[0], 0.0, atol=1e-12)
     np.testing.assert_allclose(p[1], 10 * direction([90.0], [-45.0])[0], atol=1e-12)
+
+
+def test_random_straight_holes_are_exact(rng):
+    """Stations sharing one azimuth and dip (and the stretch above a first station below
+    the collar) must give the exact straight line: the arccos form once put 1,036 of
+    6,000 composites of such holes more than 1 mm off, the worst by 35 m."""
+    worst = 0.0
+    for _ in range(60):
+        az, dip = rng.uniform(0, 360), rng.uniform(-89.5, -30)
+        collar = np.array([5e5, 7e6, 1200.0]) + rng.uniform(-100, 100, 3)
+        depths = np.arange(1.0, 200.0, 2.0)  # 2 m composite centres
+        p = positions_along_hole(
+            collar, np.array([30.0, 150.0]), np.full(2, az), np.full(2, dip), depths
+        )
+        exact = collar + depths[:, None] * direction([az], [dip])[0]
+        worst = max(worst, float(np.abs(p - exact).max()))
+    assert worst < 1e-6
+
+
+def _integrated_arc(t1, t2, length, fractions, steps=200_000):
+    """Position along an arc by integrating the spherically interpolated direction with the
+    trapezoid rule on a fine grid (an independent numerical check of the closed form)."""
+    b = np.arccos(np.clip(t1 @ t2, -1, 1)) if not np.allclose(t1, t2) else 0.0
+    u = np.linspace(0.0, 1.0, steps + 1)
+    if b == 0.0:
+        dirs = np.outer(1 - u, t1) + np.outer(u, t2)
+    else:
+        # axis-angle rotation of t1 toward t2, computed without the closed form's weights
+        axis = np.cross(t1, t2)
+        axis /= np.linalg.norm(axis)
+        ang = b * u[:, None]
+        dirs = t1 * np.cos(ang) + np.cross(axis, t1) * np.sin(ang)
+    dirs /= np.linalg.norm(dirs, axis=1, keepdims=True)
+    seg = 0.5 * (dirs[1:] + dirs[:-1]) * (length / steps)
+    cum = np.vstack([np.zeros(3), np.cumsum(seg, axis=0)])
+    return cum[np.round(np.asarray(fractions) * steps).astype(int)]
+
+
+@pytest.mark.parametrize("bend_rad", [1e-8, 3e-8, 1e-7, 3e-7, 1e-5, 1e-3, 0.35])
+@pytest.mark.parametrize("az, dip", [(37.0, -62.0), (200.0, -85.0), (10.0, -30.0)])
+def test_tiny_and_ordinary_bends_match_numerical_integration(bend_rad, az, dip):
+    # the arccos form gave 0.5 m errors for a dip change of 1e-7 rad over 100 m, and 22 m
+    # for 1e-8 rad
+    stations = np.array([0.0, 100.0])
+    dips = np.array([dip, dip + np.degrees(bend_rad)])
+    p = positions_along_hole(
+        np.zeros(3), stations, np.full(2, az), dips, np.array([25.0, 50.0, 100.0])
+    )
+    t = direction(np.full(2, az), dips)
+    ref = _integrated_arc(t[0], t[1], 100.0, [0.25, 0.5, 1.0])
+    np.testing.assert_allclose(p, ref, atol=1e-6)
