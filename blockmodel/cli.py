@@ -231,6 +231,21 @@ def main(argv: list[str] | None = None) -> int:
             out = runner.run_variography(project, args.out, replace=args.replace)
             print(f"variography written to {out}")
         elif args.command == "report":
+            cut = args.cutoffs
+            if cut is not None and (
+                any(c < 0 for c in cut) or any(b <= a for a, b in zip(cut, cut[1:], strict=False))
+            ):
+                raise InputError(
+                    [
+                        Problem(
+                            "command line",
+                            None,
+                            None,
+                            "--cutoffs",
+                            f"cut-offs must be zero or more and strictly increasing; got {cut}",
+                        )
+                    ]
+                )
             out = runner.report_again(
                 project,
                 args.block_model,

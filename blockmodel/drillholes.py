@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import csv
 import io
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -74,7 +75,8 @@ def read_table(path: Path, required: dict[str, str]) -> pd.DataFrame:
         ) from None
     if not text.strip():
         raise InputError([Problem(name, None, None, None, "file is empty")])
-    rows = list(csv.reader(io.StringIO(text)))
+    # line endings of any system: CRLF, LF, or a bare CR
+    rows = list(csv.reader(io.StringIO(text.replace("\r\n", "\n").replace("\r", "\n"))))
     header = [h.strip() for h in rows[0]]
     if len(header) == 1 and any(sep in header[0] for sep in ";\t|"):
         raise InputError(
@@ -130,17 +132,63 @@ def read_table(path: Path, required: dict[str, str]) -> pd.DataFrame:
     return table
 
 
-def _numbers(table, col, file, problems, hole_col, *, allow_blank=False) -> np.ndarray:
-    text = table[col].astype(str)
-    values = pd.to_numeric(text.where(text != "", None), errors="coerce").to_numpy(float)
-    bad = np.isnan(values) & ((text != "") | (not allow_blank))
-    for line, hole, v in zip(table["_line"][bad], table[hole_col][bad], text[bad], strict=True):
-        what = "missing value" if v == "" else f"not a number: {v!r}"
-        problems.append(Problem(file, int(line), hole, col, what))
-    return values
+# A plain decimal number as drill logs write it: no thousands separators or underscores
+# (Python would read "1_000" as 1000), no "inf" or "nan".
+_NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
+
+# Largest magnitudes that can be real (metres): projected northings reach 1e7; the deepest
+# drillholes are about 12 km.
+COORDINATE_LIMIT = 1e8
+DEPTH_LIMIT = 20_000.0
+
+
+def parse_number(text: str) -> float | None:
+    """The value of a plain decimal number, or None when the text is not one."""
+    if not _NUMBER.fullmatch(text):
+        return None
+    value = float(text)
+    return value if np.isfinite(value) else None
+
+
+def _numbers(
+    table, col, file, problems, hole_col, *, allow_blank=False, low=-np.inf, high=np.inf
+) -> np.ndarray:
+    """Column ``col`` as float64; problems for blanks, non-numbers and values outside
+    [low, high] (NaN in the result where a problem was found)."""
+    out = np.full(len(table), np.nan)
+    for n, (v, line, hole) in enumerate(
+        zip(table[col].astype(str), table["_line"], table[hole_col], strict=True)
+    ):
+        if v == "":
+            if not allow_blank:
+                problems.append(Problem(file, int(line), hole, col, "missing value"))
+            continue
+        value = parse_number(v)
+        if value is None:
+            hint = " (write numbers without separators)" if "_" in v or "," in v else ""
+            problems.append(Problem(file, int(line), hole, col, f"not a number: {v!r}{hint}"))
+        elif not low <= value <= high:
+            problems.append(
+                Problem(
+                    file,
+                    int(line),
+                    hole,
+                    col,
+                    f"{v} is outside the possible range [{low:g}, {high:g}]",
+                )
+            )
+        else:
+            out[n] = value
+    return out
+
+
+# Grades above these are more metal than rock: 100 % in each unit.
+GRADE_LIMITS = {"%": 100.0, "g/t": 1e6, "ppm": 1e6, "ppb": 1e9}
 
 
 def _grades(table, col, file, data: DataFiles, problems, hole_col):
+    unit = data.grades[col]
+    grade_limit = GRADE_LIMITS[unit]
     text = table[col].astype(str)
     out = np.full(len(text), np.nan)
     below = 0
@@ -151,29 +199,44 @@ def _grades(table, col, file, data: DataFiles, problems, hole_col):
             missing += 1
             continue
         if t.startswith("<"):
-            try:
-                limit = float(t[1:])
-            except ValueError:
-                problems.append(Problem(file, int(line), hole, col, f"not a number: {t!r}"))
+            limit = parse_number(t[1:].strip())
+            if limit is None or not 0 <= limit <= grade_limit:
+                problems.append(
+                    Problem(file, int(line), hole, col, f"not a detection limit: {t!r}")
+                )
                 continue
             out[n] = limit * data.below_detection_factor
             below += 1
             continue
-        try:
-            v = float(t)
-        except ValueError:
-            problems.append(Problem(file, int(line), hole, col, f"not a number: {t!r}"))
-            continue
-        if v in sentinels:
+        v = parse_number(t)
+        if v is None:
+            hint = (
+                "; leave the cell blank for a missing value"
+                if t.lower() in ("nan", "na", "n/a", "null", "none", "-")
+                else ""
+            )
+            problems.append(Problem(file, int(line), hole, col, f"not a number: {t!r}{hint}"))
+        elif v in sentinels:
             missing += 1
-        elif v < 0 or not np.isfinite(v):
+        elif v < 0:
             problems.append(
                 Problem(
                     file,
                     int(line),
                     hole,
                     col,
-                    f"negative or infinite grade {t} (declare it in data.missing_values if it marks a missing value)",
+                    f"negative grade {t} (if it marks a missing value, add {v:g} to "
+                    "data.missing_values)",
+                )
+            )
+        elif v > grade_limit:
+            problems.append(
+                Problem(
+                    file,
+                    int(line),
+                    hole,
+                    col,
+                    f"grade {t} is more than the whole rock ({grade_limit:g} {unit})",
                 )
             )
         else:
@@ -216,8 +279,11 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
     warnings: list[Problem] = []
 
     collars = pd.DataFrame({"hole": collars_raw[c.hole].astype(str), "_line": collars_raw["_line"]})
-    for key, col in (("x", c.x), ("y", c.y), ("z", c.z), ("depth", c.depth)):
-        collars[key] = _numbers(collars_raw, col, cf, problems, c.hole)
+    for key, col in (("x", c.x), ("y", c.y), ("z", c.z)):
+        collars[key] = _numbers(
+            collars_raw, col, cf, problems, c.hole, low=-COORDINATE_LIMIT, high=COORDINATE_LIMIT
+        )
+    collars["depth"] = _numbers(collars_raw, c.depth, cf, problems, c.hole, high=DEPTH_LIMIT)
     for line, hole in zip(collars["_line"], collars["hole"], strict=True):
         if hole == "":
             problems.append(Problem(cf, int(line), None, c.hole, "missing hole id"))
@@ -231,7 +297,9 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
     total_depth = dict(zip(collars["hole"], collars["depth"], strict=True))
 
     surveys = pd.DataFrame({"hole": surveys_raw[c.hole].astype(str), "_line": surveys_raw["_line"]})
-    surveys["depth"] = _numbers(surveys_raw, c.survey_depth, sf, problems, c.hole)
+    surveys["depth"] = _numbers(
+        surveys_raw, c.survey_depth, sf, problems, c.hole, low=0.0, high=DEPTH_LIMIT
+    )
     surveys["azimuth"] = _numbers(surveys_raw, c.azimuth, sf, problems, c.hole)
     surveys["dip"] = _numbers(surveys_raw, c.dip, sf, problems, c.hole)
     for row in surveys.itertuples():
@@ -239,9 +307,9 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
             problems.append(
                 Problem(sf, row._2, row.hole, c.hole, "survey for a hole with no collar")
             )
-        if not (0 <= row.azimuth < 360) and np.isfinite(row.azimuth):
+        if not (0 <= row.azimuth <= 360) and np.isfinite(row.azimuth):
             problems.append(
-                Problem(sf, row._2, row.hole, c.azimuth, f"azimuth {row.azimuth} outside [0, 360)")
+                Problem(sf, row._2, row.hole, c.azimuth, f"azimuth {row.azimuth} outside [0, 360]")
             )
         if not (-90 <= row.dip <= 90) and np.isfinite(row.dip):
             problems.append(
@@ -253,8 +321,6 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
                     f"dip {row.dip} outside [-90, 90] (negative is downward)",
                 )
             )
-        if row.depth < 0:
-            problems.append(Problem(sf, row._2, row.hole, c.survey_depth, "negative survey depth"))
     for hole, grp in surveys.groupby("hole", sort=False):
         d = grp["depth"].to_numpy()
         steps = np.diff(d)
@@ -269,6 +335,19 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
                         sf, int(line), hole, c.survey_depth, "survey depths not in increasing order"
                     )
                 )
+        if (grp["dip"] > 0).any():
+            k = int(np.argmax(grp["dip"].to_numpy() > 0))
+            warnings.append(
+                Problem(
+                    sf,
+                    int(grp["_line"].iloc[k]),
+                    hole,
+                    c.dip,
+                    f"dip {grp['dip'].iloc[k]:g} points upward: the trace rises above its "
+                    "collar (dip is negative downward; a hole drilled up from underground is "
+                    "the only reason for a positive dip)",
+                )
+            )
         if len(grp) == 1:
             warnings.append(
                 Problem(
@@ -296,14 +375,19 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
     intervals = pd.DataFrame(
         {"hole": intervals_raw[c.hole].astype(str), "_line": intervals_raw["_line"]}
     )
-    intervals["from"] = _numbers(intervals_raw, c.depth_from, af, problems, c.hole)
-    intervals["to"] = _numbers(intervals_raw, c.depth_to, af, problems, c.hole)
+    intervals["from"] = _numbers(
+        intervals_raw, c.depth_from, af, problems, c.hole, low=0.0, high=DEPTH_LIMIT
+    )
+    intervals["to"] = _numbers(
+        intervals_raw, c.depth_to, af, problems, c.hole, low=0.0, high=DEPTH_LIMIT
+    )
     intervals["domain"] = (
         intervals_raw[c.domain].astype(str) if c.domain in intervals_raw.columns else ""
     )
     if data.density:
+        # t/m3: the densest ores (massive sulphides, native metals in rock) stay below 20
         intervals["density"] = _numbers(
-            intervals_raw, data.density, af, problems, c.hole, allow_blank=True
+            intervals_raw, data.density, af, problems, c.hole, allow_blank=True, high=25.0
         )
         bad = intervals["density"] <= 0
         for line, hole in zip(intervals["_line"][bad], intervals["hole"][bad], strict=True):

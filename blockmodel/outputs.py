@@ -23,6 +23,7 @@ import errno
 import hashlib
 import json
 import os
+import re
 import shutil
 import signal
 import tempfile
@@ -40,6 +41,7 @@ __all__ = [
     "file_hash",
     "is_tool_folder",
     "need_file",
+    "safe_stem",
     "watch_interrupts",
     "write_json",
 ]
@@ -309,6 +311,16 @@ def _set_normal_mode(folder: Path) -> None:
     mask = os.umask(0)
     os.umask(mask)
     os.chmod(folder, 0o777 & ~mask)
+
+
+def safe_stem(name: str) -> str:
+    """A file-name part for a user's name (domain, grade): letters, digits, ``-`` and ``_``
+    only, at most 40 characters; a name that had to change gets a short hash of itself, so
+    two names never give the same file."""
+    stem = re.sub(r"[^A-Za-z0-9_-]", "_", name)[:40]
+    if stem == name:
+        return stem
+    return f"{stem}-{hashlib.sha1(name.encode('utf-8')).hexdigest()[:8]}"
 
 
 def atomic_path(path: Path) -> Path:

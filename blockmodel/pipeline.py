@@ -6,6 +6,7 @@ classify -> validate.  The command line calls these and writes their outputs.
 
 from __future__ import annotations
 
+import difflib
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -57,10 +58,14 @@ class Composites:
 def load_and_composite(project: Project) -> Composites:
     """Load and check drillholes, composite, cap; domain names replace interval codes."""
     holes = load_drillholes(project.data)
+    _check_codes(project, holes)
     code_to_name = {d.code: d.name for d in project.domains}
     comps, summary = composite(holes, project.compositing)
     comps["domain"] = comps["domain"].map(lambda c: code_to_name.get(c, c))
     comps, capping = cap_grades(comps, project.capping)
+    # Order by position, not by hole name: results must not depend on what holes are called
+    # (ties in the search and the order of sums follow the table's order).
+    comps = comps.sort_values(["x", "y", "z", "hole"], kind="stable").reset_index(drop=True)
     for d in project.domains:
         if d.estimate and not (comps["domain"] == d.name).any():
             raise InputError(
@@ -75,6 +80,30 @@ def load_and_composite(project: Project) -> Composites:
                 ]
             )
     return Composites(holes, comps, summary, capping)
+
+
+def _check_codes(project: Project, holes: DrillholeSet) -> None:
+    """Interval codes that name no domain: an error where the code differs from a declared
+    one only in case or spaces (a typing slip), otherwise a warning with the count."""
+    declared = {d.code for d in project.domains}
+    counts = holes.intervals["domain"].value_counts()
+    slips = []
+    for code, count in counts.items():
+        if code in declared or code == "":
+            continue
+        same = [d for d in declared if d.strip().lower() == str(code).strip().lower()]
+        close = same or difflib.get_close_matches(str(code), sorted(declared), n=1, cutoff=0.75)
+        hint = f"; did you mean '{close[0]}'?" if close else " (not estimated)"
+        problem = Problem(
+            str(project.data.intervals),
+            None,
+            None,
+            project.data.columns.domain,
+            f"code '{code}' in {count} interval(s) matches no domain{hint}",
+        )
+        (slips if same else holes.warnings).append(problem)
+    if slips:
+        raise InputError(slips)
 
 
 def block_model_grid(project: Project) -> BlockGrid:
@@ -93,11 +122,11 @@ def model_proportions(
     from scipy.spatial import cKDTree
 
     from .domains import block_proportions
-    from .solids import read_surface
+    from .solids import read_solid, read_surface
 
     topo = read_surface(project.grid.topography) if project.grid.topography else None
     with_solid = [n for n, d in enumerate(project.domains) if d.solid is not None]
-    solids = [read_surface(project.domains[n].solid) for n in with_solid]
+    solids = [read_solid(project.domains[n].solid) for n in with_solid]
     out = np.zeros((grid.n_blocks, len(project.domains)), dtype=np.float32)
     if solids:
         out[:, with_solid] = block_proportions(grid, solids, topo, subcells=project.grid.subcells)
@@ -123,6 +152,53 @@ def model_proportions(
         take = (names == project.domains[n].name) & (dist <= project.grid.code_reach)
         out[take, n] = free[take]
     return out
+
+
+MIN_SOLID_SHARE = 0.99  # share of a solid's volume the grid must hold
+
+
+def solid_shares(project: Project, grid: BlockGrid) -> dict[str, float]:
+    """Share of each domain solid's volume inside the block grid; stops when one is below
+    99 % (the grid would silently leave part of the domain out of the tonnes)."""
+    from .solids import read_solid, share_inside_box
+
+    lo = np.asarray(grid.origin, dtype=np.float64)
+    hi = lo + np.asarray(grid.shape) * np.asarray(grid.block_size)
+    shares, problems = {}, []
+    for d in project.domains:
+        if d.solid is None:
+            continue
+        shares[d.name] = share_inside_box(read_solid(d.solid), lo, hi)
+        if shares[d.name] < MIN_SOLID_SHARE:
+            problems.append(
+                Problem(
+                    str(project.source),
+                    None,
+                    None,
+                    "grid",
+                    f"only {100 * shares[d.name]:.1f} % of the volume of domain '{d.name}' "
+                    f"({d.solid.name}) lies inside the block grid (from {lo.round(1).tolist()} "
+                    f"to {hi.round(1).tolist()}); enlarge grid.shape or move grid.origin",
+                )
+            )
+    if problems:
+        raise InputError(problems)
+    return shares
+
+
+def check_proportions(project: Project, props: np.ndarray) -> None:
+    """Stop when no block holds any domain (grid away from the solids or the data, or a
+    topography above which every block lies)."""
+    if props.sum() > 0:
+        return
+    why = (
+        "every block lies above the topography or outside the domains"
+        if project.grid.topography is not None
+        else "no block lies inside a domain solid or near composites of a coded domain"
+    )
+    raise InputError(
+        [Problem(str(project.source), None, None, "grid", f"the block grid holds no rock: {why}")]
+    )
 
 
 QUANTILES = np.array([0.1, 0.25, 0.5, 0.75, 0.9, 0.95])
@@ -173,8 +249,17 @@ def decluster(
                 fixed_size=s.fixed_size,
             )
             w[ok] = cell.weights
-        elif s.method == "nearest" and grid is not None and proportions is not None:
+        elif s.method == "nearest":
+            if grid is None or proportions is None:
+                raise ValueError("nearest-neighbour declustering needs the grid and proportions")
             flat = np.flatnonzero(proportions[:, d_index] > 0)
+            if len(flat) == 0:
+                raise _fail(
+                    project.source,
+                    "declustering.method",
+                    f"nearest-neighbour declustering of domain '{d.name}' needs blocks of the "
+                    "domain in the grid, and there are none",
+                )
             w = nearest_neighbour_weights(pts, grid.centres(flat))
         table.loc[table.index[rows], "weight"] = w
         naive, decl, var, quant = {}, {}, {}, {}
@@ -344,18 +429,19 @@ def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]
     return out
 
 
-def _estimated_density(project, table, domain, centres, grid, e) -> np.ndarray:
+def _estimated_density(project, table, domain, centres, grid, e, orientation) -> np.ndarray:
     """Inverse-distance estimate of measured density from the domain's composites, with the
-    search passes; blocks the search cannot reach keep the domain's constant density."""
+    domain's search passes oriented as its first grade's model (or as each pass says);
+    blocks the search cannot reach keep the domain's constant density."""
     source = table[(table["domain"] == domain.name) & table["density"].notna()]
     if len(source) == 0:
-        return np.full(len(centres), domain.density)
-    passes = passes_from(
-        project.passes_for(domain.name),
-        Orientation(*project.variography.orientation)
-        if project.variography.orientation
-        else Orientation(),
-    )
+        raise _fail(
+            project.source,
+            f"domains.{domain.name}.density_from_composites",
+            f"domain '{domain.name}' has no composite with a measured density "
+            f"({project.data.density}); give a constant density instead",
+        )
+    passes = passes_from(project.passes_for(domain.name), orientation)
     job = EstimationJob(
         source[["x", "y", "z"]].to_numpy(float),
         source["density"].to_numpy(float),
@@ -431,20 +517,37 @@ def estimate_block_model(
         )
         frame["_flat"] = flat
         if d.density_from_composites:
-            frame["density"] = _estimated_density(project, table, d, centres, grid, e)
+            model = models[f"{d.name}.{project.grades[0]}"]
+            orientation = model.structures[0].orientation if model.structures else Orientation()
+            frame["density"] = _estimated_density(project, table, d, centres, grid, e, orientation)
             frame["tonnes"] = grid.block_volume * prop * frame["density"].to_numpy()
         for g in project.grades:
             key = f"{d.name}.{g}"
             source = table if e.boundaries == "soft" else table[table["domain"] == d.name]
             source = source[source[g].notna()]
             model = models[key]
+            fewest = min(p.min_samples for p in project.passes_for(d.name))
+            if fewest > len(source):
+                raise _fail(
+                    project.source,
+                    "search.min_samples",
+                    f"every search pass of domain '{d.name}' needs at least {fewest} samples, "
+                    f"but the domain has {len(source)} composites with {g}",
+                )
             passes = passes_from(
                 project.passes_for(d.name),
                 model.structures[0].orientation if model.structures else Orientation(),
             )
             mean = None
             if e.method == "simple":
-                mean = (declustered_means or {}).get(d.name, {}).get(g, float(source[g].mean()))
+                mean = (declustered_means or {}).get(d.name, {}).get(g, float("nan"))
+                if not np.isfinite(mean):
+                    raise _fail(
+                        project.source,
+                        "estimation.method",
+                        f"simple kriging needs the declustered mean of {g} in domain "
+                        f"'{d.name}', and it could not be computed (no composites with {g})",
+                    )
             job = EstimationJob(
                 source[["x", "y", "z"]].to_numpy(float),
                 source[g].to_numpy(float),

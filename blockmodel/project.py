@@ -10,6 +10,9 @@ from __future__ import annotations
 
 import dataclasses
 import difflib
+import math
+import os
+import re
 import tomllib
 import types
 import typing
@@ -36,6 +39,7 @@ __all__ = [
     "StructureSpec",
     "Validation",
     "Variography",
+    "grid_memory_bytes",
     "load_project",
     "resolved",
 ]
@@ -313,6 +317,8 @@ class _Reader:
         if tp is float:
             if isinstance(value, bool) or not isinstance(value, (int, float)):
                 self.fail(key, f"'{key}' must be a number; got {value!r}")
+            if not math.isfinite(value) or abs(value) > 1e12:
+                self.fail(key, f"'{key}' must be a finite number of sensible size; got {value!r}")
             return float(value)
         if tp is int:
             if isinstance(value, bool) or not isinstance(value, int):
@@ -338,6 +344,21 @@ class _Reader:
                 self.fail(key, f"'{key}' must be a table")
             return {k: self.convert(args[1], v, f"{key}.{k}") for k, v in value.items()}
         raise TypeError(f"unsupported type {tp} for {key}")  # pragma: no cover - schema bug
+
+
+def grid_memory_bytes(p: Project) -> float:
+    """Memory a run needs for its block grid at worst (every block in every domain):
+    proportions (4 bytes per block and domain) and the block model's columns (8 bytes each:
+    ten for position, domain and tonnes, eleven per grade)."""
+    blocks = math.prod(p.grid.shape)
+    return float(blocks) * (4 * len(p.domains) + 8 * (10 + 11 * len(p.data.grades)))
+
+
+def _physical_memory() -> float:
+    try:
+        return float(os.sysconf("SC_PHYS_PAGES") * os.sysconf("SC_PAGE_SIZE"))
+    except (ValueError, OSError, AttributeError):  # not reported: assume a laptop
+        return 8.0 * 2**30
 
 
 def _check_values(p: Project, r: _Reader) -> None:
@@ -374,6 +395,18 @@ def _check_values(p: Project, r: _Reader) -> None:
         r.fail("domains", "declare at least one [[domains]] table")
     if len(set(names)) != len(names):
         r.fail("domains", f"domain names must be unique; got {names}")
+    for i, name in enumerate(names):
+        if name.strip().lower() == "all" or not name.strip():
+            r.fail(
+                f"domains[{i}].name",
+                f"domain name {name!r} is not allowed: 'all' marks totals in the tables",
+            )
+    for i, rule in enumerate(p.classification.rules):
+        if rule.name.strip().lower() == "all" or not rule.name.strip():
+            r.fail(
+                f"classification.rules[{i}].name",
+                f"class name {rule.name!r} is not allowed: 'all' marks totals in the tables",
+            )
     for i, d in enumerate(p.domains):
         positive(f"domains[{i}].density", [d.density])
         if d.density_from_composites and not p.data.density:
@@ -403,7 +436,48 @@ def _check_values(p: Project, r: _Reader) -> None:
         positive(f"{key}.ranges", s.ranges)
         if not 1 <= s.min_samples <= s.max_samples:
             r.fail(key, "need 1 <= min_samples <= max_samples")
+    orientations = [("variography.orientation", p.variography.orientation)]
+    orientations += [(f"{key}.orientation", s.orientation) for key, s in searches]
+    orientations += [
+        (f"variogram.{key}.structures[{j}].orientation", st.orientation)
+        for key, spec in p.variogram.items()
+        for j, st in enumerate(spec.structures)
+    ]
+    for key, o in orientations:
+        if o is None:
+            continue
+        az, plunge, tilt = o
+        if not (-360 <= az <= 360 and -90 <= plunge <= 90 and -180 <= tilt <= 180):
+            r.fail(
+                key,
+                f"'{key}' is [azimuth, plunge, tilt] with azimuth in [-360, 360], plunge in "
+                f"[-90, 90] and tilt in [-180, 180] degrees; got {list(o)}",
+            )
+    if any(n > 20 for n in p.estimation.discretisation):
+        r.fail(
+            "estimation.discretisation",
+            "'estimation.discretisation' takes at most 20 points per axis (4 x 4 x 2 is usual); "
+            f"got {list(p.estimation.discretisation)}",
+        )
+    if any(n > 50 for n in p.grid.subcells):
+        r.fail(
+            "grid.subcells",
+            f"'grid.subcells' takes at most 50 per axis; got {list(p.grid.subcells)}",
+        )
+    need = grid_memory_bytes(p)
+    have = _physical_memory()
+    if need > 0.5 * have:
+        r.fail(
+            "grid.shape",
+            f"a grid of {math.prod(p.grid.shape):,} blocks needs about {need / 2**30:,.1f} GiB, "
+            f"more than half of this machine's {have / 2**30:,.1f} GiB; use larger blocks or a "
+            "smaller grid",
+        )
     cut = list(p.report.cutoffs)
+    if not cut:
+        r.fail(
+            "report.cutoffs", "'report.cutoffs' needs at least one cut-off grade, e.g. [0.0, 0.5]"
+        )
     if cut != sorted(cut) or len(set(cut)) != len(cut) or any(c < 0 for c in cut):
         r.fail(
             "report.cutoffs",
@@ -451,9 +525,11 @@ def load_project(path: str | Path) -> Project:
             [Problem(str(path), None, None, None, f"not UTF-8 text ({exc.reason})")]
         ) from None
     except tomllib.TOMLDecodeError as exc:
-        raise InputError(
-            [Problem(str(path), getattr(exc, "lineno", None), None, None, f"not valid TOML: {exc}")]
-        ) from None
+        line = getattr(exc, "lineno", None)
+        if line is None:  # Python < 3.14 gives the line only in the message
+            found = re.search(r"line (\d+)", str(exc))
+            line = int(found.group(1)) if found else None
+        raise InputError([Problem(str(path), line, None, None, f"not valid TOML: {exc}")]) from None
     # [variogram] nests models as variogram.<domain>.<grade>; flatten to "domain.grade".
     models = raw.get("variogram", {})
     if isinstance(models, dict):

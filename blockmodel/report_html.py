@@ -35,6 +35,11 @@ class HtmlReport:
     def __init__(self, title: str):
         self.title = title
         self.parts: list[str] = []
+        self.warnings: list[str] = []
+
+    def warn(self, text: str) -> None:
+        """A warning shown in a box at the top of the report."""
+        self.warnings.append(text)
 
     def heading(self, text: str) -> None:
         self.parts.append(f"<h2>{html.escape(text)}</h2>")
@@ -61,9 +66,17 @@ class HtmlReport:
 
     def write(self, path: Path) -> None:
         caution = f'<div class="caution"><strong>Caution.</strong> {html.escape(CAUTIONS)}</div>'
+        warned = ""
+        if self.warnings:
+            items = "".join(f"<li>{html.escape(w)}</li>" for w in self.warnings)
+            warned = (
+                f'<div class="caution"><strong>{len(self.warnings)} warning(s) from this run'
+                f"</strong><ul>{items}</ul></div>"
+            )
         doc = (
             f"<!doctype html><html><head><meta charset='utf-8'><title>{html.escape(self.title)}</title>"
             f"<style>{_STYLE}</style></head><body><h1>{html.escape(self.title)}</h1>{caution}"
+            + warned
             + "\n".join(self.parts)
             + f"{caution}</body></html>"
         )

@@ -76,7 +76,9 @@ def grade_tonnage(
     for dom, cls, mask in groups:
         t, v = t_all[mask], g_all[mask]
         for c in cutoffs:
-            above = v >= c
+            # at a cut-off of zero or below every estimated block counts, including the few
+            # that kriging puts below zero, so the row equals the model's estimated tonnes
+            above = v >= c if c > 0 else np.ones(len(v), dtype=bool)
             tonnes = float(t[above].sum())
             gram_units = float(t[above] @ v[above])
             mean = gram_units / tonnes if tonnes > 0 else float("nan")

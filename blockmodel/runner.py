@@ -15,7 +15,7 @@ import pandas as pd
 
 from . import pipeline as stages
 from .classification import classify_blocks
-from .outputs import OutputFolder, file_hash, need_file
+from .outputs import OutputFolder, file_hash, need_file, safe_stem
 from .project import Project, resolved
 from .report_html import CAUTIONS, HtmlReport
 from .reporting import grade_tonnage, metal_units
@@ -25,6 +25,15 @@ __all__ = ["check", "report_again", "run", "run_variography"]
 
 def _say(message: str) -> None:
     print(message, file=sys.stderr, flush=True)
+
+
+def _warn(report: HtmlReport, message: str) -> None:
+    """A warning: on the terminal now, and in the report's warning box."""
+    _say(f"  warning: {message}")
+    report.warn(message)
+
+
+MIN_VALIDATION_CORRELATION = 0.3  # below it the model does not predict (common practice)
 
 
 class _Timer:
@@ -135,7 +144,7 @@ def _variography_outputs(project, comps, vario, decl, folder: Path, report: Html
                 }
             )
         if d.cell is not None:
-            p = folder / f"declustering_{name}.png"
+            p = folder / f"declustering_{safe_stem(name)}.png"
             plots.declustering_figure(
                 d.cell.sizes,
                 d.cell.means,
@@ -155,13 +164,13 @@ def _variography_outputs(project, comps, vario, decl, folder: Path, report: Html
     )
     report.table(table)
     for name in decl:
-        p = folder / f"declustering_{name}.png"
+        p = folder / f"declustering_{safe_stem(name)}.png"
         if p.exists():
             report.image(p, f"Declustered mean against cell size, {name}")
     snippets = []
     report.heading("Variograms and models")
     for key, res in vario.items():
-        p = folder / f"variogram_{key.replace('.', '_')}.png"
+        p = folder / f"variogram_{safe_stem(key.replace('.', '_'))}.png"
         plots.variogram_figure(res, p, units[res.grade])
         snippets.append(f"# {key}: {res.source}\n" + res.model.to_toml(key))
         report.paragraph(
@@ -174,7 +183,7 @@ def _variography_outputs(project, comps, vario, decl, folder: Path, report: Html
             + f"; orientation (azimuth, plunge, tilt) {dataclasses.astuple(res.orientation)}."
         )
         report.image(p, f"Experimental variograms and model, {key}")
-        stem = key.replace(".", "_")
+        stem = safe_stem(key.replace(".", "_"))
         if res.scan is not None:
             p = folder / f"direction_map_{stem}.png"
             plots.direction_map_figure(res, p, units[res.grade])
@@ -195,7 +204,11 @@ def run_variography(project: Project, out: Path | None = None, *, replace: bool 
     out = Path(out) if out is not None else folder.with_name(f"{folder.name}_variography")
     with OutputFolder(out, input_files(project), replace=replace) as staged:
         comps = stages.load_and_composite(project)
-        decl = stages.decluster(project, comps.table)
+        grid = props = None
+        if project.declustering.method == "nearest":  # weights come from the blocks
+            grid = stages.block_model_grid(project)
+            props = stages.model_proportions(project, grid, comps.table)
+        decl = stages.decluster(project, comps.table, grid, props)
         vario = stages.variography(project, comps.table)
         report = HtmlReport(f"{project.name}: declustering and variography")
         _variography_outputs(project, comps, vario, decl, staged.path, report)
@@ -210,6 +223,44 @@ def run_variography(project: Project, out: Path | None = None, *, replace: bool 
             }
         )
     return staged.target
+
+
+def _estimate_warnings(project, comps, grid, blocks, shares) -> list[str]:
+    """What the estimate cannot be trusted for, in words for the report."""
+    out = []
+    primary = project.grades[0]
+    unit = project.data.grades[primary]
+    for name, share in shares.items():
+        if share < 1.0:
+            out.append(
+                f"{100 * (1 - share):.2f} % of the volume of domain '{name}' lies outside the "
+                "block grid and is not in the tonnes"
+            )
+    estimated = blocks[np.isfinite(blocks[primary])]
+    if project.grid.topography is None:
+        top = float(comps.holes.collars["z"].max())
+        above = estimated[estimated["z"] - grid.block_size[2] / 2 > top]
+        if len(above):
+            out.append(
+                f"{len(above)} estimated block(s), {above['tonnes'].sum():,.0f} t, lie wholly above "
+                f"the highest collar (z {top:.1f} m) and no topography is given: they may be air"
+            )
+    for g in project.grades:
+        low = blocks[blocks[g] < 0]
+        if len(low):
+            out.append(
+                f"{len(low)} block estimate(s) of {g} are below zero (lowest "
+                f"{low[g].min():.4g} {project.data.grades[g]}, {low['tonnes'].sum():,.0f} t): "
+                "negative kriging weights; they count at cut-off 0 and are kept as estimated"
+            )
+    unestimated = blocks[~np.isfinite(blocks[primary])]
+    if len(unestimated):
+        out.append(
+            f"{len(unestimated)} block(s), {unestimated['tonnes'].sum():,.0f} t, inside the domains "
+            f"were not estimated (no search pass found enough samples); they are not in the "
+            f"grade–tonnage tables ({unit})"
+        )
+    return out
 
 
 def _grade_tonnage_outputs(
@@ -234,7 +285,7 @@ def _grade_tonnage_outputs(
                     part["tonnes"].to_numpy(),
                     part["grade"].to_numpy(),
                 )
-        p = folder / f"grade_tonnage_{g}.png"
+        p = folder / f"grade_tonnage_{safe_stem(g)}.png"
         plots.grade_tonnage_figure(curves, p, unit, f"Grade–tonnage, {g} (kriged blocks)")
         report.heading(f"Grade–tonnage: {g}")
         report.paragraph(
@@ -277,10 +328,18 @@ def run(
         report = HtmlReport(f"{project.name}: block model estimate")
         with timer("load, check and composite"):
             comps = stages.load_and_composite(project)
-        _write_table(comps.table, folder / "composites.csv")
+        for w in comps.holes.warnings[:20]:
+            _say("  warning: " + "  ".join(x for x in w.row() if x))
+        if len(comps.holes.warnings) > 20:
+            _say(f"  ... {len(comps.holes.warnings) - 20} more data warnings in the report")
+        _write_table(
+            comps.table.sort_values(["hole", "from"], kind="stable"), folder / "composites.csv"
+        )
         with timer("domain proportions"):
             grid = stages.block_model_grid(project)
+            shares = stages.solid_shares(project, grid)
             props = stages.model_proportions(project, grid, comps.table)
+            stages.check_proportions(project, props)
         with timer("declustering"):
             decl = stages.decluster(project, comps.table, grid, props)
         with timer("variography"):
@@ -304,6 +363,8 @@ def run(
         blocks["class"] = classify_blocks(
             blocks, primary, cls.rules, cls.fallback, clean_up=cls.clean_up
         )
+        for message in _estimate_warnings(project, comps, grid, blocks, shares):
+            _warn(report, message)
 
         # --- data, compositing, capping
         holes = comps.holes
@@ -384,9 +445,23 @@ def run(
                     model,
                     passes_from(project.passes_for(d.name), model.structures[0].orientation),
                     leave_out=project.validation.leave_out,
+                    method=project.estimation.method,
+                    mean=decl[d.name].declustered_mean[primary]
+                    if project.estimation.method == "simple"
+                    else None,
                 )
-                cv_rows.append({"domain": d.name, **cv.summary()})
-                p = folder / f"cross_validation_{d.name}.png"
+                cv_rows.append(
+                    {"domain": d.name, "method": project.estimation.method, **cv.summary()}
+                )
+                if not cv.correlation >= MIN_VALIDATION_CORRELATION:
+                    _warn(
+                        report,
+                        f"cross-validation of {primary} in '{d.name}': correlation of true and "
+                        f"estimated grades {cv.correlation:.3f}, below "
+                        f"{MIN_VALIDATION_CORRELATION}: the model does not predict the samples "
+                        "it leaves out; review the variogram and the search",
+                    )
+                p = folder / f"cross_validation_{safe_stem(d.name)}.png"
                 plots.cross_validation_figure(
                     cv,
                     p,
@@ -404,7 +479,7 @@ def run(
                         ("z", 4 * grid.block_size[2]),
                     )
                 }
-                p = folder / f"swath_{d.name}.png"
+                p = folder / f"swath_{safe_stem(d.name)}.png"
                 plots.swath_figure(
                     sw, p, primary, project.data.grades[primary], f"Swaths, {d.name}"
                 )
@@ -460,7 +535,7 @@ def run(
                         for c in cut
                     ]
                 )
-                p = folder / f"change_of_support_{d.name}.png"
+                p = folder / f"change_of_support_{safe_stem(d.name)}.png"
                 plots.grade_tonnage_figure(
                     {
                         "kriged": (cut, kt, kg),
@@ -498,7 +573,7 @@ def run(
             _standard_views(project, grid, blocks, comps.table, models, folder, report)
 
         if project.truth is not None:
-            from .truth import compare_with_truth
+            from .truth import TruthMismatch, compare_with_truth
 
             truth = pd.read_parquet(project.truth)
             report.raw('<div class="truth">')
@@ -507,12 +582,16 @@ def run(
                 "The demo deposit is invented, so its true block grades are known. This section "
                 "compares them with the estimate; the estimator never used them."
             )
-            rows = [
-                {"domain": d.name, **compare_with_truth(blocks, truth, grid, primary, d.name)}
-                for d in project.domains
-                if d.estimate
-            ]
-            report.table(pd.DataFrame(rows))
+            try:
+                rows = [
+                    {"domain": d.name, **compare_with_truth(blocks, truth, grid, primary, d.name)}
+                    for d in project.domains
+                    if d.estimate
+                ]
+                report.table(pd.DataFrame(rows))
+            except TruthMismatch as exc:
+                _warn(report, f"truth file {project.truth.name}: {exc}")
+                report.paragraph(str(exc))
             report.raw("</div>")
 
         blocks_out = blocks.drop(columns=[c for c in blocks if c.endswith("_ill_conditioned")])

@@ -8,7 +8,11 @@ import pandas as pd
 
 from .grid import BlockGrid
 
-__all__ = ["compare_with_truth"]
+__all__ = ["TruthMismatch", "compare_with_truth"]
+
+
+class TruthMismatch(ValueError):
+    """The truth's blocks are not the block model's blocks: no comparison is made."""
 
 
 def compare_with_truth(
@@ -32,7 +36,18 @@ def compare_with_truth(
     """
     b = blocks[(blocks["domain"] == domain) & np.isfinite(blocks[grade])].copy()
     t = truth[truth["domain"] == domain].copy()
-    t["_flat"] = grid.block_of(t[["x", "y", "z"]].to_numpy(float))
+    xyz = t[["x", "y", "z"]].to_numpy(float)
+    flat = grid.block_of(xyz)
+    inside = flat >= 0
+    centres = grid.centres()[np.where(inside, flat, 0)]
+    off = np.abs(xyz - centres).max(axis=1) > 1e-6 * max(grid.block_size)
+    if not inside.all() or off[inside].any() or len(t) == 0:
+        raise TruthMismatch(
+            f"the truth's blocks of domain '{domain}' are not the block model's blocks "
+            f"({int((~inside).sum())} outside the grid, {int(off[inside].sum())} off the block "
+            "centres): no comparison made"
+        )
+    t["_flat"] = flat
     b["_flat"] = grid.flat_index(b["i"].to_numpy(), b["j"].to_numpy(), b["k"].to_numpy())
     m = b.merge(t[["_flat", "proportion", f"{grade}_true"]], on="_flat", suffixes=("", "_truth"))
     w = m["tonnes"].to_numpy(float)

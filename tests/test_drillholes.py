@@ -33,7 +33,7 @@ FAULTS = [
     ("assays.csv", "A2,10,12,0.2", "A2,10,32,0.2", "A2", 8, "past the hole depth"),
     ("surveys.csv", "A2,25,90,-61", "A2,0,90,-61", "A2", 5, "duplicated survey depth"),
     ("surveys.csv", "A1,20,0,-88", "A1,20,0,-88\nA1,10,0,-87", "A1", 4, "not in increasing order"),
-    ("surveys.csv", "A2,25,90,-61", "A2,25,360,-61", "A2", 5, "azimuth"),
+    ("surveys.csv", "A2,25,90,-61", "A2,25,361,-61", "A2", 5, "azimuth"),
     ("surveys.csv", "A2,25,90,-61", "A2,25,90,-95", "A2", 5, "dip"),
     ("assays.csv", "A1,4,6,2.5", "A1,4,6,two", "A1", 4, "not a number"),
     ("collars.csv", "A2,40,10,100,30", "A2,,10,100,30", "A2", 3, "missing value"),

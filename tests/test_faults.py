@@ -1,0 +1,228 @@
+"""Faults found by trying the tool as a new user would: each gives one clear message with
+exit status 2 (no traceback, nothing written), or a correct run with a named warning."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from blockmodel.cli import main
+
+
+def _set_field(folder, name, hole, column, value, *, row=0):
+    """Set ``column`` of the ``row``-th line of ``hole`` in a CSV to the text ``value``."""
+    frame = pd.read_csv(folder / name, dtype=str, keep_default_na=False)
+    index = frame.index[frame["hole_id"] == hole][row]
+    frame.loc[index, column] = value
+    frame.to_csv(folder / name, index=False)
+
+
+def _edit(path, old, new):
+    text = path.read_text()
+    assert old in text, old
+    path.write_text(text.replace(old, new, 1))
+
+
+def _stopped(project, capsys, *words, command="run"):
+    code = main([command, str(project)])
+    err = capsys.readouterr().err
+    assert code == 2, err
+    assert "Traceback" not in err
+    for w in words:
+        assert w in err, (w, err)
+    assert not (project.parent / "out").exists()
+    return err
+
+
+# (id, file, hole, column, value, words in the message)
+FIELD_FAULTS = [
+    ("collar x inf", "collars.csv", "B01", "x", "inf", ["collars.csv", "B01", "x", "not a number"]),
+    ("collar y -inf", "collars.csv", "B01", "y", "-inf", ["B01", "y", "not a number"]),
+    ("collar z 1e308", "collars.csv", "B02", "z", "1e308", ["B02", "z", "possible range"]),
+    ("collar depth inf", "collars.csv", "B02", "depth", "inf", ["B02", "depth"]),
+    ("collar depth 1e308", "collars.csv", "B02", "depth", "1e308", ["B02", "possible range"]),
+    ("survey azimuth inf", "surveys.csv", "B03", "azimuth", "inf", ["surveys.csv", "B03"]),
+    ("survey dip nan", "surveys.csv", "B03", "dip", "nan", ["B03", "dip", "not a number"]),
+    ("survey depth 1e308", "surveys.csv", "B03", "depth", "1e308", ["B03", "possible range"]),
+    ("from -inf", "assays.csv", "B04", "from", "-inf", ["assays.csv", "B04", "from"]),
+    ("to 1e308", "assays.csv", "B04", "to", "1e308", ["B04", "to", "possible range"]),
+    ("negative from", "assays.csv", "B04", "from", "-2", ["B04", "from", "possible range"]),
+    ("underscore number", "collars.csv", "B05", "depth", "1_000", ["B05", "not a number"]),
+    ("thousands comma", "collars.csv", "B05", "x", "1,000", ["B05", "separators"]),
+    ("grade nan", "assays.csv", "B06", "cu", "NaN", ["B06", "cu", "leave the cell blank"]),
+    ("grade 1e308", "assays.csv", "B06", "cu", "1e308", ["B06", "more than the whole rock"]),
+    ("grade 150 %", "assays.csv", "B06", "cu", "150", ["B06", "more than the whole rock"]),
+]
+
+
+@pytest.mark.parametrize(
+    ("label", "name", "hole", "column", "value", "words"),
+    FIELD_FAULTS,
+    ids=[f[0] for f in FIELD_FAULTS],
+)
+def test_bad_number_is_located(box_project, capsys, label, name, hole, column, value, words):
+    _set_field(box_project.parent, name, hole, column, value)
+    _stopped(box_project, capsys, *words, command="check")
+    _stopped(box_project, capsys, *words)
+
+
+# (id, old text of the project file, new text, words)
+PROJECT_FAULTS = [
+    ("empty cut-offs", "cutoffs = [0.0, 0.5, 1.0]", "cutoffs = []", ["report.cutoffs"]),
+    ("infinite range", "ranges = [80.0, 80.0, 40.0]", "ranges = [inf, 80.0, 40.0]", ["finite"]),
+    (
+        "search plunge 95",
+        "ranges = [80.0, 80.0, 40.0]",
+        "ranges = [80.0, 80.0, 40.0]\norientation = [0.0, 95.0, 0.0]",
+        ["search[0].orientation", "plunge"],
+    ),
+    ("huge grid", "shape = [10, 10, 10]", "shape = [100000, 100000, 100000]", ["GiB", "grid"]),
+    (
+        "huge discretisation",
+        "[estimation]",
+        "[estimation]\ndiscretisation = [1000, 1000, 1000]",
+        ["estimation.discretisation"],
+    ),
+    ("toml syntax", "lags = 8", "lags = = 8", ["project.toml", "not valid TOML"]),
+    ("domain all", 'name = "ore"', 'name = "all"\ncode = "ore"', ["domains[0].name", "'all'"]),
+    ("min samples above data", "min_samples = 3", "min_samples = 16\nmax_samples = 900", None),
+    (
+        "grid 50 km away",
+        "origin = [0.0, 0.0, 0.0]",
+        "origin = [50000.0, 0.0, 0.0]",
+        ["ore", "lies inside the block grid"],
+    ),
+]
+
+
+@pytest.mark.parametrize(
+    ("label", "old", "new", "words"), PROJECT_FAULTS, ids=[f[0] for f in PROJECT_FAULTS]
+)
+def test_bad_setting_is_named(box_project, capsys, label, old, new, words):
+    if label == "min samples above data":
+        old, new = "max_samples = 16", "max_samples = 900"
+        _edit(box_project, "min_samples = 3", "min_samples = 900")
+        words = ["900", "composites"]
+    _edit(box_project, old, new)
+    err = _stopped(box_project, capsys, *words)
+    if label == "toml syntax":
+        assert "project.toml  " in err.splitlines()[2] and " 1" in err  # the line column is filled
+
+
+def test_solid_far_from_the_grid(box_project, capsys):
+    from blockmodel.solids import box_surface, write_ply
+
+    write_ply(box_project.parent / "ore.ply", box_surface((1e5, 0, 20), (1e5 + 100, 100, 80)))
+    _stopped(box_project, capsys, "ore.ply", "0.0 %", "grid.shape")
+
+
+def test_solid_not_closed(box_project, capsys):
+    from blockmodel.solids import read_surface, write_ply
+
+    solid = read_surface(box_project.parent / "ore.ply")
+    from blockmodel.solids import Surface
+
+    write_ply(box_project.parent / "ore.ply", Surface(solid.vertices, solid.triangles[2:]))
+    _stopped(box_project, capsys, "ore.ply", "not closed")
+
+
+def test_topography_above_nothing(box_project, capsys):
+    from blockmodel.solids import Surface, grid_triangles, write_ply
+
+    xs, ys = np.meshgrid(np.linspace(-10, 110, 5), np.linspace(-10, 110, 5), indexing="ij")
+    flat = np.column_stack([xs.ravel(), ys.ravel(), np.full(xs.size, -50.0)])
+    write_ply(box_project.parent / "topo.ply", Surface(flat, grid_triangles(5, 5)))
+    _edit(box_project, "shape = [10, 10, 10]", 'shape = [10, 10, 10]\ntopography = "topo.ply"')
+    _stopped(box_project, capsys, "holds no rock", "topography")
+
+
+def test_bare_cr_line_endings(box_project, capsys):
+    for name in ("collars.csv", "surveys.csv"):
+        f = box_project.parent / name
+        f.write_bytes(f.read_bytes().replace(b"\n", b"\r"))
+    assert main(["check", str(box_project)]) == 0, capsys.readouterr().err
+
+
+def test_miscased_domain_code_stops_with_a_suggestion(box_project, capsys):
+    a = box_project.parent / "assays.csv"
+    frame = pd.read_csv(a, dtype=str)
+    frame.loc[frame.index[:30], "domain"] = frame.loc[frame.index[:30], "domain"].replace(
+        "ore", "Ore"
+    )
+    frame.to_csv(a, index=False)
+    _stopped(box_project, capsys, "'Ore'", "did you mean 'ore'", command="check")
+
+
+def test_undeclared_codes_are_listed_with_counts(box_project, capsys):
+    assert main(["check", str(box_project)]) == 0
+    out = capsys.readouterr().out
+    waste = int((pd.read_csv(box_project.parent / "assays.csv")["domain"] == "waste").sum())
+    assert f"code 'waste' in {waste} interval(s) matches no domain" in out
+
+
+def test_upward_dips_are_named(small_project, capsys):
+    s = small_project.parent / "surveys.csv"
+    s.write_text(s.read_text().replace(",-", ","))  # every dip given positive
+    assert main(["check", str(small_project)]) == 0
+    out = capsys.readouterr().out
+    for hole in ("A1", "A2", "A3"):
+        assert f"{hole}  dip" in out
+    assert out.count("points upward") == 3
+
+
+def test_report_cutoffs_must_increase(box_project, capsys, tmp_path):
+    for bad in (["1", "0.5"], ["-1", "0.5"]):
+        code = main(
+            [
+                "report",
+                str(box_project),
+                str(tmp_path / "x.parquet"),
+                "--out",
+                str(tmp_path / "r"),
+                "--cutoffs",
+                *bad,
+            ]
+        )
+        err = capsys.readouterr().err
+        assert code == 2 and "--cutoffs" in err and "Traceback" not in err
+
+
+def test_cutoff_zero_counts_every_estimated_block():
+    from blockmodel.reporting import grade_tonnage
+
+    blocks = pd.DataFrame(
+        {
+            "domain": ["a"] * 4,
+            "class": ["Indicated"] * 4,
+            "tonnes": [100.0, 200.0, 300.0, 400.0],
+            "au": [-0.18, 0.5, 1.0, np.nan],
+        }
+    )
+    gt = grade_tonnage(blocks, "au", "g/t", [0.0, 0.5])
+    zero = gt[(gt["cutoff"] == 0) & (gt["domain"] == "all") & (gt["class"] == "all")]
+    assert zero["tonnes"].iloc[0] == 600.0  # every estimated block, the negative one too
+    assert zero["grade"].iloc[0] == pytest.approx((-18 + 100 + 300) / 600)
+
+
+def test_truth_on_another_grid_is_refused():
+    from blockmodel.grid import BlockGrid
+    from blockmodel.truth import TruthMismatch, compare_with_truth
+
+    grid = BlockGrid((0.0, 0.0, 0.0), (10.0, 10.0, 5.0), (4, 4, 4))
+    blocks = pd.DataFrame(
+        {
+            "domain": "a",
+            "i": [0],
+            "j": [0],
+            "k": [0],
+            "tonnes": [1.0],
+            "au": [1.0],
+            "density": [2.7],
+        }
+    )
+    truth = pd.DataFrame(
+        {"x": [7.5], "y": [5.0], "z": [2.5], "domain": "a", "proportion": [1.0], "au_true": [1.0]}
+    )
+    with pytest.raises(TruthMismatch, match="not the block model's blocks"):
+        compare_with_truth(blocks, truth, grid, "au", "a")
