@@ -105,6 +105,7 @@ def _view(args) -> None:
 
     from . import pipeline as stages
     from .outputs import atomic_path, need_file
+    from .plots import column_unit
     from .project import load_project
     from .runner import input_files
 
@@ -119,7 +120,7 @@ def _view(args) -> None:
         raise InputError(
             f"{args.block_model}: no column '{field}'; columns: {', '.join(blocks.columns)}"
         )
-    unit = project.data.grades.get(field.split("_")[0], "")
+    unit = column_unit(field, project.data.grades)
     centre = blocks[["x", "y", "z"]].mean().to_numpy()
     point = [
         v if v is not None else c for v, c in zip((args.x, args.y, args.z), centre, strict=True)

@@ -175,10 +175,13 @@ def swath_figure(tables: dict[str, object], path: Path, grade: str, unit: str, t
 
 def cross_validation_figure(cv, path: Path, grade: str, unit: str, title: str) -> None:
     plt = _plt()
-    t = cv.table.dropna()
+    t = cv.table.dropna(subset=["true", "estimate"])
     fig, ax = plt.subplots(figsize=(5, 5))
     ax.scatter(t["estimate"], t["true"], s=4, alpha=0.4, color="#2c7fb8")
-    top = float(max(t["true"].quantile(0.995), t["estimate"].max()))
+    if len(t) == 0:
+        ax.text(0.5, 0.5, "no composite could be re-estimated", ha="center", transform=ax.transAxes)
+    top = float(max(t["true"].quantile(0.995), t["estimate"].max())) if len(t) else 1.0
+    top = top if np.isfinite(top) and top > 0 else 1.0
     ax.plot([0, top], [0, top], "k--", lw=1, label="1:1")
     ax.set_xlim(0, top)
     ax.set_ylim(0, top)
@@ -202,6 +205,12 @@ def _norm(values, vmin=None, vmax=None):
 def composite_segments(composites) -> tuple[np.ndarray, np.ndarray]:
     """Start and end (n, 3) of each composite along its hole: the mid-point plus or minus
     half its length along the local hole direction (from its neighbours in the hole)."""
+    if {"hole", "from"} <= set(composites.columns):  # neighbours down each hole, in order
+        order = np.lexsort((composites["from"].to_numpy(float), composites["hole"].to_numpy()))
+        start, end = composite_segments(composites.iloc[order].drop(columns="from"))
+        back = np.empty_like(order)
+        back[order] = np.arange(len(order))
+        return start[back], end[back]
     mid = composites[["x", "y", "z"]].to_numpy(float)
     half = composites["length"].to_numpy(float)[:, None] / 2 if "length" in composites else 1.0
     holes = composites["hole"].to_numpy() if "hole" in composites else np.arange(len(mid))
@@ -267,6 +276,73 @@ def per_block(blocks, column: str):
     return g.drop(columns=["_w", "_s"])
 
 
+DOMAIN_COLOURS = ("#4477aa", "#ee6677", "#228833", "#ccbb44", "#66ccee", "#aa3377", "#bbbbbb")
+
+
+def _is_categorical(blocks, column: str) -> bool:
+    return blocks[column].dtype.kind in "OUSb" or str(blocks[column].dtype) == "category"
+
+
+def _colouring(blocks, column: str, vmin=None, vmax=None):
+    """Per-block values ready to draw, and how to colour them.
+
+    Numeric columns: the tonnage-weighted mean per block, the grade colour map, limits at
+    the 1st and 99th percentiles.  Categorical columns (class, domain): the category holding
+    most of the block's tonnes, as a number, with one colour per category (classes in
+    confidence order, in the class palette).
+
+    Returns
+    -------
+    per-block DataFrame, and a dict with ``cmap, vmin, vmax, ticks, labels``.
+    """
+    if not _is_categorical(blocks, column):
+        lo, hi = _norm(blocks[column], vmin, vmax)
+        return per_block(blocks, column), {
+            "cmap": GRADE_CMAP, "vmin": lo, "vmax": hi, "ticks": None, "labels": None
+        }  # fmt: skip
+    from matplotlib.colors import ListedColormap
+
+    values = blocks[column].astype(str)
+    present = set(values)
+    if column == "class":
+        names = [n for n in CLASS_COLOURS if n in present] + sorted(present - set(CLASS_COLOURS))
+        colours = [CLASS_COLOURS.get(n, "#7f7f7f") for n in names]
+    else:
+        names = list(dict.fromkeys(values))  # first-seen order: the project's domain order
+        colours = [DOMAIN_COLOURS[n % len(DOMAIN_COLOURS)] for n in range(len(names))]
+    codes = values.map({n: i for i, n in enumerate(names)}).to_numpy(float)
+    order = np.argsort(-blocks["tonnes"].to_numpy(float), kind="stable")
+    frame = blocks.iloc[order][["i", "j", "k", "x", "y", "z"]].assign(**{column: codes[order]})
+    frame = frame.drop_duplicates(["i", "j", "k"]).sort_values(["k", "j", "i"])
+    return frame.reset_index(drop=True), {
+        "cmap": ListedColormap(colours),
+        "vmin": -0.5,
+        "vmax": len(names) - 0.5,
+        "ticks": list(range(len(names))),
+        "labels": names,
+    }
+
+
+def column_unit(column: str, grades: dict[str, str]) -> str:
+    """The unit of a block-model column: a grade's unit, its square for the kriging
+    variance, metres for distances, nothing for counts, ratios and labels."""
+    grade, _, what = column.partition("_")
+    if grade not in grades:
+        return {"density": "t/m3", "tonnes": "t", "x": "m", "y": "m", "z": "m"}.get(column, "")
+    unit = grades[grade]
+    if what in ("", "nn", "idw", "nearest", "inverse_distance"):
+        return unit
+    if what == "variance":
+        return f"({unit})²"
+    return "m" if what == "distance" else ""
+
+
+def _colour_bar(fig, mappable, ax, style, label: str) -> None:
+    bar = fig.colorbar(mappable, ax=ax, shrink=0.8, label=label, ticks=style["ticks"])
+    if style["labels"] is not None:
+        bar.ax.set_yticklabels(style["labels"])
+
+
 def plan_figure(
     blocks,
     grid,
@@ -282,18 +358,25 @@ def plan_figure(
     """Horizontal plan of one block level, with composites within ``tolerance`` metres."""
     plt = _plt()
     k = int(np.floor((elevation - grid.origin[2]) / grid.block_size[2]))
-    level = per_block(blocks[blocks["k"] == k], column)
+    table, style = _colouring(blocks, column, vmin, vmax)
+    level = table[table["k"] == k]
     img = np.full((grid.shape[1], grid.shape[0]), np.nan)
     img[level["j"].to_numpy(), level["i"].to_numpy()] = level[column].to_numpy()
-    lo, hi = _norm(blocks[column], vmin, vmax)
+    lo, hi = style["vmin"], style["vmax"]
     ox, oy = grid.origin[0], grid.origin[1]
     ext = (ox, ox + grid.shape[0] * grid.block_size[0], oy, oy + grid.shape[1] * grid.block_size[1])
     fig, ax = plt.subplots(figsize=(7, 7))
     im = ax.imshow(
-        img, origin="lower", extent=ext, cmap=GRADE_CMAP, vmin=lo, vmax=hi, interpolation="nearest"
+        img,
+        origin="lower",
+        extent=ext,
+        cmap=style["cmap"],
+        vmin=lo,
+        vmax=hi,
+        interpolation="nearest",
     )
     g = column.split("_")[0]
-    if composites is not None and g in composites:
+    if composites is not None and g in composites and style["labels"] is None:
         tol = tolerance if tolerance is not None else grid.block_size[2]
         z_c = grid.origin[2] + (k + 0.5) * grid.block_size[2]
         start, end = composite_segments(composites)
@@ -308,7 +391,7 @@ def plan_figure(
             f"composites within {tol:g} m",
         )
         ax.legend(fontsize=8, loc="lower right")
-    fig.colorbar(im, ax=ax, shrink=0.8, label=f"{column} ({unit})")
+    _colour_bar(fig, im, ax, style, f"{column} ({unit})" if unit else column)
     _north_and_scale(ax, ext)
     ax.set_xlabel("east (m)")
     ax.set_ylabel("north (m)")
@@ -363,7 +446,7 @@ def section_figure(
     from matplotlib.collections import PatchCollection
     from matplotlib.patches import Rectangle
 
-    blocks = per_block(blocks, column)
+    blocks, style = _colouring(blocks, column, vmin, vmax)
     az = np.radians(azimuth)
     along = np.array([np.sin(az), np.cos(az)])
     across = np.array([np.cos(az), -np.sin(az)])
@@ -371,19 +454,19 @@ def section_figure(
     near = np.abs(rel @ across) <= width / 2
     b = blocks[near & np.isfinite(blocks[column])]
     s = rel[near & np.isfinite(blocks[column]).to_numpy()] @ along
-    lo, hi = _norm(blocks[column], vmin, vmax)
+    lo, hi = style["vmin"], style["vmax"]
     fig, ax = plt.subplots(figsize=(9, 6))
     step = abs(grid.block_size[0] * along[0]) + abs(grid.block_size[1] * along[1])
     patches = [
         Rectangle((si - step / 2, zi - grid.block_size[2] / 2), step, grid.block_size[2])
         for si, zi in zip(s, b["z"], strict=True)
     ]
-    pc = PatchCollection(patches, cmap=GRADE_CMAP)
+    pc = PatchCollection(patches, cmap=style["cmap"])
     pc.set_array(b[column].to_numpy())
     pc.set_clim(lo, hi)
     ax.add_collection(pc)
     g = column.split("_")[0]
-    if composites is not None and len(composites) and g in composites:
+    if composites is not None and len(composites) and g in composites and style["labels"] is None:
         crel = composites[["x", "y"]].to_numpy() - np.asarray(point)[:2]
         cn = np.abs(crel @ across) <= width / 2
         start, end = composite_segments(composites)
@@ -401,7 +484,7 @@ def section_figure(
             f"composites within {width / 2:g} m",
         )
         ax.legend(fontsize=8, loc="lower left")
-    fig.colorbar(pc, ax=ax, shrink=0.8, label=f"{column} ({unit})")
+    _colour_bar(fig, pc, ax, style, f"{column} ({unit})" if unit else column)
     ax.autoscale()
     ax.set_aspect("equal")
     x0, x1 = ax.get_xlim()

@@ -453,7 +453,14 @@ def run(
                 cv_rows.append(
                     {"domain": d.name, "method": project.estimation.method, **cv.summary()}
                 )
-                if not cv.correlation >= MIN_VALIDATION_CORRELATION:
+                if cv.estimated < 3:
+                    _warn(
+                        report,
+                        f"cross-validation of {primary} in '{d.name}' re-estimated only "
+                        f"{cv.estimated} of {cv.total} composites: the search finds too few "
+                        "samples once a hole is left out; the model is not validated",
+                    )
+                elif not cv.correlation >= MIN_VALIDATION_CORRELATION:
                     _warn(
                         report,
                         f"cross-validation of {primary} in '{d.name}': correlation of true and "

@@ -116,14 +116,16 @@ def cross_validate(
     err = est[ok] - values[ok]
     std_err = err / np.sqrt(var[ok])
     e, t = est[ok], values[ok]
-    slope = float(np.cov(t, e)[0, 1] / np.var(e, ddof=1)) if ok.sum() > 2 else float("nan")
+    nan = float("nan")
+    spread = ok.sum() > 2 and np.ptp(e) > 0 and np.ptp(t) > 0
+    slope = float(np.cov(t, e)[0, 1] / np.var(e, ddof=1)) if spread else nan
     return CrossValidation(
         table,
-        float(err.mean()),
-        float((err**2).mean()),
-        float(std_err.mean()),
-        float(std_err.var()),
-        float(np.corrcoef(t, e)[0, 1]) if ok.sum() > 2 else float("nan"),
+        float(err.mean()) if ok.any() else nan,
+        float((err**2).mean()) if ok.any() else nan,
+        float(std_err.mean()) if ok.any() else nan,
+        float(std_err.var()) if ok.any() else nan,
+        float(np.corrcoef(t, e)[0, 1]) if spread else nan,
         slope,
         int(ok.sum()),
         len(values),

@@ -142,3 +142,16 @@ def make_box_project(tmp_path: Path) -> Path:
     path = tmp_path / "project.toml"
     path.write_text(BOX_PROJECT)
     return path
+
+
+@pytest.fixture(scope="session")
+def box_site(tmp_path_factory):
+    """A workspace shared by the session: ``data/`` holds the box project's inputs, ``out/``
+    a report the tool wrote from them (one full run).  Copy it before changing anything."""
+    from blockmodel.cli import main
+
+    top = tmp_path_factory.mktemp("site")
+    (top / "data").mkdir()
+    project = make_box_project(top / "data")
+    assert main(["run", str(project), "--out", str(top / "out")]) == 0
+    return top

@@ -19,8 +19,6 @@ import pytest
 from blockmodel.cli import main
 from blockmodel.outputs import MARKER, is_tool_folder
 
-from .conftest import make_box_project
-
 
 def _snapshot(folder: Path) -> dict[str, str]:
     """Every file below ``folder`` (hidden ones too) with its SHA-256."""
@@ -41,21 +39,10 @@ def _refused(args: list[str], capsys, *words: str) -> str:
     return err
 
 
-@pytest.fixture(scope="module")
-def site(tmp_path_factory):
-    """A workspace: ``data/`` holds the box project's inputs, ``out/`` a report the tool
-    wrote from it (one full run, shared by the tests of this module)."""
-    top = tmp_path_factory.mktemp("site")
-    (top / "data").mkdir()
-    project = make_box_project(top / "data")
-    assert main(["run", str(project), "--out", str(top / "out")]) == 0
-    return top
-
-
 @pytest.fixture
-def work(site, tmp_path):
+def work(box_site, tmp_path):
     """A private copy of the workspace for a test that changes things."""
-    shutil.copytree(site, tmp_path / "w", symlinks=True)
+    shutil.copytree(box_site, tmp_path / "w", symlinks=True)
     return tmp_path / "w"
 
 
@@ -293,19 +280,19 @@ def test_a_set_aside_folder_that_is_not_the_tools_is_kept(work, capsys):
     capsys.readouterr()
 
 
-def test_manifest_marks_and_lists_the_tools_files(site):
+def test_manifest_marks_and_lists_the_tools_files(box_site):
     import json
 
-    manifest = json.loads((site / "out" / "manifest.json").read_text())
+    manifest = json.loads((box_site / "out" / "manifest.json").read_text())
     assert manifest["written_by"] == MARKER
     listed = set(manifest["files"])
-    assert listed == {p.name for p in (site / "out").iterdir()} - {"manifest.json"}
+    assert listed == {p.name for p in (box_site / "out").iterdir()} - {"manifest.json"}
 
 
-def test_report_folder_has_the_users_normal_permissions(site):
+def test_report_folder_has_the_users_normal_permissions(box_site):
     mask = os.umask(0)
     os.umask(mask)
-    assert (site / "out").stat().st_mode & 0o777 == 0o777 & ~mask
+    assert (box_site / "out").stat().st_mode & 0o777 == 0o777 & ~mask
 
 
 @pytest.fixture
@@ -322,11 +309,11 @@ def small_disk(tmp_path):
     subprocess.run(["umount", "-l", str(mnt)], check=False)
 
 
-def test_full_disk_keeps_the_previous_report(site, small_disk, capsys):
+def test_full_disk_keeps_the_previous_report(box_site, small_disk, capsys):
     args = [
         "report",
-        str(site / "data" / "project.toml"),
-        str(site / "out" / "block_model.parquet"),
+        str(box_site / "data" / "project.toml"),
+        str(box_site / "out" / "block_model.parquet"),
         "--out",
         str(small_disk / "r"),
     ]

@@ -226,3 +226,28 @@ def test_truth_on_another_grid_is_refused():
     )
     with pytest.raises(TruthMismatch, match="not the block model's blocks"):
         compare_with_truth(blocks, truth, grid, "au", "a")
+
+
+@pytest.mark.parametrize("kind", ["plan", "section"])
+@pytest.mark.parametrize("field", ["class", "domain", "cu_variance"])
+def test_view_of_labels_and_statistics(box_site, tmp_path, capsys, kind, field):
+    """``--field class`` and ``--field domain`` once crashed on plans and sections."""
+    png = tmp_path / f"{kind}_{field}.png"
+    code = main(
+        [
+            "view",
+            str(box_site / "data" / "project.toml"),
+            str(box_site / "out" / "block_model.parquet"),
+            "--kind",
+            kind,
+            "--field",
+            field,
+            "--png",
+            str(png),
+        ]
+    )
+    assert code == 0, capsys.readouterr().err
+    import matplotlib.image
+
+    pixels = matplotlib.image.imread(png)[..., :3].reshape(-1, 3)
+    assert len(np.unique(pixels, axis=0)) > 20  # a drawn figure, not a blank page
