@@ -273,6 +273,9 @@ def main(argv: list[str] | None = None) -> int:
             file=sys.stderr,
         )
         return 2
+    finally:
+        if "matplotlib.pyplot" in sys.modules:  # a stage stopped mid-figure: free it
+            sys.modules["matplotlib.pyplot"].close("all")
     return 0
 
 

@@ -19,6 +19,7 @@ from .declustering import (
     nearest_neighbour_weights,
     weighted_quantiles,
 )
+from .directions import OrientationFit, find_orientation
 from .drillholes import DrillholeSet, load_drillholes
 from .engine import EstimationJob, passes_from, run_job
 from .errors import InputError, Problem
@@ -29,7 +30,7 @@ from .experimental import (
     normal_scores,
     scan_directions,
 )
-from .fitting import find_azimuth, fit_variogram, principal_directions
+from .fitting import MIN_PAIRS, FittedModel, fit_variogram_checked, principal_directions
 from .grid import BlockGrid
 from .orientation import Orientation
 from .project import Project
@@ -294,6 +295,32 @@ class Variography:
     scale: float = 1.0
     scores: NormalScores | None = None
     scan: dict | None = None
+    orientation_fit: OrientationFit | None = None  # when the orientation was found from data
+    fit: FittedModel | None = None  # when the model was fitted
+
+    def warnings(self) -> list[str]:
+        """What a reader must know about how far to trust this model."""
+        out = []
+        key = f"{self.domain}.{self.grade}"
+        if self.fit is not None:
+            for label, r2 in self.fit.poor().items():
+                out.append(
+                    f"{key}: the fitted model follows the {label} variogram poorly "
+                    f"(weighted R² {r2:.2f}); review it, or give the model in "
+                    f"[variogram.{key}]"
+                )
+            if self.fit.lags_dropped:
+                out.append(
+                    f"{key}: {self.fit.lags_dropped} lag(s) with fewer than {MIN_PAIRS} pairs "
+                    "were left out of the fit"
+                )
+        o = self.orientation_fit
+        if o is not None and o.loose_axes():
+            out.append(
+                f"{key}: the data do not place the {' and '.join(o.loose_axes())} axis "
+                f"({o.describe()}); give variography.orientation if the geology says more"
+            )
+        return out
 
 
 def _model_from_spec(spec) -> VariogramModel:
@@ -356,19 +383,20 @@ def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]
                 orient = model.structures[0].orientation if model.structures else Orientation()
             elif v.orientation is not None:
                 model, orient = None, Orientation(*v.orientation)
-            else:  # find the horizontal direction of continuity
+            else:  # find the orientation of continuity in 3D
                 try:
-                    azimuth, _ = find_azimuth(pts, values, lag=v.lag, n_lags=v.lags)
+                    found = find_orientation(pts, values, lag=v.lag, n_lags=v.lags, kind=v.kinds[0])
                 except ValueError as exc:
                     raise _fail(
                         project.source,
                         "variography.orientation",
-                        f"cannot find the direction "
-                        f"of continuity for {key} ({exc}); give variography.orientation or a "
-                        f"model in [variogram.{key}]",
+                        f"cannot find the orientation of continuity for {key} ({exc}); give "
+                        f"variography.orientation or a model in [variogram.{key}]",
                     ) from None
-                model, orient = None, Orientation(azimuth, 0.0, 0.0)
+                model, orient = None, found.orientation
             res = Variography(d.name, g, orient, scale=scale, scores=scores)
+            if not given and v.orientation is None:
+                res.orientation_fit = found
             common = {"estimator": v.estimator, "weights": weights}
             for axis, (az, pl) in enumerate(principal_directions(orient)):
                 res.directional.append(
@@ -410,12 +438,14 @@ def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]
                 )
             if model is None:
                 try:
-                    fitted = fit_variogram(
+                    res.fit = fit_variogram_checked(
                         [(e, a) for a, e in enumerate(res.directional)],
                         v.kinds[: v.structures],
                         orient,
                         fixed=dict(v.fixed),
+                        extent=float(np.linalg.norm(np.ptp(pts, axis=0))),
                     )
+                    fitted = res.fit.model
                 except ValueError as exc:
                     raise _fail(
                         project.source, "variography", f"cannot fit a variogram for {key}: {exc}"

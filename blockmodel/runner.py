@@ -182,6 +182,17 @@ def _variography_outputs(project, comps, vario, decl, folder: Path, report: Html
             )
             + f"; orientation (azimuth, plunge, tilt) {dataclasses.astuple(res.orientation)}."
         )
+        if res.orientation_fit is not None:
+            report.paragraph(
+                f"{key}: orientation found from the data: {res.orientation_fit.describe()}."
+            )
+        if res.fit is not None:
+            quality = ", ".join(f"{k} {v:.2f}" for k, v in res.fit.quality.items())
+            report.paragraph(
+                f"{key}: fit quality (weighted R² per direction): {quality}; "
+                f"{res.fit.lags_used} lags fitted, {res.fit.lags_dropped} left out for holding "
+                "fewer than 30 pairs."
+            )
         report.image(p, f"Experimental variograms and model, {key}")
         stem = safe_stem(key.replace(".", "_"))
         if res.scan is not None:
@@ -211,6 +222,9 @@ def run_variography(project: Project, out: Path | None = None, *, replace: bool 
         decl = stages.decluster(project, comps.table, grid, props)
         vario = stages.variography(project, comps.table)
         report = HtmlReport(f"{project.name}: declustering and variography")
+        for res in vario.values():
+            for message in res.warnings():
+                _warn(report, message)
         _variography_outputs(project, comps, vario, decl, staged.path, report)
         report.write(staged.path / "variography.html")
         staged.commit(
@@ -344,6 +358,9 @@ def run(
             decl = stages.decluster(project, comps.table, grid, props)
         with timer("variography"):
             vario = stages.variography(project, comps.table)
+        for res in vario.values():
+            for message in res.warnings():
+                _warn(report, message)
         models = {k: v.model for k, v in vario.items()}
         with timer("estimation"):
             blocks = stages.estimate_block_model(

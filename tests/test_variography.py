@@ -58,7 +58,7 @@ def anisotropic_field():
     rng = np.random.default_rng(3)
     shape, sp = (120, 120, 40), (2.0, 2.0, 2.0)
     f = simulate_gaussian(shape, sp, true, rng)
-    idx = rng.choice(f.size, 4000, replace=False)
+    idx = rng.choice(f.size, 8000, replace=False)  # enough pairs along the minor axis (>= 30 a lag)
     i, j, k = np.unravel_index(idx, shape)
     return o, (np.column_stack([i, j, k]) + 0.5) * sp, f[i, j, k]
 
