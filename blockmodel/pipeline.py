@@ -197,8 +197,20 @@ def check_proportions(project: Project, props: np.ndarray) -> None:
         if project.grid.topography is not None
         else "no block lies inside a domain solid or near composites of a coded domain"
     )
+    sub = [
+        round(b / n, 2) for b, n in zip(project.grid.block_size, project.grid.subcells, strict=True)
+    ]
     raise InputError(
-        [Problem(str(project.source), None, None, "grid", f"the block grid holds no rock: {why}")]
+        [
+            Problem(
+                str(project.source),
+                None,
+                None,
+                "grid",
+                f"the block grid holds no rock: {why}; check grid.origin, grid.block_size and "
+                f"grid.subcells against the solids (sub-cells are {sub} m)",
+            )
+        ]
     )
 
 

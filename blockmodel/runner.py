@@ -239,9 +239,35 @@ def run_variography(project: Project, out: Path | None = None, *, replace: bool 
     return staged.target
 
 
+ABOVE_TOPOGRAPHY = 2.0  # metres a composite may stand above the surface (survey error)
+
+
+def _above_topography(project, composites) -> list[str]:
+    """Holes whose composites rise above the topography (a wrong collar or dip sign)."""
+    if project.grid.topography is None or len(composites) == 0:
+        return []
+    from scipy.interpolate import griddata
+
+    from .solids import read_surface
+
+    surface = read_surface(project.grid.topography)
+    xy = composites[["x", "y"]].to_numpy(float)
+    ground = griddata(surface.vertices[:, :2], surface.vertices[:, 2], xy, method="linear")
+    height = composites["z"].to_numpy(float) - ground
+    above = np.isfinite(height) & (height > ABOVE_TOPOGRAPHY)
+    out = []
+    for hole in pd.unique(composites["hole"][above]):
+        mine = above & (composites["hole"] == hole).to_numpy()
+        out.append(
+            f"hole {hole}: {int(mine.sum())} composite(s) lie above the topography, up to "
+            f"{height[mine].max():.1f} m; check its collar elevation and the sign of its dips"
+        )
+    return out
+
+
 def _estimate_warnings(project, comps, grid, blocks, shares) -> list[str]:
     """What the estimate cannot be trusted for, in words for the report."""
-    out = []
+    out = _above_topography(project, comps.table)
     primary = project.grades[0]
     unit = project.data.grades[primary]
     for name, share in shares.items():

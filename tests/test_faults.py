@@ -251,3 +251,41 @@ def test_view_of_labels_and_statistics(box_site, tmp_path, capsys, kind, field):
 
     pixels = matplotlib.image.imread(png)[..., :3].reshape(-1, 3)
     assert len(np.unique(pixels, axis=0)) > 20  # a drawn figure, not a blank page
+
+
+def test_thousand_metre_blocks_are_explained(box_project, capsys):
+    _edit(box_project, "block_size = [10.0, 10.0, 10.0]", "block_size = [1000.0, 1000.0, 1000.0]")
+    _stopped(box_project, capsys, "holds no rock", "sub-cells are [250.0, 250.0, 250.0] m")
+
+
+def test_composites_above_the_topography_are_named(box_project, capsys):
+    from blockmodel.solids import Surface, grid_triangles, write_ply
+
+    xs, ys = np.meshgrid(np.linspace(-10, 110, 5), np.linspace(-10, 110, 5), indexing="ij")
+    ground = np.column_stack([xs.ravel(), ys.ravel(), np.full(xs.size, 90.0)])
+    write_ply(box_project.parent / "topo.ply", Surface(ground, grid_triangles(5, 5)))
+    _edit(box_project, "shape = [10, 10, 10]", 'shape = [10, 10, 10]\ntopography = "topo.ply"')
+    s = box_project.parent / "surveys.csv"
+    s.write_text(s.read_text().replace("B03,0,0,-90", "B03,0,0,90"))  # dip given upward
+    code = main(["run", str(box_project)])
+    err = capsys.readouterr().err
+    assert code == 0, err
+    assert "B03  dip" in err and "points upward" in err
+    assert "hole B03:" in err and "above the topography" in err
+    html = (box_project.parent / "out" / "report.html").read_text()
+    assert "hole B03:" in html
+
+
+@pytest.mark.parametrize("name", ["a/b", "..", "d" * 300])
+def test_domain_names_make_safe_file_names(box_project, capsys, name):
+    import tomllib
+
+    _edit(box_project, 'name = "ore"', f'name = "{name}"\ncode = "ore"')
+    _edit(box_project, "lags = 8", "lags = 8\norientation = [0.0, 0.0, 0.0]")  # no search
+    assert tomllib.loads(box_project.read_text())["domains"][0]["name"] == name
+    code = main(["variography", str(box_project), "--out", str(box_project.parent / "v")])
+    assert code == 0, capsys.readouterr().err
+    files = [p.name for p in (box_project.parent / "v").iterdir()]
+    assert all("/" not in f and len(f) < 80 for f in files)
+    assert any(f.startswith("declustering_") and f.endswith(".png") for f in files)
+    assert not (box_project.parent.parent / "b").exists()

@@ -85,3 +85,17 @@ def test_interrupted_run_keeps_previous_report(previous, sig):
     assert done.returncode == 0, done.stderr
     assert not list(previous.parent.glob(f".{previous.name}.*"))
     assert _hashes(previous)["block_model.parquet"] == before["block_model.parquet"]
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("delay", [0.5, 3.0, 6.0, 10.0, 14.0, 18.0])
+def test_kill_at_every_stage_keeps_previous_report(previous, delay):
+    """SIGKILL at times that fall in compositing, variography, kriging, validation, views
+    and writing (a demo run takes about 20-30 s here)."""
+    before = _hashes(previous)
+    proc = _start(previous)
+    _wait_for_staging(previous.parent, previous.name, proc)
+    time.sleep(delay)
+    proc.kill()
+    proc.communicate(timeout=60)
+    assert _hashes(previous) == before
