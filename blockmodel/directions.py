@@ -72,10 +72,16 @@ class OrientationFit:
     fit_quality: float
     directions: int
 
-    def loose_axes(self, *, max_error: float = 15.0, max_ratio: float = 0.85) -> list[str]:
-        """Axes the data do not place: one standard error above ``max_error`` degrees, or a
-        range within ``max_ratio`` of a neighbouring axis's (no axis stands out among
+    def loose_axes(
+        self, *, max_error: float = 15.0, max_ratio: float = 0.85, min_quality: float = 0.5
+    ) -> list[str]:
+        """Axes the data do not place: all three when the joint fit explains less than
+        ``min_quality`` of the variation between directions and lags (the orientation is
+        then noise); otherwise those with one standard error above ``max_error`` degrees, or
+        a range within ``max_ratio`` of a neighbouring axis's (no axis stands out among
         nearly equal ranges)."""
+        if not self.fit_quality >= min_quality:
+            return ["major", "semi", "minor"]
         a, b, c = self.ranges
         equal_major = b / a > max_ratio
         equal_minor = c / b > max_ratio
@@ -203,8 +209,13 @@ def find_orientation(
     start = [0.2 * total, 0.8 * total, np.log(0.5 * longest), 0.7, 0.7]
 
     def fit_shape(angles):
+        # a short fit is enough to rank the starting orientations; the best are refined
         res = least_squares(
-            lambda p: w * (model(p, angles) - g), start, bounds=(lower, upper), method="trf"
+            lambda p: w * (model(p, angles) - g),
+            start,
+            bounds=(lower, upper),
+            method="trf",
+            max_nfev=20,
         )
         return res.cost, res.x
 

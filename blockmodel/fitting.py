@@ -18,7 +18,6 @@ from .variogram import KINDS, Structure, VariogramModel, correlation
 
 __all__ = [
     "FittedModel",
-    "find_azimuth",
     "fit_variogram",
     "fit_variogram_checked",
     "principal_directions",
@@ -289,72 +288,3 @@ def _fit(experimental, kinds, orientation, fixed, weighting, extent=None, min_pa
         structures.append(Structure(kind, sill, ranges, orientation))
     model = VariogramModel(max(p["nugget"], 0.0), structures)
     return model, float(best.cost), quality, len(h), dropped
-
-
-def find_azimuth(
-    points: np.ndarray,
-    values: np.ndarray,
-    *,
-    lag: float,
-    n_lags: int,
-    kinds: Sequence[str] = ("spherical",),
-    step: float = 15.0,
-    angular_tolerance: float = 15.0,
-    refine: float = 2.5,
-) -> tuple[float, VariogramModel]:
-    """Azimuth of the major axis of a horizontal anisotropy, by fitting one geometric
-    anisotropy jointly to a fan of horizontal directional variograms.
-
-    Parameters
-    ----------
-    points : (n, 3) float64, metres
-    values : (n,) float64
-    lag, n_lags : lag width (metres) and count of the fan's variograms
-    kinds : structure kinds of the model
-    step : float, degrees between the fan's directions
-    refine : float, degrees; resolution of the search over azimuths
-
-    Returns
-    -------
-    azimuth : float, degrees in [0, 180)
-    model : VariogramModel fitted at that azimuth (plunge and tilt zero); horizontal data
-        do not inform the minor (vertical) range, which is set equal to the semi range
-
-    Notes
-    -----
-    Using every direction at once is far steadier than picking the single direction whose
-    variogram rises slowest.
-    """
-    from .experimental import direction_vector, experimental_variogram
-
-    fan = []
-    for az in np.arange(0.0, 180.0, step):
-        ev = experimental_variogram(
-            points,
-            values,
-            lag=lag,
-            n_lags=n_lags,
-            direction=(az, 0.0),
-            angular_tolerance=angular_tolerance,
-        )
-        fan.append((ev, direction_vector(az, 0.0)))
-    best = None
-    for az in np.arange(0.0, 180.0, refine):
-        model, cost, *_ = _fit(
-            fan, kinds, Orientation(az, 0.0, 0.0), {}, "pairs_over_distance_squared"
-        )
-        if best is None or cost < best[0]:
-            best = (cost, az, model)
-    cost, az, model = best
-    # the fit may settle with its "major" axis the shorter one: turn it a right angle
-    reach = [sum(s.sill * s.ranges[i] for s in model.structures) for i in (0, 1)]
-    swap = reach[1] > reach[0]
-    if swap:
-        az = (az + 90.0) % 180.0
-    o = Orientation(az, 0.0, 0.0)
-    structures = []
-    for s in model.structures:
-        major, semi = (s.ranges[1], s.ranges[0]) if swap else (s.ranges[0], s.ranges[1])
-        # horizontal data say nothing of the vertical: give the minor axis the semi range
-        structures.append(Structure(s.kind, s.sill, (major, semi, semi), o))
-    return float(az), VariogramModel(model.nugget, structures)

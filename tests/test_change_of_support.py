@@ -66,6 +66,7 @@ def test_same_as_gstlearn_on_identical_coefficients(rng, r):
     """gstlearn's Hermite anamorphosis and selectivity curves (AnamHermite, Selectivity),
     given our coefficients and r, give the same tonnage and grade."""
     import gstlearn as gl
+
     values = rng.lognormal(0.5, 0.9, 2000)
     ana = empirical_anamorphosis(values)
     cutoffs = np.quantile(values, [0.2, 0.4, 0.6, 0.8])

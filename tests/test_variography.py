@@ -5,8 +5,9 @@ import numpy as np
 import pytest
 
 import blockmodel as bm
+from blockmodel.directions import find_orientation
 from blockmodel.experimental import experimental_variogram, normal_scores
-from blockmodel.fitting import find_azimuth, fit_variogram, principal_directions
+from blockmodel.fitting import fit_variogram, principal_directions
 from blockmodel.simulation import simulate_gaussian
 
 
@@ -91,9 +92,10 @@ def test_fit_recovers_simulated_anisotropy(anisotropic_field):
 
 def test_major_direction_found(anisotropic_field):
     _, pts, vals = anisotropic_field
-    azimuth, model = find_azimuth(pts, vals, lag=4.0, n_lags=10)
-    print("major azimuth", azimuth, "ranges", model.structures[0].ranges)
-    assert abs((azimuth - 30 + 90) % 180 - 90) <= 10
+    found = find_orientation(pts, vals, lag=4.0, n_lags=10)
+    print(found.describe())
+    azimuth = found.orientation.azimuth
+    assert abs((azimuth - 30 + 90) % 180 - 90) <= 10 and found.orientation.plunge < 10
 
 
 def test_pairs_within_a_hole_only():
