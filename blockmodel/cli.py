@@ -129,7 +129,10 @@ def _view(args) -> None:
         raise InputError("plans and sections are written to PNG: give --png")
     if args.kind == "cutoff" and args.cutoff is None:
         raise InputError("--kind cutoff needs --cutoff")
-    tmp = None if args.png is None else atomic_path(args.png)
+    tmp = None
+    if args.png is not None:
+        Path(args.png).parent.mkdir(parents=True, exist_ok=True)
+        tmp = atomic_path(args.png)
     try:
         if args.kind == "plan":
             from . import plots

@@ -454,10 +454,12 @@ def _check_values(p: Project, r: _Reader) -> None:
                 f"[-90, 90] and tilt in [-180, 180] degrees; got {list(o)}",
             )
     if any(n > 20 for n in p.estimation.discretisation):
+        points = math.prod(p.estimation.discretisation)
         r.fail(
             "estimation.discretisation",
             "'estimation.discretisation' takes at most 20 points per axis (4 x 4 x 2 is usual); "
-            f"got {list(p.estimation.discretisation)}",
+            f"got {list(p.estimation.discretisation)}: {points:,} points per block, "
+            f"{points * 24 / 2**30:,.1f} GiB for their offsets alone",
         )
     if any(n > 50 for n in p.grid.subcells):
         r.fail(
