@@ -26,6 +26,7 @@ import os
 import re
 import shutil
 import signal
+import sys
 import tempfile
 from collections.abc import Iterable
 from pathlib import Path
@@ -214,6 +215,8 @@ class OutputFolder:
         self.target = Path(target).resolve()
         self.replace = replace
         self.recovered = _recover(self.target) if self.target.parent.is_dir() else []
+        for line in self.recovered:  # tell the user what a killed run left and what was done
+            print(f"blockmodel: {line}", file=sys.stderr)
         _check_not_over_inputs(self.target, inputs, "report folder")
         self._merge = False
         if self.target.exists() or self.target.is_symlink():

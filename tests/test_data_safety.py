@@ -256,6 +256,7 @@ def test_kill_between_the_two_renames_is_recovered(work, capsys):
         ],
         capsys,
         "missing.parquet",
+        "restored",
     )
     # the bad input was found after recovery: the old report is back, byte for byte
     assert _snapshot(out) == report
