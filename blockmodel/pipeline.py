@@ -335,6 +335,22 @@ class Variography:
         return out
 
 
+def _mean_hole_direction(composites: pd.DataFrame) -> np.ndarray | None:
+    """Mean unit direction (3,) of the holes, from successive composites of each hole
+    (sign-aligned, so up and down count alike); None when no hole has two composites."""
+    table = composites.sort_values(["hole", "from"], kind="stable")
+    xyz = table[["x", "y", "z"]].to_numpy(float)
+    same = table["hole"].to_numpy()[1:] == table["hole"].to_numpy()[:-1]
+    steps = (xyz[1:] - xyz[:-1])[same]
+    length = np.linalg.norm(steps, axis=1)
+    steps = steps[length > 0] / length[length > 0, None]
+    if len(steps) == 0:
+        return None
+    steps[steps[:, 2] > 0] *= -1.0
+    mean = steps.mean(axis=0)
+    return mean / np.linalg.norm(mean)
+
+
 def _model_from_spec(spec) -> VariogramModel:
     return VariogramModel(
         spec.nugget,
@@ -449,9 +465,13 @@ def variography(project: Project, table: pd.DataFrame) -> dict[str, Variography]
                     **common,
                 )
             if model is None:
+                fitted_to = [(e, a) for a, e in enumerate(res.directional)]
+                along = _mean_hole_direction(sub.loc[ok])
+                if along is not None:  # the short lags down the holes fix the nugget
+                    fitted_to.append((res.downhole, along))
                 try:
                     res.fit = fit_variogram_checked(
-                        [(e, a) for a, e in enumerate(res.directional)],
+                        fitted_to,
                         v.kinds[: v.structures],
                         orient,
                         fixed=dict(v.fixed),

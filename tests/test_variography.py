@@ -137,3 +137,21 @@ def test_correlogram_of_independent_values_is_near_one(rng):
         pts, rng.normal(size=800), lag=10, n_lags=5, estimator="correlogram"
     )
     assert np.all(np.abs(ev.value - 1) < 0.1)
+
+
+def test_mean_hole_direction_follows_the_holes():
+    """The downhole variogram joins the fit along the holes' mean direction (here two holes
+    at -60 toward 290, one listed bottom-up: the sign does not matter)."""
+    import pandas as pd
+
+    from blockmodel.desurvey import direction
+    from blockmodel.pipeline import _mean_hole_direction
+
+    t = direction([290.0], [-60.0])[0]
+    rows = []
+    for hole, start, order in (("A", (0.0, 0.0, 0.0), 1), ("B", (50.0, 0.0, 0.0), -1)):
+        for k in range(10)[::order]:
+            p = np.asarray(start) + (2.0 * k + 1.0) * t
+            rows.append({"hole": hole, "from": 2.0 * k, "x": p[0], "y": p[1], "z": p[2]})
+    got = _mean_hole_direction(pd.DataFrame(rows))
+    np.testing.assert_allclose(got, t, atol=1e-12)
