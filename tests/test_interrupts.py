@@ -96,6 +96,7 @@ def test_kill_at_every_stage_keeps_previous_report(previous, delay):
     proc = _start(previous)
     _wait_for_staging(previous.parent, previous.name, proc)
     time.sleep(delay)
+    assert proc.poll() is None, "the run ended before the kill: shorten the delay"
     proc.kill()
     proc.communicate(timeout=60)
     assert _hashes(previous) == before
