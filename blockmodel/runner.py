@@ -269,7 +269,6 @@ def _estimate_warnings(project, comps, grid, blocks, shares) -> list[str]:
     """What the estimate cannot be trusted for, in words for the report."""
     out = _above_topography(project, comps.table)
     primary = project.grades[0]
-    unit = project.data.grades[primary]
     for name, share in shares.items():
         if share < 1.0:
             out.append(
@@ -297,8 +296,8 @@ def _estimate_warnings(project, comps, grid, blocks, shares) -> list[str]:
     if len(unestimated):
         out.append(
             f"{len(unestimated)} block(s), {unestimated['tonnes'].sum():,.0f} t, inside the domains "
-            f"were not estimated (no search pass found enough samples); they are not in the "
-            f"grade–tonnage tables ({unit})"
+            f"were not estimated for {primary} (no search pass found enough samples); they "
+            "are not in the grade–tonnage tables"
         )
     return out
 

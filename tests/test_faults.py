@@ -289,3 +289,18 @@ def test_domain_names_make_safe_file_names(box_project, capsys, name):
     assert all("/" not in f and len(f) < 80 for f in files)
     assert any(f.startswith("declustering_") and f.endswith(".png") for f in files)
     assert not (box_project.parent.parent / "b").exists()
+
+
+def test_solid_volume_share_and_closedness_against_a_box():
+    """Analytic checks: a 10 x 20 x 30 m box holds 6,000 m³; a box covering x 5-20, z 0-15
+    holds a quarter of it (to the 400-column lattice, within 1 %); the box is closed and
+    loses that when two triangles go."""
+    from blockmodel.solids import Surface, box_surface, open_edges, share_inside_box, solid_volume
+
+    box = box_surface((0, 0, 0), (10, 20, 30))
+    assert solid_volume(box) == pytest.approx(6000.0, rel=1e-12)
+    assert share_inside_box(box, (0, 0, 0), (10, 20, 30)) == pytest.approx(1.0, abs=1e-9)
+    assert share_inside_box(box, (5, 0, 0), (20, 20, 15)) == pytest.approx(0.25, rel=0.01)
+    assert share_inside_box(box, (50, 0, 0), (60, 20, 30)) == 0.0
+    assert open_edges(box) == 0
+    assert open_edges(Surface(box.vertices, box.triangles[2:])) > 0
