@@ -117,8 +117,11 @@ def model_proportions(
     """(n_blocks, n_domains) proportions below the topography.
 
     Domains with a solid take the share of each block inside it (first listed wins). A
-    domain without a solid takes what the solids leave of a block whose nearest composite,
-    within ``grid.code_reach`` metres, carries its code.
+    domain without a solid takes, of what the solids leave of a block, the share of its
+    sub-cells (``grid.subcells`` per axis) whose nearest composite, within
+    ``grid.code_reach`` metres, carries the domain's code: the codes are read as a
+    nearest-composite partition of space, resolved to sub-cells so that a flat seam
+    thinner than a block gets its partial blocks.
     """
     from scipy.spatial import cKDTree
 
@@ -145,13 +148,31 @@ def model_proportions(
     box = box_surface(lo, hi)
     below = block_proportions(grid, [box], topo, subcells=project.grid.subcells)[:, 0]
     free = np.clip(below - out.sum(axis=1), 0.0, 1.0)
-    dist, nearest = cKDTree(composites[["x", "y", "z"]].to_numpy(float)).query(
-        grid.centres(), workers=-1
-    )
-    names = composites["domain"].to_numpy()[nearest]
-    for n in coded:
-        take = (names == project.domains[n].name) & (dist <= project.grid.code_reach)
-        out[take, n] = free[take]
+    tree = cKDTree(composites[["x", "y", "z"]].to_numpy(float))
+    codes = composites["domain"].to_numpy()
+    axes = [
+        ((np.arange(n) + 0.5) / n - 0.5) * size
+        for n, size in zip(project.grid.subcells, grid.block_size, strict=True)
+    ]
+    offsets = np.stack(np.meshgrid(*axes, indexing="ij"), axis=-1).reshape(-1, 3)
+    reach = project.grid.code_reach
+    # only blocks whose centre lies within reach of a composite (plus half a diagonal)
+    near = tree.query(
+        grid.centres(),
+        distance_upper_bound=reach + 0.5 * np.linalg.norm(grid.block_size),
+        workers=-1,
+    )[0]
+    candidates = np.flatnonzero(np.isfinite(near) & (free > 0))
+    step = max(1, 2_000_000 // len(offsets))
+    for start in range(0, len(candidates), step):
+        flat = candidates[start : start + step]
+        pts = (grid.centres(flat)[:, None, :] + offsets[None]).reshape(-1, 3)
+        dist, nearest = tree.query(pts, workers=-1)
+        names = codes[nearest].reshape(len(flat), len(offsets))
+        within = (dist <= reach).reshape(len(flat), len(offsets))
+        for n in coded:
+            share = ((names == project.domains[n].name) & within).mean(axis=1)
+            out[flat, n] = (free[flat] * share).astype(np.float32)
     return out
 
 

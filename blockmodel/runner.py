@@ -265,6 +265,65 @@ def _above_topography(project, composites) -> list[str]:
     return out
 
 
+EXTRAPOLATED_SHARE = 0.05  # of a domain's tonnes beyond one hole spacing: warn
+
+
+def hole_spacing(points: np.ndarray, holes: np.ndarray) -> float:
+    """The wider spacing between holes: the 90th percentile, over samples, of the distance
+    from a sample to the nearest sample of another hole (metres; NaN with fewer than two
+    holes).  A regular pattern gives its spacing; infill holes among a wider pattern do
+    not shrink it.
+
+    Parameters
+    ----------
+    points : (n, 3) float64, metres
+    holes : (n,) hole ids
+    """
+    from scipy.spatial import cKDTree
+
+    codes = np.unique(holes, return_inverse=True)[1].ravel()
+    if codes.max(initial=0) < 1:
+        return float("nan")
+    tree = cKDTree(points)
+    nearest = np.full(len(points), np.inf)
+    k = 8
+    todo = np.arange(len(points))
+    while len(todo):
+        k = min(2 * k, len(points))
+        dist, idx = tree.query(points[todo], k=k)
+        other = codes[idx] != codes[todo, None]
+        found = other.any(axis=1)
+        nearest[todo[found]] = dist[found, other[found].argmax(axis=1)]
+        todo = todo[~found] if k < len(points) else todo[:0]
+    return float(np.percentile(nearest[np.isfinite(nearest)], 90))
+
+
+def _extrapolation_warnings(composites: pd.DataFrame, estimated: pd.DataFrame) -> list[str]:
+    """Domains with more than 5 % of their estimated tonnes farther from every composite
+    than the wider spacing between holes (:func:`hole_spacing`); common practice is to
+    extrapolate no further than about half the drill spacing beyond the last hole."""
+    from scipy.spatial import cKDTree
+
+    out = []
+    for name, blocks in estimated.groupby("domain", sort=False):
+        own = composites[composites["domain"] == name]
+        if own["hole"].nunique() < 2:
+            continue
+        points = own[["x", "y", "z"]].to_numpy(float)
+        spacing = hole_spacing(points, own["hole"].to_numpy())
+        dist = cKDTree(points).query(blocks[["x", "y", "z"]].to_numpy(float), workers=-1)[0]
+        far = dist > spacing
+        share = blocks["tonnes"].to_numpy()[far].sum() / blocks["tonnes"].sum()
+        if share > EXTRAPOLATED_SHARE:
+            out.append(
+                f"{100 * share:.1f} % of the estimated tonnes of domain '{name}' "
+                f"({int(far.sum())} blocks) lie farther from every composite than the wider "
+                f"spacing between holes ({spacing:.0f} m): extrapolated beyond the drilling; "
+                "check the solid's extent and the classification"
+            )
+    return out
+
+
 def _estimate_warnings(project, comps, grid, blocks, shares) -> list[str]:
     """What the estimate cannot be trusted for, in words for the report."""
     out = _above_topography(project, comps.table)
@@ -292,6 +351,7 @@ def _estimate_warnings(project, comps, grid, blocks, shares) -> list[str]:
                 f"{low[g].min():.4g} {project.data.grades[g]}, {low['tonnes'].sum():,.0f} t): "
                 "negative kriging weights; they count at cut-off 0 and are kept as estimated"
             )
+    out += _extrapolation_warnings(comps.table, estimated)
     unestimated = blocks[~np.isfinite(blocks[primary])]
     if len(unestimated):
         out.append(

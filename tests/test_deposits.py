@@ -10,48 +10,24 @@ tonnage; every true block inside the solids estimated.
 
 from __future__ import annotations
 
-import numpy as np
-import pandas as pd
 import pytest
 
 from blockmodel.cli import main
-from blockmodel.grid import BlockGrid
-from blockmodel.project import load_project
-from blockmodel.truth import compare_with_truth
 
 from . import deposits
-
-
-def _figures(project_file):
-    project = load_project(project_file)
-    grade = project.grades[0]
-    out = project_file.parent / "report"
-    grid = BlockGrid(project.grid.origin, project.grid.block_size, project.grid.shape)
-    blocks = pd.read_parquet(out / "block_model.parquet")
-    truth = pd.read_parquet(project_file.parent / "truth.parquet")
-    fig = compare_with_truth(blocks, truth, grid, grade, "main")
-    support = pd.read_csv(out / "change_of_support.csv")
-    at = support[np.isclose(support["cutoff"], round(fig["median_cutoff"], 6))].iloc[0]
-    fig["support_tonnage_difference_percent"] = 100 * (
-        at["tonnes"] / fig["tonnes_above_cutoff_true"] - 1
-    )
-    main_blocks = blocks[(blocks["domain"] == "main") & np.isfinite(blocks[grade])]
-    estimated = set(
-        grid.flat_index(
-            main_blocks["i"].to_numpy(), main_blocks["j"].to_numpy(), main_blocks["k"].to_numpy()
-        )
-    )
-    flat = grid.block_of(truth[["x", "y", "z"]].to_numpy(float))
-    fig["true_blocks_not_estimated"] = int(sum(f not in estimated for f in flat))
-    return fig
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("name", ["pipe", "seam", "lode"])
 def test_invented_deposit_against_its_truth(tmp_path, capsys, name):
-    project_file, _, spec = deposits.build(name, tmp_path / name)
+    project_file, truth, spec = deposits.build(name, tmp_path / name)
+    # the test measures the tool, not the luck of the drilling: the deposit's own assays
+    # (length-weighted, before the tool touches them) represent its truth within 3 %
+    drilled = deposits.assay_mean(project_file.parent, spec)
+    true_mean = float(truth.grades[truth.main].mean())
+    assert abs(drilled / true_mean - 1) <= 0.03, (drilled, true_mean)
     assert main(["run", str(project_file)]) == 0, capsys.readouterr().err
-    fig = _figures(project_file)
+    fig = deposits.figures(project_file, project_file.parent / "report", "main")
     print(name, {k: round(v, 3) for k, v in fig.items()})
     assert abs(fig["mean_difference_percent"]) <= 5.0
     assert 0.8 <= fig["slope_true_on_kriged_indicated_or_better"] <= 1.2

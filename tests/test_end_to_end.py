@@ -147,6 +147,42 @@ def test_tonnage_above_median_within_10_percent(truth_figures):
     assert abs(truth_figures["tonnage_difference_percent"]) <= 10.0
 
 
+def _automatic_demo(folder):
+    """A copy of the demo asking for automatic variography: no orientation, no model."""
+    import shutil
+
+    shutil.copytree(DEMO, folder)
+    text = (folder / "project.toml").read_text()
+    start = text.index("[variogram.lode.au]")
+    text = text[:start] + text[text.index("# Search passes") :]
+    lines = [line for line in text.splitlines() if not line.startswith("orientation = [20.0")]
+    (folder / "project.toml").write_text("\n".join(lines) + "\n")
+    return folder / "project.toml"
+
+
+@pytest.fixture(scope="module")
+def automatic_run(tmp_path_factory):
+    project_file = _automatic_demo(tmp_path_factory.mktemp("auto") / "demo")
+    assert "[variogram." not in project_file.read_text()
+    assert main(["run", str(project_file), "--out", str(project_file.parent / "out")]) == 0
+    return project_file
+
+
+@pytest.mark.parametrize("domain", ["lode", "halo"])
+def test_truth_checks_hold_with_the_automatic_fit(automatic_run, domain):
+    """The demo's truth checks with no interpreted orientation or model: the tool finds
+    the orientation and fits the model itself."""
+    project = load_project(automatic_run)
+    grid = BlockGrid(project.grid.origin, project.grid.block_size, project.grid.shape)
+    blocks = pd.read_parquet(automatic_run.parent / "out" / "block_model.parquet")
+    truth = pd.read_parquet(DEMO / "truth_blocks.parquet")
+    figures = compare_with_truth(blocks, truth, grid, "au", domain)
+    print(domain, "automatic:", {k: round(v, 3) for k, v in figures.items()})
+    assert abs(figures["mean_difference_percent"]) <= 5.0
+    assert 0.8 <= figures["slope_true_on_kriged_indicated_or_better"] <= 1.2
+    assert abs(figures["tonnage_difference_percent"]) <= 10.0
+
+
 @pytest.mark.parametrize(
     ("args", "name"),
     [

@@ -304,3 +304,47 @@ def test_solid_volume_share_and_closedness_against_a_box():
     assert share_inside_box(box, (50, 0, 0), (60, 20, 30)) == 0.0
     assert open_edges(box) == 0
     assert open_edges(Surface(box.vertices, box.triangles[2:])) > 0
+
+
+def _grid_of_holes(spacing, n=4):
+    xy = np.arange(n) * spacing
+    rows = [
+        (f"H{i}{j}", x, y, z)
+        for i, x in enumerate(xy)
+        for j, y in enumerate(xy)
+        for z in np.arange(1.0, 50.0, 2.0)
+    ]
+    return pd.DataFrame(rows, columns=["hole", "x", "y", "z"]).assign(domain="ore")
+
+
+def test_hole_spacing_of_a_regular_grid():
+    from blockmodel.runner import hole_spacing
+
+    comps = _grid_of_holes(20.0)
+    got = hole_spacing(comps[["x", "y", "z"]].to_numpy(float), comps["hole"].to_numpy())
+    assert got == pytest.approx(20.0)
+    # a 40 m pattern of 36 holes with four infill holes in one corner: still 40 m
+    wide = _grid_of_holes(40.0, n=6)
+    infill = _grid_of_holes(40.0, n=2).assign(
+        x=lambda f: f["x"] + 20.0, hole=lambda f: "I" + f["hole"]
+    )
+    both = pd.concat([wide, infill])
+    got = hole_spacing(both[["x", "y", "z"]].to_numpy(float), both["hole"].to_numpy())
+    assert got == pytest.approx(40.0)
+
+
+def test_blocks_beyond_the_drilling_are_named():
+    """A domain drilled over 60 x 60 m but modelled over 160 x 160 m: most tonnes lie
+    farther from every composite than the 20 m hole spacing; the run says so."""
+    from blockmodel.runner import _extrapolation_warnings
+
+    comps = _grid_of_holes(20.0)
+    centres = np.arange(5.0, 160.0, 10.0)
+    X, Y, Z = np.meshgrid(centres, centres, [25.0], indexing="ij")
+    blocks = pd.DataFrame(
+        {"x": X.ravel(), "y": Y.ravel(), "z": Z.ravel(), "domain": "ore", "tonnes": 100.0}
+    )
+    (message,) = _extrapolation_warnings(comps, blocks)
+    assert "domain 'ore'" in message and "(20 m)" in message and "extrapolated" in message
+    inside = blocks[(blocks["x"] < 60) & (blocks["y"] < 60)]
+    assert _extrapolation_warnings(comps, inside) == []
