@@ -12,10 +12,10 @@ krige, estimate
     Ordinary / simple kriging (point or block), inverse distance, nearest sample.
 """
 
-from .kriging import discretisation_offsets, estimate, krige
-from .orientation import Orientation
-from .search import SearchEllipsoid
-from .variogram import Structure, VariogramModel
+from blockmodel.estimation.kriging import discretisation_offsets, estimate, krige
+from blockmodel.estimation.orientation import Orientation
+from blockmodel.estimation.search import SearchEllipsoid
+from blockmodel.variography.models import Structure, VariogramModel
 
 __all__ = [
     "Orientation",

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["InputError", "Problem"]
+__all__ = ["InputError", "Problem", "setting_error"]
 
 
 @dataclass(frozen=True)
@@ -47,3 +47,8 @@ class InputError(Exception):
         if len(self.problems) > limit:
             lines.append(f"... and {len(self.problems) - limit} more problems")
         return f"{len(self.problems)} problem(s) in the input:\n" + "\n".join(lines)
+
+
+def setting_error(path, key: str, message: str) -> InputError:
+    """An error in one setting (``key``) of the project file ``path``."""
+    return InputError([Problem(str(path), None, None, key, message)])

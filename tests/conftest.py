@@ -120,7 +120,7 @@ def box_project(tmp_path):
 
 def make_box_project(tmp_path: Path) -> Path:
     """Write the box project's files into ``tmp_path``; returns the project file."""
-    from blockmodel.solids import box_surface, write_ply
+    from blockmodel.model.solids import box_surface, write_ply
 
     rng = np.random.default_rng(7)
     collars, surveys, assays = (
@@ -148,7 +148,7 @@ def make_box_project(tmp_path: Path) -> Path:
 def box_site(tmp_path_factory):
     """A workspace shared by the session: ``data/`` holds the box project's inputs, ``out/``
     a report the tool wrote from them (one full run).  Copy it before changing anything."""
-    from blockmodel.cli import main
+    from blockmodel.app.cli import main
 
     top = tmp_path_factory.mktemp("site")
     (top / "data").mkdir()

@@ -29,10 +29,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from blockmodel.desurvey import direction, positions_along_hole
-from blockmodel.orientation import Orientation
-from blockmodel.simulation import simulate_gaussian
-from blockmodel.solids import (
+from blockmodel.data.desurvey import direction, positions_along_hole
+from blockmodel.estimation.orientation import Orientation
+from blockmodel.model.solids import (
     Lattice,
     Surface,
     column_crossings,
@@ -40,7 +39,8 @@ from blockmodel.solids import (
     points_inside,
     write_ply,
 )
-from blockmodel.variogram import Structure, VariogramModel
+from blockmodel.simulation.spectral import simulate_gaussian
+from blockmodel.variography.models import Structure, VariogramModel
 
 CELL = 2.5
 BLOCK = (10.0, 10.0, 5.0)
@@ -211,7 +211,7 @@ def simulate(sp: Spec, seed: int) -> Truth:
         main = np.abs(Z - mid) < 6.0
     air = np.zeros(fine, dtype=bool)
     if sp.topography is not None:
-        from blockmodel.solids import surface_elevation
+        from blockmodel.model.solids import surface_elevation
 
         lat = Lattice(axes[0][0], CELL, fine[0], axes[1][0], CELL, fine[1])
         top = surface_elevation(sp.topography, lat).reshape(fine[1], fine[0]).T
@@ -404,12 +404,12 @@ def assay_mean(folder: Path, sp: Spec) -> float:
 
 def figures(project_file: Path, out: Path, domain: str, truth_file: Path | None = None):
     """The estimate in ``out`` against the truth for ``domain``: the figures of
-    :func:`blockmodel.truth.compare_with_truth`, the change-of-support tonnage above the
+    :func:`blockmodel.assess.truth.compare_with_truth`, the change-of-support tonnage above the
     median true block grade against the true tonnage there, and the true blocks that were
     not estimated."""
-    from blockmodel.grid import BlockGrid
-    from blockmodel.project import load_project
-    from blockmodel.truth import compare_with_truth
+    from blockmodel.assess.truth import compare_with_truth
+    from blockmodel.config.project import load_project
+    from blockmodel.model.grid import BlockGrid
 
     project = load_project(project_file)
     grade = project.grades[0]

@@ -14,7 +14,11 @@ import numpy as np
 import pytest
 from scipy.stats import norm
 
-from blockmodel.support import block_grade_tonnage, empirical_anamorphosis, support_coefficient
+from blockmodel.assess.support import (
+    block_grade_tonnage,
+    empirical_anamorphosis,
+    support_coefficient,
+)
 
 
 def _lognormal_blocks(s, r, cutoffs, m=1.0):
@@ -90,9 +94,9 @@ def test_against_blocks_of_a_simulated_field(s):
     spherical range 24 m), averaged to 8 x 8 m blocks.  Given the true block variance, the
     model's block curve follows the true blocks' grade-tonnage curve; the discrete Gaussian
     model is an approximation, within a few per cent at this skewness (common practice)."""
-    from blockmodel.orientation import Orientation
-    from blockmodel.simulation import simulate_gaussian
-    from blockmodel.variogram import Structure, VariogramModel
+    from blockmodel.estimation.orientation import Orientation
+    from blockmodel.simulation.spectral import simulate_gaussian
+    from blockmodel.variography.models import Structure, VariogramModel
 
     model = VariogramModel(0.0, [Structure("spherical", 1.0, (24.0, 24.0, 24.0), Orientation())])
     y = simulate_gaussian((384, 384, 1), (1.0, 1.0, 1.0), model, np.random.default_rng(5))

@@ -5,7 +5,7 @@ import sys
 
 import pytest
 
-from blockmodel.cli import main
+from blockmodel.app.cli import main
 
 
 def _run(*args):

@@ -4,9 +4,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from blockmodel.compositing import cap_grades, composite
-from blockmodel.drillholes import DrillholeSet
-from blockmodel.project import CappingRule, Compositing
+from blockmodel.config.project import CappingRule, Compositing
+from blockmodel.data.compositing import cap_grades, composite
+from blockmodel.data.drillholes import DrillholeSet
 
 
 def _holes(intervals):

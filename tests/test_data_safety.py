@@ -16,8 +16,8 @@ from pathlib import Path
 
 import pytest
 
-from blockmodel.cli import main
-from blockmodel.outputs import MARKER, is_tool_folder
+from blockmodel.app.cli import main
+from blockmodel.app.outputs import MARKER, is_tool_folder
 
 
 def _snapshot(folder: Path) -> dict[str, str]:

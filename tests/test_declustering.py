@@ -4,7 +4,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from blockmodel.declustering import cell_declustering, nearest_neighbour_weights
+from blockmodel.assess.declustering import cell_declustering, nearest_neighbour_weights
 
 from .conftest import DEMO
 
@@ -54,12 +54,12 @@ def test_duplicated_isolated_sample_halves_exactly():
 
 
 def test_demo_declustered_lode_mean_closer_to_truth():
-    from blockmodel import pipeline
-    from blockmodel.project import load_project
+    from blockmodel import stages
+    from blockmodel.config.project import load_project
 
     project = load_project(DEMO / "project.toml")
-    comps = pipeline.load_and_composite(project)
-    decl = pipeline.decluster(project, comps.table)["lode"]
+    comps = stages.load_and_composite(project)
+    decl = stages.decluster(project, comps.table).by_domain["lode"]
     truth = pd.read_parquet(DEMO / "truth_blocks.parquet")
     lode = truth[truth["domain"] == "lode"]
     true_mean = np.average(lode["au_true"], weights=lode["proportion"])

@@ -6,10 +6,16 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from blockmodel.demo import build_demo, halo_surface, lode_surface, topography_elevation, write_demo
-from blockmodel.drillholes import load_drillholes
-from blockmodel.project import load_project
-from blockmodel.solids import column_crossings, points_inside
+from blockmodel.config.project import load_project
+from blockmodel.data.drillholes import load_drillholes
+from blockmodel.demo.deposit import (
+    build_demo,
+    halo_surface,
+    lode_surface,
+    topography_elevation,
+    write_demo,
+)
+from blockmodel.model.solids import column_crossings, points_inside
 
 from .conftest import DEMO
 
@@ -57,8 +63,8 @@ def test_naive_mean_clearly_above_truth(demo_holes):
 def test_holes_hit_the_lode_where_the_solid_says(demo_holes):
     # The logged domain of every interval equals the solid's verdict at the centre of the
     # 2.5 m truth cell holding the interval's mid-point (the demo logs by truth cell).
-    from blockmodel.compositing import hole_positions
-    from blockmodel.demo import FINE, ORIGIN, _fine_lattice
+    from blockmodel.data.compositing import hole_positions
+    from blockmodel.demo.deposit import FINE, ORIGIN, _fine_lattice
 
     iv = demo_holes.intervals
     mid = hole_positions(

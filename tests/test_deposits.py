@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import pytest
 
-from blockmodel.cli import main
+from blockmodel.app.cli import main
 
 from . import deposits
 

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from blockmodel.desurvey import direction, positions_along_hole
+from blockmodel.data.desurvey import direction, positions_along_hole
 
 
 def test_taylor_mason_worked_example():

@@ -11,10 +11,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from blockmodel.directions import find_orientation, hemisphere_directions
-from blockmodel.orientation import Orientation
-from blockmodel.simulation import simulate_gaussian
-from blockmodel.variogram import Structure, VariogramModel
+from blockmodel.estimation.orientation import Orientation
+from blockmodel.simulation.spectral import simulate_gaussian
+from blockmodel.variography.directions import find_orientation, hemisphere_directions
+from blockmodel.variography.models import Structure, VariogramModel
 
 CELL = 2.5
 SIDE = 64

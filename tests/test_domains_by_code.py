@@ -3,7 +3,7 @@
 import numpy as np
 import pandas as pd
 
-from blockmodel.cli import main
+from blockmodel.app.cli import main
 
 
 def test_domain_from_codes_without_solid(box_project, capsys):

@@ -3,9 +3,9 @@
 import numpy as np
 import pytest
 
-from blockmodel.drillholes import load_drillholes
+from blockmodel.config.project import load_project
+from blockmodel.data.drillholes import load_drillholes
 from blockmodel.errors import InputError
-from blockmodel.project import load_project
 
 
 def _load(path):

@@ -6,10 +6,10 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from blockmodel.cli import main
-from blockmodel.grid import BlockGrid
-from blockmodel.project import load_project
-from blockmodel.truth import compare_with_truth
+from blockmodel.app.cli import main
+from blockmodel.assess.truth import compare_with_truth
+from blockmodel.config.project import load_project
+from blockmodel.model.grid import BlockGrid
 
 from .conftest import DEMO
 

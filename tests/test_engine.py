@@ -4,8 +4,8 @@ import filecmp
 
 import pytest
 
-from blockmodel import pipeline
-from blockmodel.project import load_project
+from blockmodel import stages
+from blockmodel.config.project import load_project
 
 from .conftest import DEMO
 
@@ -13,17 +13,16 @@ from .conftest import DEMO
 @pytest.fixture(scope="module")
 def demo_inputs():
     project = load_project(DEMO / "project.toml")
-    comps = pipeline.load_and_composite(project)
-    grid = pipeline.block_model_grid(project)
-    props = pipeline.model_proportions(project, grid)
-    pipeline.decluster(project, comps.table)
-    models = {k: v.model for k, v in pipeline.variography(project, comps.table).items()}
-    return project, comps.table, models, grid, props
+    comps = stages.load_and_composite(project)
+    domains = stages.build_domain_model(project, comps.table)
+    decl = stages.decluster(project, comps.table, domains)
+    models = {k: v.model for k, v in stages.variography(project, comps.table, decl.weights).items()}
+    return project, comps.table, models, domains.grid, domains.proportions
 
 
 def _write(inputs, path, **kw):
     project, table, models, grid, props = inputs
-    blocks = pipeline.estimate_block_model(project, table, models, grid, props, **kw)
+    blocks = stages.estimate_block_model(project, table, models, grid, props, **kw)
     blocks.to_parquet(path, index=False)
     return blocks
 

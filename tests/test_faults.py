@@ -7,7 +7,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from blockmodel.cli import main
+from blockmodel.app.cli import main
 
 
 def _set_field(folder, name, hole, column, value, *, row=0):
@@ -111,24 +111,24 @@ def test_bad_setting_is_named(box_project, capsys, label, old, new, words):
 
 
 def test_solid_far_from_the_grid(box_project, capsys):
-    from blockmodel.solids import box_surface, write_ply
+    from blockmodel.model.solids import box_surface, write_ply
 
     write_ply(box_project.parent / "ore.ply", box_surface((1e5, 0, 20), (1e5 + 100, 100, 80)))
     _stopped(box_project, capsys, "ore.ply", "0.0 %", "grid.shape")
 
 
 def test_solid_not_closed(box_project, capsys):
-    from blockmodel.solids import read_surface, write_ply
+    from blockmodel.model.solids import read_surface, write_ply
 
     solid = read_surface(box_project.parent / "ore.ply")
-    from blockmodel.solids import Surface
+    from blockmodel.model.solids import Surface
 
     write_ply(box_project.parent / "ore.ply", Surface(solid.vertices, solid.triangles[2:]))
     _stopped(box_project, capsys, "ore.ply", "not closed")
 
 
 def test_topography_above_nothing(box_project, capsys):
-    from blockmodel.solids import Surface, grid_triangles, write_ply
+    from blockmodel.model.solids import Surface, grid_triangles, write_ply
 
     xs, ys = np.meshgrid(np.linspace(-10, 110, 5), np.linspace(-10, 110, 5), indexing="ij")
     flat = np.column_stack([xs.ravel(), ys.ravel(), np.full(xs.size, -50.0)])
@@ -189,7 +189,7 @@ def test_report_cutoffs_must_increase(box_project, capsys, tmp_path):
 
 
 def test_cutoff_zero_counts_every_estimated_block():
-    from blockmodel.reporting import grade_tonnage
+    from blockmodel.report.tables import grade_tonnage
 
     blocks = pd.DataFrame(
         {
@@ -206,8 +206,8 @@ def test_cutoff_zero_counts_every_estimated_block():
 
 
 def test_truth_on_another_grid_is_refused():
-    from blockmodel.grid import BlockGrid
-    from blockmodel.truth import TruthMismatch, compare_with_truth
+    from blockmodel.assess.truth import TruthMismatch, compare_with_truth
+    from blockmodel.model.grid import BlockGrid
 
     grid = BlockGrid((0.0, 0.0, 0.0), (10.0, 10.0, 5.0), (4, 4, 4))
     blocks = pd.DataFrame(
@@ -259,7 +259,7 @@ def test_thousand_metre_blocks_are_explained(box_project, capsys):
 
 
 def test_composites_above_the_topography_are_named(box_project, capsys):
-    from blockmodel.solids import Surface, grid_triangles, write_ply
+    from blockmodel.model.solids import Surface, grid_triangles, write_ply
 
     xs, ys = np.meshgrid(np.linspace(-10, 110, 5), np.linspace(-10, 110, 5), indexing="ij")
     ground = np.column_stack([xs.ravel(), ys.ravel(), np.full(xs.size, 90.0)])
@@ -295,7 +295,13 @@ def test_solid_volume_share_and_closedness_against_a_box():
     """Analytic checks: a 10 x 20 x 30 m box holds 6,000 m³; a box covering x 5-20, z 0-15
     holds a quarter of it (to the 400-column lattice, within 1 %); the box is closed and
     loses that when two triangles go."""
-    from blockmodel.solids import Surface, box_surface, open_edges, share_inside_box, solid_volume
+    from blockmodel.model.solids import (
+        Surface,
+        box_surface,
+        open_edges,
+        share_inside_box,
+        solid_volume,
+    )
 
     box = box_surface((0, 0, 0), (10, 20, 30))
     assert solid_volume(box) == pytest.approx(6000.0, rel=1e-12)
@@ -318,7 +324,7 @@ def _grid_of_holes(spacing, n=4):
 
 
 def test_hole_spacing_of_a_regular_grid():
-    from blockmodel.runner import hole_spacing
+    from blockmodel.stages.checks import hole_spacing
 
     comps = _grid_of_holes(20.0)
     got = hole_spacing(comps[["x", "y", "z"]].to_numpy(float), comps["hole"].to_numpy())
@@ -336,7 +342,7 @@ def test_hole_spacing_of_a_regular_grid():
 def test_blocks_beyond_the_drilling_are_named():
     """A domain drilled over 60 x 60 m but modelled over 160 x 160 m: most tonnes lie
     farther from every composite than the 20 m hole spacing; the run says so."""
-    from blockmodel.runner import _extrapolation_warnings
+    from blockmodel.stages.checks import _extrapolation_warnings
 
     comps = _grid_of_holes(20.0)
     centres = np.arange(5.0, 160.0, 10.0)

@@ -10,7 +10,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from blockmodel.cli import main
+from blockmodel.app.cli import main
 
 PROJECT = """
 name = "fuzzed project <b>&</b>"

@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 
 import blockmodel as bm
-from blockmodel.domains import block_proportions
-from blockmodel.grid import BlockGrid
-from blockmodel.solids import BOX_TRIANGLES, Surface, box_surface
+from blockmodel.model.domains import block_proportions
+from blockmodel.model.grid import BlockGrid
+from blockmodel.model.solids import BOX_TRIANGLES, Surface, box_surface
 
 
 def _tilted_slab(normal, offset, size=1000.0) -> Surface:

@@ -5,7 +5,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from blockmodel.cli import main
+from blockmodel.app.cli import main
 
 
 def _edit(path, old, new, count=1):

@@ -9,8 +9,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from blockmodel import pipeline
-from blockmodel.project import load_project
+from blockmodel import stages
+from blockmodel.config.project import load_project
 
 from .conftest import SMALL_FILES, SMALL_PROJECT, make_box_project
 
@@ -26,7 +26,7 @@ def _write(folder, files):
 
 
 def _composites(project_file):
-    table = pipeline.load_and_composite(load_project(project_file)).table
+    table = stages.load_and_composite(load_project(project_file)).table
     return table.sort_values(["x", "y", "z"]).reset_index(drop=True)
 
 
@@ -74,18 +74,17 @@ orientation = [0.0, 0.0, 0.0]
 
 def _estimate(project_file):
     project = load_project(project_file)
-    comps = pipeline.load_and_composite(project)
-    grid = pipeline.block_model_grid(project)
-    props = pipeline.model_proportions(project, grid, comps.table)
-    decl = pipeline.decluster(project, comps.table, grid, props)
-    models = {k: v.model for k, v in pipeline.variography(project, comps.table).items()}
-    blocks = pipeline.estimate_block_model(
+    comps = stages.load_and_composite(project)
+    domains = stages.build_domain_model(project, comps.table)
+    decl = stages.decluster(project, comps.table, domains)
+    models = {k: v.model for k, v in stages.variography(project, comps.table, decl.weights).items()}
+    blocks = stages.estimate_block_model(
         project,
         comps.table,
         models,
-        grid,
-        props,
-        declustered_means={k: v.declustered_mean for k, v in decl.items()},
+        domains.grid,
+        domains.proportions,
+        declustered_means={k: v.declustered_mean for k, v in decl.by_domain.items()},
     )
     return blocks, decl
 
@@ -112,4 +111,4 @@ def test_results_do_not_depend_on_hole_names(tmp_path, rename, rng):
     b, decl_b = _estimate(second_folder / "project.toml")
     numeric = [c for c in a.columns if c not in ("domain", "class")]
     np.testing.assert_array_equal(a[numeric].to_numpy(float), b[numeric].to_numpy(float))
-    assert decl_a["ore"].declustered_mean == decl_b["ore"].declustered_mean
+    assert decl_a.by_domain["ore"].declustered_mean == decl_b.by_domain["ore"].declustered_mean

@@ -2,8 +2,8 @@
 
 import pytest
 
+from blockmodel.config.project import load_project, resolved
 from blockmodel.errors import InputError
-from blockmodel.project import load_project, resolved
 
 
 def _with(path, old, new):

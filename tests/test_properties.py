@@ -8,10 +8,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import blockmodel as bm
-from blockmodel.compositing import composite
-from blockmodel.drillholes import DrillholeSet, load_drillholes
+from blockmodel.config.project import Compositing, load_project
+from blockmodel.data.compositing import composite
+from blockmodel.data.drillholes import DrillholeSet, load_drillholes
 from blockmodel.errors import InputError
-from blockmodel.project import Compositing, load_project
 
 from .conftest import SMALL_FILES, SMALL_PROJECT
 

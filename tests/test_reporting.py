@@ -6,10 +6,15 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from blockmodel.classification import classify_blocks
-from blockmodel.project import ClassRule
-from blockmodel.reporting import TROY_OUNCE_GRAMS, grade_tonnage
-from blockmodel.support import block_grade_tonnage, fit_anamorphosis, hermite, support_coefficient
+from blockmodel.assess.classification import classify_blocks
+from blockmodel.assess.support import (
+    block_grade_tonnage,
+    fit_anamorphosis,
+    hermite,
+    support_coefficient,
+)
+from blockmodel.config.project import ClassRule
+from blockmodel.report.tables import TROY_OUNCE_GRAMS, grade_tonnage
 
 
 @pytest.fixture

@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 from scipy.spatial import cKDTree
 
-from blockmodel.orientation import Orientation
-from blockmodel.search import SearchEllipsoid, find_neighbours
+from blockmodel.estimation.orientation import Orientation
+from blockmodel.estimation.search import SearchEllipsoid, find_neighbours
 
 
 def _drilling(rng, holes=40, per_hole=25):

@@ -3,7 +3,7 @@
 import numpy as np
 
 import blockmodel as bm
-from blockmodel.simulation import simulate_gaussian
+from blockmodel.simulation.spectral import simulate_gaussian
 
 
 def test_covariance_matches_model():

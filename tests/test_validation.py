@@ -5,8 +5,8 @@ import pandas as pd
 import pytest
 
 import blockmodel as bm
-from blockmodel.simulation import simulate_gaussian
-from blockmodel.validation import cross_validate, global_bias, swath
+from blockmodel.assess.validation import cross_validate, global_bias, swath
+from blockmodel.simulation.spectral import simulate_gaussian
 
 
 @pytest.fixture(scope="module")

@@ -5,10 +5,10 @@ import numpy as np
 import pytest
 
 import blockmodel as bm
-from blockmodel.directions import find_orientation
-from blockmodel.experimental import experimental_variogram, normal_scores
-from blockmodel.fitting import fit_variogram, principal_directions
-from blockmodel.simulation import simulate_gaussian
+from blockmodel.simulation.spectral import simulate_gaussian
+from blockmodel.variography.directions import find_orientation
+from blockmodel.variography.experimental import experimental_variogram, normal_scores
+from blockmodel.variography.fitting import fit_variogram, principal_directions
 
 
 @pytest.fixture(scope="module")
@@ -144,8 +144,8 @@ def test_mean_hole_direction_follows_the_holes():
     at -60 toward 290, one listed bottom-up: the sign does not matter)."""
     import pandas as pd
 
-    from blockmodel.desurvey import direction
-    from blockmodel.pipeline import _mean_hole_direction
+    from blockmodel.data.desurvey import direction
+    from blockmodel.stages.variography import _mean_hole_direction
 
     t = direction([290.0], [-60.0])[0]
     rows = []

@@ -6,8 +6,8 @@ import pytest
 from matplotlib import colormaps
 from matplotlib.image import imread
 
-from blockmodel import plots
-from blockmodel.grid import BlockGrid
+from blockmodel.model.grid import BlockGrid
+from blockmodel.report import plots
 
 
 def _distinct_colours(png):
@@ -80,7 +80,7 @@ def test_section_not_blank(grid_and_blocks, tmp_path):
 @pytest.mark.parametrize("column", ["au", "class"])
 def test_3d_render_off_screen_not_blank(grid_and_blocks, tmp_path, column):
     # VTK chooses its own off-screen back end (EGL here); nothing is forced.
-    from blockmodel.views import render_view
+    from blockmodel.report.views import render_view
 
     grid, b = grid_and_blocks
     path = tmp_path / f"{column}.png"

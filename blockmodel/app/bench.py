@@ -1,0 +1,264 @@
+"""`blockmodel bench`: speed and memory figures, each measured side by side in one run.
+
+Figures are rates and ratios on this machine now; shared machines are noisy, so compare
+figures from the same run only.  Targets (issue tracker): block kriging >= 150,000 blocks/s
+and >= 5 % of the float64 matrix-multiply peak; point kriging >= 50x pykrige's
+moving-neighbourhood loop; < 1 GB peak memory for 1,000,000 blocks; a 10,000,000-block model
+within 4 GB; variograms of 100,000 composites within 2 GB.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+import time
+
+import numpy as np
+
+from blockmodel.estimation.orientation import Orientation
+from blockmodel.estimation.search import SearchEllipsoid
+from blockmodel.variography.models import Structure, VariogramModel
+
+__all__ = ["main", "synthetic_composites"]
+
+ORIENT = Orientation(20.0, 0.0, 55.0)
+MODEL = VariogramModel(
+    0.2,
+    [
+        Structure("spherical", 0.5, (80.0, 50.0, 15.0), ORIENT),
+        Structure("spherical", 0.3, (200.0, 120.0, 40.0), ORIENT),
+    ],
+)
+SEARCH = SearchEllipsoid((150.0, 100.0, 40.0), ORIENT, min_samples=4, max_samples=24)
+BLOCK, DISC = (10.0, 10.0, 5.0), (4, 4, 2)
+
+
+def synthetic_composites(
+    n: int,
+    seed: int = 1,
+    *,
+    extent: tuple[float, float, float] = (1000.0, 1000.0, 400.0),
+    per_hole: int = 100,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """``n`` 2 m composites along inclined holes of ``per_hole`` composites collared over the
+    top of a volume of ``extent`` metres, at projected coordinates; returns points (n, 3),
+    lognormal values (n,), hole ids (n,)."""
+    rng = np.random.default_rng(seed)
+    holes = -(-n // per_hole)
+    top = extent[2]
+    collars = rng.uniform([0, 0, top], [extent[0], extent[1], top], size=(holes, 3))
+    d = np.array([np.sin(np.radians(290)) * 0.5, np.cos(np.radians(290)) * 0.5, -np.sqrt(0.75)])
+    steps = (np.arange(per_hole) + 0.5) * 2.0
+    pts = (collars[:, None, :] + steps[None, :, None] * d).reshape(-1, 3)[:n]
+    pts += np.array([5e5, 7e6, 0.0])
+    return pts, rng.lognormal(0, 0.8, size=n), np.repeat(np.arange(holes), per_hole)[:n]
+
+
+def _targets(n: int, pts: np.ndarray) -> np.ndarray:
+    lo = pts.min(axis=0) + [100, 100, 40]
+    nx = ny = int(np.ceil((n / 40) ** 0.5))
+    ii, jj, kk = np.meshgrid(np.arange(nx), np.arange(ny), np.arange(40), indexing="ij")
+    t = lo + (np.column_stack([ii.ravel(), jj.ravel(), kk.ravel()]) + 0.5) * BLOCK
+    return t[:n]
+
+
+def matmul_peak(size: int = 2000, repeats: int = 5) -> float:
+    """Best float64 matrix-multiply rate (GFLOP/s) over a few repeats."""
+    rng = np.random.default_rng(0)
+    a, b = rng.random((size, size)), rng.random((size, size))
+    a @ b
+    best = np.inf
+    for _ in range(repeats):
+        t = time.perf_counter()
+        a @ b
+        best = min(best, time.perf_counter() - t)
+    return 2 * size**3 / best / 1e9
+
+
+def block_kriging_rate(n_blocks: int, composites: int = 15_000) -> dict[str, float]:
+    from blockmodel.estimation.kriging import estimate
+
+    pts, vals, holes = synthetic_composites(composites)
+    targets = _targets(n_blocks, pts)
+    estimate(
+        pts, vals, targets[:2000], MODEL, SEARCH, block_size=BLOCK, discretisation=DISC
+    )  # compile
+    timings: dict[str, float] = {}
+    t = time.perf_counter()
+    out = estimate(
+        pts,
+        vals,
+        targets,
+        MODEL,
+        SEARCH,
+        block_size=BLOCK,
+        discretisation=DISC,
+        hole_ids=holes,
+        timings=timings,
+    )
+    seconds = time.perf_counter() - t
+    done = int((out["search_pass"] > 0).sum())
+    k = 24 + 1
+    d = DISC[0] * DISC[1] * DISC[2]
+    # useful work per block: right-hand side (k-1) x d covariances of 2 structures at about
+    # 25 flops each, one LU solve (2 k^2); the shared LU (2/3 k^3) counted in full
+    flops = done * ((k - 1) * d * 2 * 25 + 2 * k * k + 2 / 3 * k**3)
+    return {
+        "blocks": done,
+        "seconds": seconds,
+        "rate": done / seconds,
+        "gflops": flops / seconds / 1e9,
+        "search_s": timings.get("search", 0.0),
+        "kriging_s": timings.get("kriging", 0.0),
+    }
+
+
+def point_kriging_versus_pykrige(
+    n_samples: int = 500, n_targets: int = 400
+) -> dict[str, float] | None:
+    try:
+        from pykrige.ok3d import OrdinaryKriging3D
+    except ImportError:
+        return None
+    from blockmodel.estimation.kriging import estimate
+
+    rng = np.random.default_rng(3)
+    pts = rng.uniform(0, 300, size=(n_samples, 3))
+    vals = rng.lognormal(size=n_samples)
+    targets = rng.uniform(20, 280, size=(n_targets, 3))
+    model = VariogramModel(0.2, [Structure("spherical", 0.8, (120.0, 120.0, 120.0))])
+    search = SearchEllipsoid((1e6, 1e6, 1e6), min_samples=1, max_samples=24)
+    ok = OrdinaryKriging3D(
+        *pts.T,
+        vals,
+        variogram_model="spherical",
+        variogram_parameters={"sill": 1.0, "range": 120.0, "nugget": 0.2},
+    )
+    t = time.perf_counter()
+    ref, _ = ok.execute("points", *targets.T, backend="loop", n_closest_points=24)
+    t_ref = time.perf_counter() - t
+    estimate(pts, vals, targets[:10], model, search)
+    big = np.tile(targets, (50, 1))  # ours is fast: time more targets for a stable figure
+    t = time.perf_counter()
+    ours = estimate(pts, vals, big, model, search)
+    t_ours = time.perf_counter() - t
+    agree = float(
+        np.max(np.abs(ours["estimate"][:n_targets] - np.asarray(ref)) / np.abs(np.asarray(ref)))
+    )
+    return {
+        "pykrige_rate": n_targets / t_ref,
+        "ours_rate": len(big) / t_ours,
+        "ratio": (len(big) / t_ours) / (n_targets / t_ref),
+        "max_relative_difference": agree,
+    }
+
+
+def _child_peak(code: str) -> dict:
+    """Run code in a fresh interpreter; return its JSON line plus its peak resident memory."""
+    script = (
+        "import json, resource, sys\n"
+        + code
+        + "\nres['peak_mb'] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024\nprint(json.dumps(res))\n"
+    )
+    out = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, check=True)
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def memory_million_blocks(n_blocks: int) -> dict:
+    return _child_peak(
+        "import time\nfrom blockmodel.app.bench import MODEL, SEARCH, BLOCK, DISC, synthetic_composites, _targets\nfrom blockmodel.estimation.engine import EstimationJob, run_job\n"
+        "pts, vals, holes = synthetic_composites(15000)\n"
+        f"targets = _targets({n_blocks}, pts)\n"
+        "job = EstimationJob(pts, vals, holes, MODEL, (SEARCH,), block_size=BLOCK, discretisation=DISC)\n"
+        "t = time.perf_counter(); out = run_job(job, targets, chunk_size=50000, backend='serial')\n"
+        "res = {'blocks': len(targets), 'seconds': time.perf_counter() - t}\n"
+    )
+
+
+def variogram_memory(n: int) -> dict:
+    return _child_peak(
+        "import time\nfrom blockmodel.app.bench import synthetic_composites\n"
+        "from blockmodel.variography.experimental import experimental_variogram\n"
+        f"pts, vals, holes = synthetic_composites({n})\n"
+        "t = time.perf_counter()\n"
+        "ev = experimental_variogram(pts, vals, lag=10.0, n_lags=15, direction=(20.0, 0.0))\n"
+        "res = {'composites': len(pts), 'pairs': int(ev.pairs.sum()), 'seconds': time.perf_counter() - t}\n"
+    )
+
+
+def scale_model(n_blocks: int, folder: str) -> dict:
+    """Estimate an ``n_blocks`` model (400 x 250 columns) from 100,000 composites chunk by
+    chunk, streaming rows to Parquet; time split into search, kriging and writing."""
+    return _child_peak(
+        "import time, os\nimport numpy as np, pyarrow as pa, pyarrow.parquet as pq\n"
+        "from blockmodel.app.bench import MODEL, SEARCH, BLOCK, DISC, synthetic_composites\n"
+        "from blockmodel.estimation.engine import EstimationJob, _chunk\nfrom blockmodel.estimation.search import SearchEllipsoid\n"
+        "pts, vals, holes = synthetic_composites(100000, extent=(4000.0, 2500.0, 1000.0), per_hole=500)\n"
+        "wide = SearchEllipsoid((400.0, 300.0, 150.0), SEARCH.orientation, min_samples=4, max_samples=24)\n"
+        "job = EstimationJob(pts, vals, holes, MODEL, (wide,), block_size=BLOCK, discretisation=DISC)\n"
+        f"n = {n_blocks}; path = os.path.join({folder!r}, 'scale.parquet')\n"
+        "nx, ny = 400, 250\nlo = np.array([5e5, 7e6, 0.0])\n"
+        "tim = {}; io = 0.0; writer = None; done = 0; t0 = time.perf_counter()\n"
+        "for start in range(0, n, 100000):\n"
+        "    flat = np.arange(start, min(n, start + 100000))\n"
+        "    ijk = np.column_stack([flat % nx, (flat // nx) % ny, flat // (nx * ny)])\n"
+        "    out = _chunk(job, lo + (ijk + 0.5) * BLOCK, tim)\n"
+        "    done += int((out['search_pass'] > 0).sum())\n"
+        "    c = time.perf_counter()\n"
+        "    table = pa.table(out)\n"
+        "    writer = writer or pq.ParquetWriter(path, table.schema)\n"
+        "    writer.write_table(table); io += time.perf_counter() - c\n"
+        "writer.close()\n"
+        "res = {'blocks': n, 'estimated': done, 'seconds': time.perf_counter() - t0,\n"
+        "       'search_s': tim.get('search', 0), 'kriging_s': tim.get('kriging', 0), 'io_s': io,\n"
+        "       'file_mb': os.path.getsize(path) / 1e6}\n"
+    )
+
+
+def main(*, blocks: int = 200_000, quick: bool = False, scale: bool = False) -> None:
+    """Print the benchmark figures."""
+    import numba
+
+    print(
+        f"machine: {os.cpu_count()} cores, numba threads {numba.get_num_threads()}, numpy {np.__version__}"
+    )
+    peak = matmul_peak(1000 if quick else 2000)
+    print(f"float64 matrix-multiply peak (numpy @): {peak:.1f} GFLOP/s")
+    r = block_kriging_rate(20_000 if quick else blocks)
+    print(
+        f"block kriging, 10x10x5 m blocks, 4x4x2 points, 24 of 15,000 composites: {r['rate']:,.0f} blocks/s "
+        f"({r['blocks']:,} blocks in {r['seconds']:.2f} s; search {r['search_s']:.2f} s, kriging "
+        f"{r['kriging_s']:.2f} s); about {r['gflops']:.2f} GFLOP/s = {100 * r['gflops'] / peak:.1f} % of peak"
+    )
+    p = point_kriging_versus_pykrige()
+    if p is None:
+        print("point kriging against pykrige: pykrige not installed")
+    else:
+        print(
+            f"point kriging, 24 nearest of 500: ours {p['ours_rate']:,.0f} points/s, pykrige loop "
+            f"{p['pykrige_rate']:,.0f} points/s: {p['ratio']:.0f}x (estimates agree to "
+            f"{p['max_relative_difference']:.1e} relative)"
+        )
+    m = memory_million_blocks(100_000 if quick else 1_000_000)
+    print(
+        f"peak memory estimating {m['blocks']:,} blocks (chunks of 50,000, one process): {m['peak_mb']:,.0f} MB "
+        f"in {m['seconds']:.1f} s"
+    )
+    v = variogram_memory(10_000 if quick else 100_000)
+    print(
+        f"directional variogram of {v['composites']:,} composites ({v['pairs']:,} pairs): peak "
+        f"{v['peak_mb']:,.0f} MB in {v['seconds']:.1f} s"
+    )
+    if scale:
+        import tempfile
+
+        with tempfile.TemporaryDirectory() as folder:
+            s = scale_model(10_000_000, folder)
+        print(
+            f"scale: {s['blocks']:,} blocks ({s['estimated']:,} estimated from 100,000 composites) "
+            f"in {s['seconds']:.0f} s, peak {s['peak_mb']:,.0f} MB; search "
+            f"{s['search_s']:.0f} s, kriging {s['kriging_s']:.0f} s, Parquet writing {s['io_s']:.1f} s "
+            f"({s['file_mb']:.0f} MB)"
+        )

@@ -1,0 +1,328 @@
+"""What each command does: read the project, call the stages, render the results into a
+staged folder that replaces the old one only when complete (see
+:mod:`blockmodel.app.outputs`)."""
+
+from __future__ import annotations
+
+import importlib.metadata
+import os
+import platform
+import sys
+from pathlib import Path
+
+import pandas as pd
+
+from blockmodel.app.outputs import OutputFolder, atomic_path, file_hash, need_file
+from blockmodel.config.project import Project, resolved
+from blockmodel.errors import InputError, Problem
+from blockmodel.report.html import CAUTIONS, HtmlReport
+from blockmodel.stages.run import EngineOptions, Steps
+
+__all__ = [
+    "check",
+    "input_files",
+    "make_demo",
+    "report_again",
+    "run",
+    "run_variography",
+    "view",
+]
+
+
+def _say(message: str) -> None:
+    print(message, file=sys.stderr, flush=True)
+
+
+def _steps() -> Steps:
+    return Steps(_say, lambda message: _say(f"  warning: {message}"))
+
+
+def check(project: Project) -> str:
+    """Load and check the data; return a printable summary (raises InputError on problems)."""
+    from blockmodel.stages.composites import load_and_composite
+
+    comps = load_and_composite(project)
+    holes = comps.holes
+    iv = holes.intervals
+    sampled = (iv["to"] - iv["from"])[iv[project.grades].notna().any(axis=1)].sum()
+    lines = [
+        f"Project: {project.name}",
+        f"Holes: {len(holes.collars)}",
+        f"Metres drilled: {holes.collars['depth'].sum():,.1f}",
+        f"Metres sampled: {sampled:,.1f}",
+        f"Intervals: {len(iv)}; composites: {len(comps.table)} "
+        f"({comps.compositing.dropped_low_coverage} dropped for low coverage)",
+    ]
+    for g in project.grades:
+        lines.append(
+            f"Below-detection values of {g} replaced: {holes.below_detection[g]}; "
+            f"missing: {holes.missing[g]}"
+        )
+    stats = comps.table.groupby("domain")[project.grades].describe(percentiles=[0.5]).round(3)
+    lines += ["", "Composite grades per domain:", stats.to_string()]
+    if holes.warnings:
+        lines += ["", f"{len(holes.warnings)} warning(s):"]
+        lines += ["  " + "  ".join(x for x in w.row() if x) for w in holes.warnings[:100]]
+    return "\n".join(lines)
+
+
+def _versions() -> dict[str, str]:
+    out = {"python": platform.python_version()}
+    for name in (
+        "blockmodel",
+        "numpy",
+        "scipy",
+        "pandas",
+        "numba",
+        "pyarrow",
+        "matplotlib",
+        "pyvista",
+    ):
+        try:
+            out[name] = importlib.metadata.version(name)
+        except importlib.metadata.PackageNotFoundError:
+            out[name] = "not installed"
+    return out
+
+
+def input_files(project: Project) -> list[Path]:
+    """Every file a project reads: the project file, data tables, solids, topography, truth."""
+    files = [project.source, project.data.collars, project.data.surveys, project.data.intervals]
+    files += [d.solid for d in project.domains if d.solid is not None]
+    files += [p for p in (project.grid.topography, project.truth) if p is not None]
+    return files
+
+
+def _manifest(command: str, project: Project, **extra) -> dict:
+    """What a report folder's ``manifest.json`` records of the command that wrote it."""
+    return {
+        "command": command,
+        "project": str(project.source),
+        "inputs_sha256": {str(p): file_hash(p) for p in input_files(project)},
+        "configuration": resolved(project),
+        "versions": _versions(),
+        "cautions": CAUTIONS,
+        **extra,
+    }
+
+
+def run_variography(project: Project, out: Path | None = None, *, replace: bool = False) -> Path:
+    """Declustering and variography alone: plots, declustering table, fitted models."""
+    from blockmodel.report.variography_section import render_variography
+    from blockmodel.stages.composites import load_and_composite
+    from blockmodel.stages.declustering import decluster
+    from blockmodel.stages.domain_model import build_domain_model
+    from blockmodel.stages.variography import variography
+
+    folder = project.report.folder
+    out = Path(out) if out is not None else folder.with_name(f"{folder.name}_variography")
+    steps = _steps()
+    with OutputFolder(out, input_files(project), replace=replace) as staged:
+        comps = load_and_composite(project)
+        domains = None
+        if project.declustering.method == "nearest":  # weights come from the blocks
+            domains = build_domain_model(project, comps.table)
+        decl = decluster(project, comps.table, domains)
+        vario = variography(project, comps.table, decl.weights)
+        report = HtmlReport(f"{project.name}: declustering and variography")
+        for res in vario.values():
+            for message in res.warnings():
+                steps.warn(message)
+                report.warn(message)
+        render_variography(project, decl, vario, staged.path, report)
+        report.write(staged.path / "variography.html")
+        staged.commit(_manifest("variography", project))
+    return staged.target
+
+
+def run(
+    project: Project,
+    out: Path | None = None,
+    *,
+    engine: EngineOptions | None = None,
+    write_csv: bool | None = None,
+    replace: bool = False,
+) -> Path:
+    """The whole chain: the stages, then the report rendered from their results; returns
+    the report folder."""
+    from blockmodel.report.run_report import render_run
+    from blockmodel.stages.run import run_stages
+
+    engine = engine or EngineOptions()
+    steps = _steps()
+    staged = OutputFolder(out or project.report.folder, input_files(project), replace=replace)
+    with staged:
+        results = run_stages(project, steps, engine)
+        csv = write_csv if write_csv is not None else project.report.write_csv
+        report = render_run(results, staged.path, steps, write_csv=csv)
+        report.paragraph(f"Timings (s): {steps.timings}")
+        report.write(staged.path / "report.html")
+        staged.commit(
+            _manifest(
+                "run",
+                project,
+                timings_s=steps.timings,
+                blocks=len(results.blocks),
+                options={
+                    "backend": engine.backend,
+                    "workers": engine.workers,
+                    "chunk_size": engine.chunk_size,
+                },
+            )
+        )
+    return staged.target
+
+
+def report_again(
+    project: Project,
+    block_model: Path,
+    out: Path,
+    *,
+    cutoffs=None,
+    reclassify: bool = False,
+    replace: bool = False,
+) -> Path:
+    """Re-report an existing block model at new cut-offs or classification rules."""
+    from blockmodel.report.run_report import render_grade_tonnage
+    from blockmodel.stages.estimate import classify
+    from blockmodel.stages.tables import grade_tonnage_tables
+
+    staged = OutputFolder(out, [*input_files(project), block_model], replace=replace)
+    with staged:
+        need_file(block_model)
+        blocks = pd.read_parquet(block_model)
+        if reclassify or "class" not in blocks:
+            blocks = classify(project, blocks)
+        cutoffs = cutoffs or project.report.cutoffs
+        report = HtmlReport(f"{project.name}: grade–tonnage re-report of {Path(block_model).name}")
+        tables = grade_tonnage_tables(project, blocks, cutoffs)
+        render_grade_tonnage(project, tables, staged.path, report)
+        report.write(staged.path / "report.html")
+        staged.commit(
+            _manifest(
+                "report",
+                project,
+                block_model=str(block_model),
+                block_model_sha256=file_hash(block_model),
+                cutoffs=list(cutoffs),
+            )
+        )
+    return staged.target
+
+
+def view(
+    project: Project,
+    block_model: Path,
+    *,
+    kind: str = "slices",
+    field: str | None = None,
+    point: tuple[float | None, float | None, float | None] = (None, None, None),
+    azimuth: float = 90.0,
+    width: float = 20.0,
+    cutoff: float | None = None,
+    png: Path | None = None,
+) -> None:
+    """Render one view of a block model: 3D slices, blocks above a cut-off, a plan or a
+    section, to ``png`` (a PNG the tool wrote may be replaced, nothing else) or to a
+    window.
+
+    Parameters
+    ----------
+    kind : {"slices", "cutoff", "plan", "section"}
+    field : str, optional
+        Column to colour by (default: the first grade).
+    point : three floats or None, metres
+        Slice or section point (x, y, z); None takes the blocks' mean.
+    azimuth, width : float
+        Section azimuth (degrees) and width (metres).
+    cutoff : float, optional
+        With ``kind="cutoff"``: show blocks at or above it.
+    """
+    from blockmodel.report.plots import column_unit
+    from blockmodel.stages.domain_model import block_model_grid
+
+    need_file(block_model)
+    if png is not None:
+        _check_png_target(png, [*input_files(project), block_model])
+    if kind in ("plan", "section") and png is None:
+        raise InputError("plans and sections are written to PNG: give --png")
+    if kind == "cutoff" and cutoff is None:
+        raise InputError("--kind cutoff needs --cutoff")
+    grid = block_model_grid(project)
+    blocks = pd.read_parquet(block_model)
+    field = field or project.grades[0]
+    if field not in blocks:
+        raise InputError(
+            f"{block_model}: no column '{field}'; columns: {', '.join(blocks.columns)}"
+        )
+    unit = column_unit(field, project.data.grades)
+    centre = blocks[["x", "y", "z"]].mean().to_numpy()
+    at = [c if v is None else v for v, c in zip(point, centre, strict=True)]
+    tmp = None
+    if png is not None:
+        Path(png).parent.mkdir(parents=True, exist_ok=True)
+        tmp = atomic_path(png)
+    try:
+        if kind in ("plan", "section"):
+            from blockmodel.report import plots
+
+            if kind == "plan":
+                plots.plan_figure(blocks, grid, field, at[2], tmp, unit)
+            else:
+                plots.section_figure(blocks, grid, field, at, azimuth, width, tmp, unit)
+        else:
+            from blockmodel.report.views import render_view
+
+            render_view(
+                grid,
+                blocks,
+                field,
+                tmp,
+                unit=unit,
+                slices=tuple(at),
+                cutoff=cutoff if kind == "cutoff" else None,
+            )
+        if tmp is not None:
+            os.replace(tmp, png)
+    finally:
+        if tmp is not None:
+            tmp.unlink(missing_ok=True)
+
+
+def _check_png_target(png: Path, inputs: list[Path]) -> None:
+    """A view may replace a PNG the tool wrote, never an input or any other file."""
+    from blockmodel.report.plots import PNG_SOFTWARE
+
+    png = Path(png)
+    if any(png.resolve() == Path(p).resolve() for p in inputs):
+        raise InputError([Problem(str(png), None, None, None, "is an input file; not overwritten")])
+    if png.is_dir():
+        raise InputError([Problem(str(png), None, None, None, "is a folder; give a PNG file name")])
+    if png.exists():
+        try:
+            from PIL import Image
+
+            with Image.open(png) as im:
+                ours = getattr(im, "text", {}).get("Software") == PNG_SOFTWARE
+        except Exception:
+            ours = False
+        if not ours:
+            raise InputError(
+                [
+                    Problem(
+                        str(png),
+                        None,
+                        None,
+                        None,
+                        "exists and was not written by blockmodel; not overwritten (choose "
+                        "another file name)",
+                    )
+                ]
+            )
+
+
+def make_demo(folder: Path) -> None:
+    """Write the invented demo deposit's data files into ``folder`` (never overwriting)."""
+    from blockmodel.demo.deposit import write_demo
+
+    write_demo(folder)

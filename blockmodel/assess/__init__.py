@@ -1,0 +1,1 @@
+"""Judging the estimate: declustering, cross-validation, change of support, classification and checks against a known truth."""

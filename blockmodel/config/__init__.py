@@ -1,0 +1,1 @@
+"""The project file: its settings, defaults and checks."""

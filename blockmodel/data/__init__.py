@@ -1,0 +1,1 @@
+"""Drillhole data: reading and checking the tables, desurveying, compositing and capping."""

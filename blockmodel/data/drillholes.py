@@ -1,0 +1,458 @@
+"""Loading and checking drillhole tables: collars, surveys and sample intervals.
+
+Every problem is collected first, then reported once as a table naming file, line, hole
+and field.  Line numbers count the header as line 1.  Dip is negative downward, as drill
+logs record it (-90 is straight down).
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from blockmodel.config.project import DataFiles
+from blockmodel.errors import InputError, Problem
+
+__all__ = ["DrillholeSet", "load_drillholes", "read_table"]
+
+
+@dataclass
+class DrillholeSet:
+    """Checked drillhole tables with standard column names.
+
+    Attributes
+    ----------
+    collars : DataFrame, columns hole, x, y, z, depth (metres)
+    surveys : DataFrame, columns hole, depth, azimuth, dip (degrees; dip negative down)
+    intervals : DataFrame, columns hole, from, to, domain, one column per grade
+    grades : list of str
+    warnings : list of Problem
+    below_detection : dict grade -> count of below-detection strings replaced
+    missing : dict grade -> count of blank or sentinel values
+    """
+
+    collars: pd.DataFrame
+    surveys: pd.DataFrame
+    intervals: pd.DataFrame
+    grades: list[str]
+    warnings: list[Problem] = field(default_factory=list)
+    below_detection: dict[str, int] = field(default_factory=dict)
+    missing: dict[str, int] = field(default_factory=dict)
+
+
+def read_table(path: Path, required: dict[str, str]) -> pd.DataFrame:
+    """Read a CSV as text, checking encoding, delimiter and header.
+
+    Parameters
+    ----------
+    path : Path
+    required : dict
+        Meaning -> column name expected in the header.
+
+    Returns
+    -------
+    DataFrame of str (blank cells are ""), with a ``_line`` column (file line number).
+    """
+    name = str(path)
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise InputError(
+            [Problem(name, None, None, None, f"cannot read file: {exc.strerror}")]
+        ) from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        raise InputError(
+            [Problem(name, line, None, None, "not UTF-8 text (save the file as UTF-8 CSV)")]
+        ) from None
+    if not text.strip():
+        raise InputError([Problem(name, None, None, None, "file is empty")])
+    # line endings of any system: CRLF, LF, or a bare CR
+    rows = list(csv.reader(io.StringIO(text.replace("\r\n", "\n").replace("\r", "\n"))))
+    header = [h.strip() for h in rows[0]]
+    if len(header) == 1 and any(sep in header[0] for sep in ";\t|"):
+        raise InputError(
+            [
+                Problem(
+                    name,
+                    1,
+                    None,
+                    None,
+                    "columns are not separated by commas (found ';', tab or '|'); save as comma-separated CSV",
+                )
+            ]
+        )
+    dupes = sorted({h for h in header if header.count(h) > 1})
+    if dupes:
+        raise InputError(
+            [
+                Problem(name, 1, None, h, f"column '{h}' appears more than once in the header")
+                for h in dupes
+            ]
+        )
+    absent = [(meaning, col) for meaning, col in required.items() if col not in header]
+    if absent:
+        raise InputError(
+            [
+                Problem(
+                    name,
+                    1,
+                    None,
+                    col,
+                    f"missing column '{col}' ({meaning}); header has: {', '.join(header)}",
+                )
+                for meaning, col in absent
+            ]
+        )
+    body = rows[1:]
+    hole_at = header.index(required["hole id"]) if "hole id" in required else None
+    lines = []
+    records = []
+    for i, r in enumerate(body, start=2):
+        if not any(c.strip() for c in r):
+            continue
+        if len(r) != len(header):
+            hole = r[hole_at].strip() if hole_at is not None and hole_at < len(r) else None
+            message = f"row has {len(r)} fields, header has {len(header)}"
+            raise InputError([Problem(name, i, hole, None, message)])
+        records.append([c.strip() for c in r])
+        lines.append(i)
+    if not records:
+        raise InputError([Problem(name, None, None, None, "file has a header but no rows")])
+    table = pd.DataFrame(records, columns=header, dtype=object)
+    table["_line"] = lines
+    return table
+
+
+# A plain decimal number as drill logs write it: no thousands separators or underscores
+# (Python would read "1_000" as 1000), no "inf" or "nan".
+_NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
+
+# Largest magnitudes that can be real (metres): projected northings reach 1e7; the deepest
+# drillholes are about 12 km.
+COORDINATE_LIMIT = 1e8
+DEPTH_LIMIT = 20_000.0
+
+
+def parse_number(text: str) -> float | None:
+    """The value of a plain decimal number, or None when the text is not one."""
+    if not _NUMBER.fullmatch(text):
+        return None
+    value = float(text)
+    return value if np.isfinite(value) else None
+
+
+def _numbers(
+    table, col, file, problems, hole_col, *, allow_blank=False, low=-np.inf, high=np.inf
+) -> np.ndarray:
+    """Column ``col`` as float64; problems for blanks, non-numbers and values outside
+    [low, high] (NaN in the result where a problem was found)."""
+    out = np.full(len(table), np.nan)
+    for n, (v, line, hole) in enumerate(
+        zip(table[col].astype(str), table["_line"], table[hole_col], strict=True)
+    ):
+        if v == "":
+            if not allow_blank:
+                problems.append(Problem(file, int(line), hole, col, "missing value"))
+            continue
+        value = parse_number(v)
+        if value is None:
+            hint = " (write numbers without separators)" if "_" in v or "," in v else ""
+            problems.append(Problem(file, int(line), hole, col, f"not a number: {v!r}{hint}"))
+        elif not low <= value <= high:
+            problems.append(
+                Problem(
+                    file,
+                    int(line),
+                    hole,
+                    col,
+                    f"{v} is outside the possible range [{low:g}, {high:g}]",
+                )
+            )
+        else:
+            out[n] = value
+    return out
+
+
+# Grades above these are more metal than rock: 100 % in each unit.
+GRADE_LIMITS = {"%": 100.0, "g/t": 1e6, "ppm": 1e6, "ppb": 1e9}
+
+
+def _grades(table, col, file, data: DataFiles, problems, hole_col):
+    unit = data.grades[col]
+    grade_limit = GRADE_LIMITS[unit]
+    text = table[col].astype(str)
+    out = np.full(len(text), np.nan)
+    below = 0
+    missing = 0
+    sentinels = set(data.missing_values)
+    for n, (t, line, hole) in enumerate(zip(text, table["_line"], table[hole_col], strict=True)):
+        if t == "":
+            missing += 1
+            continue
+        if t.startswith("<"):
+            limit = parse_number(t[1:].strip())
+            if limit is None or not 0 <= limit <= grade_limit:
+                problems.append(
+                    Problem(file, int(line), hole, col, f"not a detection limit: {t!r}")
+                )
+                continue
+            out[n] = limit * data.below_detection_factor
+            below += 1
+            continue
+        v = parse_number(t)
+        if v is None:
+            hint = (
+                "; leave the cell blank for a missing value"
+                if t.lower() in ("nan", "na", "n/a", "null", "none", "-")
+                else ""
+            )
+            problems.append(Problem(file, int(line), hole, col, f"not a number: {t!r}{hint}"))
+        elif v in sentinels:
+            missing += 1
+        elif v < 0:
+            problems.append(
+                Problem(
+                    file,
+                    int(line),
+                    hole,
+                    col,
+                    f"negative grade {t} (if it marks a missing value, add {v:g} to "
+                    "data.missing_values)",
+                )
+            )
+        elif v > grade_limit:
+            problems.append(
+                Problem(
+                    file,
+                    int(line),
+                    hole,
+                    col,
+                    f"grade {t} is more than the whole rock ({grade_limit:g} {unit})",
+                )
+            )
+        else:
+            out[n] = v
+    return out, below, missing
+
+
+def load_drillholes(data: DataFiles) -> DrillholeSet:
+    """Load, check and standardise the three drillhole tables.
+
+    Parameters
+    ----------
+    data : DataFiles
+        From the project file.
+
+    Returns
+    -------
+    DrillholeSet
+
+    Raises
+    ------
+    InputError
+        Listing every problem found (file, line, hole, field, problem).
+    """
+    c = data.columns
+    cf, sf, af = str(data.collars), str(data.surveys), str(data.intervals)
+    collars_raw = read_table(
+        data.collars, {"hole id": c.hole, "x": c.x, "y": c.y, "z": c.z, "depth": c.depth}
+    )
+    surveys_raw = read_table(
+        data.surveys,
+        {"hole id": c.hole, "depth": c.survey_depth, "azimuth": c.azimuth, "dip": c.dip},
+    )
+    required = {"hole id": c.hole, "from": c.depth_from, "to": c.depth_to}
+    required.update({f"grade {g}": g for g in data.grades})
+    if data.density:
+        required["density"] = data.density
+    intervals_raw = read_table(data.intervals, required)
+    problems: list[Problem] = []
+    warnings: list[Problem] = []
+
+    collars = pd.DataFrame({"hole": collars_raw[c.hole].astype(str), "_line": collars_raw["_line"]})
+    for key, col in (("x", c.x), ("y", c.y), ("z", c.z)):
+        collars[key] = _numbers(
+            collars_raw, col, cf, problems, c.hole, low=-COORDINATE_LIMIT, high=COORDINATE_LIMIT
+        )
+    collars["depth"] = _numbers(collars_raw, c.depth, cf, problems, c.hole, high=DEPTH_LIMIT)
+    for line, hole in zip(collars["_line"], collars["hole"], strict=True):
+        if hole == "":
+            problems.append(Problem(cf, int(line), None, c.hole, "missing hole id"))
+    dup = collars["hole"].duplicated(keep="first")
+    for line, hole in zip(collars["_line"][dup], collars["hole"][dup], strict=True):
+        problems.append(Problem(cf, int(line), hole, c.hole, "duplicate collar id"))
+    bad_depth = collars["depth"] <= 0
+    for line, hole in zip(collars["_line"][bad_depth], collars["hole"][bad_depth], strict=True):
+        problems.append(Problem(cf, int(line), hole, c.depth, "hole depth must be positive"))
+    known = set(collars["hole"])
+    total_depth = dict(zip(collars["hole"], collars["depth"], strict=True))
+
+    surveys = pd.DataFrame({"hole": surveys_raw[c.hole].astype(str), "_line": surveys_raw["_line"]})
+    surveys["depth"] = _numbers(
+        surveys_raw, c.survey_depth, sf, problems, c.hole, low=0.0, high=DEPTH_LIMIT
+    )
+    surveys["azimuth"] = _numbers(surveys_raw, c.azimuth, sf, problems, c.hole)
+    surveys["dip"] = _numbers(surveys_raw, c.dip, sf, problems, c.hole)
+    for row in surveys.itertuples():
+        if row.hole not in known:
+            problems.append(
+                Problem(sf, row._2, row.hole, c.hole, "survey for a hole with no collar")
+            )
+        if not (0 <= row.azimuth <= 360) and np.isfinite(row.azimuth):
+            problems.append(
+                Problem(sf, row._2, row.hole, c.azimuth, f"azimuth {row.azimuth} outside [0, 360]")
+            )
+        if not (-90 <= row.dip <= 90) and np.isfinite(row.dip):
+            problems.append(
+                Problem(
+                    sf,
+                    row._2,
+                    row.hole,
+                    c.dip,
+                    f"dip {row.dip} outside [-90, 90] (negative is downward)",
+                )
+            )
+    for hole, grp in surveys.groupby("hole", sort=False):
+        d = grp["depth"].to_numpy()
+        steps = np.diff(d)
+        for line, step in zip(grp["_line"].to_numpy()[1:], steps, strict=True):
+            if step == 0:
+                problems.append(
+                    Problem(sf, int(line), hole, c.survey_depth, "duplicated survey depth")
+                )
+            elif step < 0:
+                problems.append(
+                    Problem(
+                        sf, int(line), hole, c.survey_depth, "survey depths not in increasing order"
+                    )
+                )
+        if (grp["dip"] > 0).any():
+            k = int(np.argmax(grp["dip"].to_numpy() > 0))
+            warnings.append(
+                Problem(
+                    sf,
+                    int(grp["_line"].iloc[k]),
+                    hole,
+                    c.dip,
+                    f"dip {grp['dip'].iloc[k]:g} points upward: the trace rises above its "
+                    "collar (dip is negative downward; a hole drilled up from underground is "
+                    "the only reason for a positive dip)",
+                )
+            )
+        if len(grp) == 1:
+            warnings.append(
+                Problem(
+                    sf,
+                    int(grp["_line"].iloc[0]),
+                    hole,
+                    None,
+                    "single survey: hole taken as straight",
+                )
+            )
+        if hole in total_depth and d.max() > total_depth[hole] + 1e-6:
+            problems.append(
+                Problem(
+                    sf,
+                    int(grp["_line"].iloc[-1]),
+                    hole,
+                    c.survey_depth,
+                    f"survey depth {d.max()} beyond hole depth {total_depth[hole]}",
+                )
+            )
+    for hole in sorted(known - set(surveys["hole"])):
+        line = int(collars.loc[collars["hole"] == hole, "_line"].iloc[0])
+        problems.append(Problem(cf, line, hole, None, "hole has no survey"))
+
+    intervals = pd.DataFrame(
+        {"hole": intervals_raw[c.hole].astype(str), "_line": intervals_raw["_line"]}
+    )
+    intervals["from"] = _numbers(
+        intervals_raw, c.depth_from, af, problems, c.hole, low=0.0, high=DEPTH_LIMIT
+    )
+    intervals["to"] = _numbers(
+        intervals_raw, c.depth_to, af, problems, c.hole, low=0.0, high=DEPTH_LIMIT
+    )
+    intervals["domain"] = (
+        intervals_raw[c.domain].astype(str) if c.domain in intervals_raw.columns else ""
+    )
+    if data.density:
+        # t/m3: the densest ores (massive sulphides, native metals in rock) stay below 20
+        intervals["density"] = _numbers(
+            intervals_raw, data.density, af, problems, c.hole, allow_blank=True, high=25.0
+        )
+        bad = intervals["density"] <= 0
+        for line, hole in zip(intervals["_line"][bad], intervals["hole"][bad], strict=True):
+            problems.append(
+                Problem(af, int(line), hole, data.density, "density must be positive (t/m3)")
+            )
+    below, missing = {}, {}
+    for g in data.grades:
+        intervals[g], below[g], missing[g] = _grades(intervals_raw, g, af, data, problems, c.hole)
+    for row in intervals.itertuples():
+        if row.hole not in known:
+            problems.append(
+                Problem(af, row._2, row.hole, c.hole, "interval for a hole with no collar")
+            )
+        if row._3 >= row.to:
+            problems.append(
+                Problem(
+                    af, row._2, row.hole, c.depth_to, f"from {row._3} is not less than to {row.to}"
+                )
+            )
+        if row.hole in total_depth and row.to > total_depth[row.hole] + 1e-6:
+            problems.append(
+                Problem(
+                    af,
+                    row._2,
+                    row.hole,
+                    c.depth_to,
+                    f"interval ends at {row.to}, past the hole depth {total_depth[row.hole]}",
+                )
+            )
+    intervals = intervals.sort_values(["hole", "from"], kind="stable")
+    for hole, grp in intervals.groupby("hole", sort=False):
+        f, t, lines = grp["from"].to_numpy(), grp["to"].to_numpy(), grp["_line"].to_numpy()
+        for k in range(1, len(grp)):
+            if f[k] < t[k - 1] - 1e-9:
+                problems.append(
+                    Problem(
+                        af,
+                        int(lines[k]),
+                        hole,
+                        c.depth_from,
+                        f"interval {f[k]}-{t[k]} overlaps the previous one ending at {t[k - 1]}",
+                    )
+                )
+            elif f[k] > t[k - 1] + 1e-9:
+                warnings.append(
+                    Problem(
+                        af, int(lines[k]), hole, c.depth_from, f"gap in sampling {t[k - 1]}-{f[k]}"
+                    )
+                )
+        if np.all(np.isnan(grp[list(data.grades)].to_numpy(float))):
+            warnings.append(
+                Problem(af, int(lines[0]), hole, None, "every grade of this hole is missing")
+            )
+    if problems:
+        raise InputError(problems)
+    intervals = intervals.drop(columns="_line").reset_index(drop=True)
+    return DrillholeSet(
+        collars=collars.drop(columns="_line").reset_index(drop=True),
+        surveys=surveys.drop(columns="_line")
+        .sort_values(["hole", "depth"], kind="stable")
+        .reset_index(drop=True),
+        intervals=intervals,
+        grades=list(data.grades),
+        warnings=warnings,
+        below_detection=below,
+        missing=missing,
+    )

@@ -1,0 +1,1 @@
+"""The invented demonstration deposit and its truth."""

@@ -1,0 +1,206 @@
+"""Estimation over chunks of blocks, serially, on local processes or on a Dask cluster.
+
+Every backend calls the same chunk function on the same chunks, and each block's result
+depends only on its own neighbourhood, so results are bit-identical whatever the backend,
+worker count or chunk size.  Memory is bounded by the chunk size.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+import time
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from blockmodel.estimation.kriging import estimate
+from blockmodel.estimation.search import SearchEllipsoid
+from blockmodel.variography.models import VariogramModel
+
+__all__ = ["EstimationJob", "Progress", "run_job"]
+
+
+@dataclass(frozen=True)
+class EstimationJob:
+    """Everything a worker needs to estimate any chunk of targets (picklable)."""
+
+    samples: np.ndarray
+    values: np.ndarray
+    hole_ids: np.ndarray | None
+    model: VariogramModel | None
+    passes: tuple[SearchEllipsoid, ...]
+    method: str = "ordinary"
+    mean: float | None = None
+    block_size: tuple[float, float, float] | None = None
+    discretisation: tuple[int, int, int] = (4, 4, 2)
+    power: float = 2.0
+
+
+def _chunk(
+    job: EstimationJob, targets: np.ndarray, timings: dict | None = None
+) -> dict[str, np.ndarray]:
+    out = estimate(
+        job.samples,
+        job.values,
+        targets,
+        job.model,
+        job.passes,
+        method=job.method,
+        mean=job.mean,
+        block_size=job.block_size,
+        discretisation=job.discretisation,
+        hole_ids=job.hole_ids,
+        power=job.power,
+        chunk_size=max(len(targets), 1),
+        timings=timings,
+    )
+    out.pop("merged_duplicates")
+    return out
+
+
+def _init_worker() -> None:
+    # One numba thread per process: the pool supplies the parallelism.
+    import numba
+
+    numba.set_num_threads(1)
+
+
+_JOB: EstimationJob | None = None
+
+
+def _init_process(job: EstimationJob) -> None:
+    global _JOB
+    _init_worker()
+    _JOB = job
+
+
+def _process_chunk(targets: np.ndarray) -> dict[str, np.ndarray]:
+    assert _JOB is not None
+    return _chunk(_JOB, targets)
+
+
+class Progress:
+    """Blocks done and blocks per second on a terminal; silent when output is not one."""
+
+    def __init__(self, total: int, label: str, stream=None):
+        self.total = total
+        self.label = label
+        self.stream = stream or sys.stderr
+        self.enabled = hasattr(self.stream, "isatty") and self.stream.isatty()
+        self.done = 0
+        self.start = time.perf_counter()
+
+    def advance(self, n: int) -> None:
+        self.done += n
+        if self.enabled:
+            rate = self.done / max(time.perf_counter() - self.start, 1e-9)
+            width = 30
+            filled = int(width * self.done / max(self.total, 1))
+            self.stream.write(
+                f"\r{self.label} [{'#' * filled}{'.' * (width - filled)}] "
+                f"{self.done:,}/{self.total:,} blocks, {rate:,.0f}/s"
+            )
+            self.stream.flush()
+
+    def close(self) -> None:
+        if self.enabled:
+            self.stream.write("\n")
+            self.stream.flush()
+
+
+def run_job(
+    job: EstimationJob,
+    targets: np.ndarray,
+    *,
+    chunk_size: int = 20_000,
+    backend: str = "serial",
+    workers: int = 0,
+    cluster: str = "",
+    label: str = "estimating",
+) -> dict[str, np.ndarray]:
+    """Estimate all targets in chunks on the chosen backend.
+
+    Parameters
+    ----------
+    job : EstimationJob
+    targets : (m, 3) float64, metres
+    chunk_size : int
+        Targets per chunk.
+    backend : {"serial", "processes", "dask"}
+    workers : int
+        Processes for the local pool; 0 = all cores.
+    cluster : str
+        Address of a running ``dask.distributed`` scheduler (backend "dask").
+    label : str
+        Progress bar label.
+
+    Returns
+    -------
+    dict of str to (m,) arrays, the columns of :func:`blockmodel.estimation.kriging.estimate`.
+    """
+    targets = np.asarray(targets, dtype=np.float64)
+    bounds = [(s, min(s + chunk_size, len(targets))) for s in range(0, len(targets), chunk_size)]
+    progress = Progress(len(targets), label)
+    parts: list[dict[str, np.ndarray]] = []
+    if backend == "serial" or len(bounds) <= 1:
+        for a, b in bounds:
+            parts.append(_chunk(job, targets[a:b]))
+            progress.advance(b - a)
+    elif backend == "processes":
+        import multiprocessing as mp
+        from concurrent.futures import ProcessPoolExecutor
+
+        n = workers or os.cpu_count() or 1
+        ctx = mp.get_context("spawn")
+        with ProcessPoolExecutor(
+            max_workers=n, mp_context=ctx, initializer=_init_process, initargs=(job,)
+        ) as pool:
+            for (a, b), part in zip(
+                bounds, pool.map(_process_chunk, [targets[a:b] for a, b in bounds]), strict=True
+            ):
+                parts.append(part)
+                progress.advance(b - a)
+    elif backend == "dask":
+        try:
+            from distributed import Client
+        except ImportError:  # pragma: no cover - depends on the optional extra
+            raise RuntimeError(
+                "the dask backend needs the 'cluster' extra: pip install 'blockmodel[cluster]'"
+            ) from None
+        with Client(cluster) as client:
+            job_future = client.scatter(job, broadcast=True)
+            futures = [
+                client.submit(_chunk, job_future, targets[a:b], pure=False) for a, b in bounds
+            ]
+            for (a, b), fut in zip(bounds, futures, strict=True):
+                parts.append(fut.result())
+                progress.advance(b - a)
+    else:
+        raise ValueError(f"backend must be serial, processes or dask; got {backend!r}")
+    progress.close()
+    if not parts:
+        return _chunk(job, targets)
+    return {key: np.concatenate([p[key] for p in parts]) for key in parts[0]}
+
+
+def passes_from(specs: Sequence, default_orientation) -> tuple[SearchEllipsoid, ...]:
+    """Search passes from project specs; a pass without orientation takes the model's."""
+    from blockmodel.estimation.orientation import Orientation
+
+    out = []
+    for s in specs:
+        o = Orientation(*s.orientation) if s.orientation is not None else default_orientation
+        out.append(
+            SearchEllipsoid(
+                s.ranges,
+                o,
+                min_samples=s.min_samples,
+                max_samples=s.max_samples,
+                max_per_hole=s.max_per_hole,
+                max_per_octant=s.max_per_octant,
+                min_octants=s.min_octants,
+            )
+        )
+    return tuple(out)

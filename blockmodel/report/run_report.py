@@ -1,0 +1,221 @@
+"""The report of a run, rendered from its results: the HTML sections, plots and files.
+Nothing here computes an estimate; every figure comes from :class:`RunResults`."""
+
+from __future__ import annotations
+
+import dataclasses
+from pathlib import Path
+
+import pandas as pd
+
+from blockmodel.config.project import Project
+from blockmodel.report.files import safe_stem, write_block_model, write_table
+from blockmodel.report.html import HtmlReport
+from blockmodel.report.variography_section import render_variography
+from blockmodel.report.views_section import render_views
+from blockmodel.stages.run import RunResults
+
+__all__ = ["render_grade_tonnage", "render_run"]
+
+
+def render_run(results: RunResults, folder: Path, steps, *, write_csv: bool) -> HtmlReport:
+    """Write every file of a run's report folder except the HTML and the manifest, and
+    return the report, ready to be written."""
+    project, comps = results.project, results.composites
+    report = HtmlReport(f"{project.name}: block model estimate")
+    for message in results.warnings:
+        report.warn(message)
+    write_table(comps.table.sort_values(["hole", "from"], kind="stable"), folder / "composites.csv")
+    _data_sections(project, comps, report)
+    with steps("declustering and variogram plots"):
+        render_variography(project, results.declustering, results.variography, folder, report)
+    _estimation_section(results, report)
+    with steps("validation plots"):
+        _validation_section(results, folder, report)
+        _support_section(results, folder, report)
+    report.heading("Classification (proposals)")
+    report.paragraph(
+        "Labels come from numeric rules on search pass, holes, samples, distance and slope of "
+        "regression; they are proposals for a Competent or Qualified Person to review."
+    )
+    rules = [dataclasses.asdict(r) for r in project.classification.rules]
+    report.table(pd.DataFrame(rules).astype(str))
+    render_grade_tonnage(project, results.tables, folder, report)
+    with steps("views"):
+        render_views(
+            project,
+            results.domains.grid,
+            results.blocks,
+            comps.table,
+            results.models,
+            folder,
+            report,
+        )
+    if results.truth is not None:
+        _truth_section(results, report)
+    with steps("block model files"):
+        write_block_model(results.blocks, results.domains.grid, folder, csv=write_csv)
+    report.heading("Run")
+    return report
+
+
+def _data_sections(project: Project, comps, report: HtmlReport) -> None:
+    holes = comps.holes
+    report.heading("Data")
+    report.paragraph(
+        f"{len(holes.collars)} holes, {holes.collars['depth'].sum():,.0f} m drilled, "
+        f"{len(holes.intervals)} sample intervals; {len(holes.warnings)} warning(s) listed below."
+    )
+    for g in project.grades:
+        report.paragraph(
+            f"{g}: {holes.below_detection[g]} below-detection values set to "
+            f"{project.data.below_detection_factor} x the limit; {holes.missing[g]} missing."
+        )
+    if holes.warnings:
+        report.table(
+            pd.DataFrame(
+                [w.row() for w in holes.warnings],
+                columns=["file", "line", "hole", "field", "warning"],
+            )
+        )
+    report.heading("Compositing and capping")
+    c = comps.compositing
+    report.paragraph(
+        f"{project.compositing.length} m composites within domains; {c.composites} kept, "
+        f"{c.dropped_low_coverage} dropped below {project.compositing.min_coverage:.0%} coverage, "
+        f"{c.residuals_merged} short residuals merged, {c.residuals_dropped} dropped."
+    )
+    if comps.capping:
+        report.table(pd.DataFrame([dataclasses.asdict(s) for s in comps.capping]))
+    stats = comps.table.groupby("domain")[project.grades].describe().reset_index()
+    stats.columns = [" ".join(x).strip() if isinstance(x, tuple) else x for x in stats.columns]
+    for g in project.grades:  # counts are whole numbers
+        stats[f"{g} count"] = stats[f"{g} count"].astype(int)
+    report.table(stats)
+
+
+def _estimation_section(results: RunResults, report: HtmlReport) -> None:
+    project, grid, blocks = results.project, results.domains.grid, results.blocks
+    primary = project.grades[0]
+    report.heading("Search and estimation")
+    report.paragraph(
+        f"Method: {project.estimation.method} kriging, {project.estimation.boundaries} boundaries, "
+        f"block {grid.block_size} m, discretisation {project.estimation.discretisation}; "
+        f"grid origin {grid.origin}, shape {grid.shape}."
+    )
+    for d in project.domains:
+        if d.estimate:
+            passes = pd.DataFrame(
+                [
+                    {
+                        k: ("model's" if k == "orientation" else "none") if v is None else v
+                        for k, v in dataclasses.asdict(s).items()
+                    }
+                    for s in project.passes_for(d.name)
+                ]
+            )
+            passes.insert(0, "domain", d.name)
+            passes.insert(1, "pass", range(1, len(passes) + 1))
+            report.table(passes.astype(str))
+    report.table(blocks.groupby(["domain", f"{primary}_pass"]).size().reset_index(name="blocks"))
+    ill = int(blocks.filter(like="_ill_conditioned").to_numpy().sum())
+    report.paragraph(f"{ill} block estimate(s) flagged as ill-conditioned systems.")
+
+
+def _validation_section(results: RunResults, folder: Path, report: HtmlReport) -> None:
+    from blockmodel.report import plots
+
+    v, project = results.validation, results.project
+    unit = project.data.grades[v.grade]
+    report.heading("Validation")
+    for name, dv in v.by_domain.items():
+        p = folder / f"cross_validation_{safe_stem(name)}.png"
+        title = f"Cross-validation (leave one {v.leave_out} out), {name}"
+        plots.cross_validation_figure(dv.cross_validation, p, v.grade, unit, title)
+        report.image(p, f"Cross-validation, {name}")
+        p = folder / f"swath_{safe_stem(name)}.png"
+        plots.swath_figure(dv.swaths, p, v.grade, unit, f"Swaths, {name}")
+        report.image(p, f"Swath plots, {name}")
+    report.paragraph(f"Cross-validation, leave one {v.leave_out} out (error = estimate − true):")
+    report.table(v.summary())
+    report.paragraph("Global bias, kriged against nearest-sample model (tonnage-weighted):")
+    report.table(v.global_bias)
+
+
+def _support_section(results: RunResults, folder: Path, report: HtmlReport) -> None:
+    from blockmodel.report import plots
+
+    s = results.support
+    report.heading("Change of support")
+    for name, ds in s.by_domain.items():
+        p = folder / f"change_of_support_{safe_stem(name)}.png"
+        plots.grade_tonnage_figure(
+            {
+                "kriged": (s.cutoffs, ds.kriged_tonnes, ds.kriged_grade),
+                "discrete Gaussian": (s.cutoffs, ds.curve.tonnes, ds.curve.grade),
+            },
+            p,
+            s.unit,
+            f"Change of support, {name} (r = {ds.curve.support_coefficient:.3f})",
+        )
+        report.image(p, f"Kriged grade–tonnage curve against the discrete Gaussian model, {name}")
+    if s.by_domain:
+        write_table(s.table(), folder / "change_of_support.csv")
+        report.paragraph(
+            "Tonnes, grade and metal expected at block support by the discrete Gaussian "
+            "model (declustered composites, block variance from the variogram model): "
+            "change_of_support.csv."
+        )
+
+
+def render_grade_tonnage(
+    project: Project, tables: dict[str, pd.DataFrame], folder: Path, report: HtmlReport
+) -> None:
+    """``grade_tonnage.csv`` (first grade; ``grade_tonnage_G.csv`` for the others), the
+    curves per domain and the report's tables, rounded for reading."""
+    from blockmodel.report import plots
+
+    for n, (g, gt) in enumerate(tables.items()):
+        unit = project.data.grades[g]
+        write_table(gt, folder / ("grade_tonnage.csv" if n == 0 else f"grade_tonnage_{g}.csv"))
+        first_unit = gt["metal_unit"].iloc[0]
+        main = gt[(gt["metal_unit"] == first_unit) & (gt["class"] == "all")]
+        curves = {
+            f"{dom}": (
+                part["cutoff"].to_numpy(),
+                part["tonnes"].to_numpy(),
+                part["grade"].to_numpy(),
+            )
+            for dom, part in main.groupby("domain", sort=False)
+        }
+        p = folder / f"grade_tonnage_{safe_stem(g)}.png"
+        plots.grade_tonnage_figure(curves, p, unit, f"Grade–tonnage, {g} (kriged blocks)")
+        report.heading(f"Grade–tonnage: {g}")
+        report.paragraph(
+            "Tonnes and grade of estimated blocks at or above each cut-off, rounded for reading; "
+            f"the CSV keeps full precision. Metal in {', '.join(gt['metal_unit'].unique())}."
+        )
+        units = list(gt["metal_unit"].unique())
+        shown = gt[gt["metal_unit"] == units[0]].drop(columns=["metal_unit", "metal", "note"])
+        for u in units:  # one metal column per unit; rows come in the same order per unit
+            shown[u] = gt.loc[gt["metal_unit"] == u, "metal"].to_numpy()
+        shown["tonnes"] = shown["tonnes"].round(-3)
+        shown["grade"] = shown["grade"].round(2)
+        for u in units:
+            shown[u] = shown[u].round(-2)
+        report.table(shown, digits=2)
+        report.image(p, f"Grade–tonnage curves, {g}")
+
+
+def _truth_section(results: RunResults, report: HtmlReport) -> None:
+    report.raw('<div class="truth">')
+    report.heading("Check against the known truth (demo only)")
+    report.paragraph(
+        "The demo deposit is invented, so its true block grades are known. This section "
+        "compares them with the estimate; the estimator never used them."
+    )
+    if results.truth.figures is not None:
+        report.table(results.truth.figures)
+    else:
+        report.paragraph(results.truth.problem)
+    report.raw("</div>")

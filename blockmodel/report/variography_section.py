@@ -1,0 +1,106 @@
+"""The declustering and variography sections of a report, with their plots and files
+(``declustering.csv``, ``variogram_models.toml``, normal-score tables)."""
+
+from __future__ import annotations
+
+import dataclasses
+from pathlib import Path
+
+import pandas as pd
+
+from blockmodel.config.project import Project
+from blockmodel.report.files import safe_stem, write_models, write_table
+from blockmodel.report.html import HtmlReport
+from blockmodel.stages.declustering import Declustering
+
+__all__ = ["render_variography"]
+
+
+def render_declustering(
+    project: Project, declustering: Declustering, folder: Path, report: HtmlReport
+) -> None:
+    """``declustering.csv``, one plot per domain swept by cells, and the report section."""
+    from blockmodel.report import plots
+
+    primary = project.grades[0]
+    for name, d in declustering.by_domain.items():
+        if d.cell is not None:
+            plots.declustering_figure(
+                d.cell.sizes,
+                d.cell.means,
+                d.cell.chosen_size,
+                d.naive_mean[primary],
+                folder / f"declustering_{safe_stem(name)}.png",
+                f"{name} {primary}",
+                project.data.grades[primary],
+            )
+    table = declustering.table(project.grades)
+    write_table(table, folder / "declustering.csv")
+    s = project.declustering
+    report.heading("Declustering")
+    report.paragraph(
+        f"Method: {s.method}; cell sizes swept {s.cell_sizes}, anisotropy {s.anisotropy}, "
+        f"{s.origins} origins, choice: {s.choose}."
+    )
+    report.table(table)
+    for name, d in declustering.by_domain.items():
+        if d.cell is not None:
+            p = folder / f"declustering_{safe_stem(name)}.png"
+            report.image(p, f"Declustered mean against cell size, {name}")
+
+
+def render_variography(
+    project: Project,
+    declustering: Declustering,
+    variography: dict,
+    folder: Path,
+    report: HtmlReport,
+) -> None:
+    """Declustering, then per domain and grade the variogram plots, the model in words,
+    how the orientation was found and how well the model fits; ``variogram_models.toml``."""
+    from blockmodel.report import plots
+
+    render_declustering(project, declustering, folder, report)
+    units = project.data.grades
+    report.heading("Variograms and models")
+    for key, res in variography.items():
+        stem = safe_stem(key.replace(".", "_"))
+        p = folder / f"variogram_{stem}.png"
+        plots.variogram_figure(res, p, units[res.grade])
+        how = (
+            "fitted to the experimental variograms"
+            if res.source == "fitted"
+            else "given in the project file"
+        )
+        report.paragraph(
+            f"{key}: model {how}; nugget {res.model.nugget:.4g}; "
+            + "; ".join(
+                f"{s.kind} sill {s.sill:.4g} ranges {tuple(round(a, 1) for a in s.ranges)}"
+                for s in res.model.structures
+            )
+            + f"; orientation (azimuth, plunge, tilt) {dataclasses.astuple(res.orientation)}."
+        )
+        if res.orientation_fit is not None:
+            report.paragraph(
+                f"{key}: orientation found from the data: {res.orientation_fit.describe()}."
+            )
+        if res.fit is not None:
+            quality = ", ".join(f"{k} {v:.2f}" for k, v in res.fit.quality.items())
+            report.paragraph(
+                f"{key}: fit quality (weighted R² per direction): {quality}; "
+                f"{res.fit.lags_used} lags fitted, {res.fit.lags_dropped} left out for holding "
+                "fewer than 30 pairs."
+            )
+        report.image(p, f"Experimental variograms and model, {key}")
+        if res.scan is not None:
+            p = folder / f"direction_map_{stem}.png"
+            plots.direction_map_figure(res, p, units[res.grade])
+            report.image(p, f"Variogram by direction and lag, {key}")
+        if res.scores is not None:
+            table = pd.DataFrame({"value": res.scores.values, "normal_score": res.scores.scores})
+            write_table(table, folder / f"normal_scores_{stem}.csv")
+            report.paragraph(
+                f"{key}: variograms of normal scores; back-transform table in "
+                f"normal_scores_{stem}.csv."
+            )
+    write_models(variography, folder / "variogram_models.toml")

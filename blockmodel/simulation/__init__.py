@@ -1,0 +1,1 @@
+"""Gaussian random fields (spectral simulation)."""

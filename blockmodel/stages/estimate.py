@@ -1,0 +1,186 @@
+"""Stage 5: the block model: every domain and grade estimated by the project's method,
+then a proposed class for each block."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from blockmodel.assess.classification import classify_blocks
+from blockmodel.config.project import Project
+from blockmodel.errors import setting_error
+from blockmodel.estimation.engine import EstimationJob, passes_from, run_job
+from blockmodel.estimation.orientation import Orientation
+from blockmodel.model.grid import BlockGrid
+from blockmodel.variography.models import VariogramModel
+
+__all__ = ["classify", "estimate_block_model"]
+
+
+def _estimated_density(project, table, domain, centres, grid, e, orientation) -> np.ndarray:
+    """Inverse-distance estimate of measured density from the domain's composites, with the
+    domain's search passes oriented as its first grade's model (or as each pass says);
+    blocks the search cannot reach keep the domain's constant density."""
+    source = table[(table["domain"] == domain.name) & table["density"].notna()]
+    if len(source) == 0:
+        raise setting_error(
+            project.source,
+            f"domains.{domain.name}.density_from_composites",
+            f"domain '{domain.name}' has no composite with a measured density "
+            f"({project.data.density}); give a constant density instead",
+        )
+    passes = passes_from(project.passes_for(domain.name), orientation)
+    job = EstimationJob(
+        source[["x", "y", "z"]].to_numpy(float),
+        source["density"].to_numpy(float),
+        source["hole"].to_numpy(),
+        None,
+        passes,
+        "inverse_distance",
+        None,
+        grid.block_size,
+        e.discretisation,
+        e.idw_power,
+    )
+    res = run_job(
+        job, centres, chunk_size=e.chunk_size, backend="serial", label=f"{domain.name} density"
+    )
+    return np.where(np.isfinite(res["estimate"]), res["estimate"], domain.density)
+
+
+def estimate_block_model(
+    project: Project,
+    table: pd.DataFrame,
+    models: dict[str, VariogramModel],
+    grid: BlockGrid,
+    proportions: np.ndarray,
+    *,
+    backend: str | None = None,
+    workers: int | None = None,
+    chunk_size: int | None = None,
+    cluster: str | None = None,
+    declustered_means: dict[str, dict[str, float]] | None = None,
+) -> pd.DataFrame:
+    """Estimate every domain and grade; one row per block and domain with proportion > 0.
+
+    Returns
+    -------
+    DataFrame with columns ``x, y, z, i, j, k, domain, proportion, density, tonnes`` and,
+    per grade g, ``g, g_variance, g_slope, g_efficiency, g_samples, g_holes, g_distance,
+    g_pass, g_nn, g_idw``.
+    """
+    e = project.estimation
+    backend = backend or e.backend
+    workers = e.workers if workers is None else workers
+    chunk_size = chunk_size or e.chunk_size
+    cluster = cluster if cluster is not None else e.cluster
+    for d in project.domains:
+        if d.estimate and not project.passes_for(d.name):
+            raise setting_error(
+                project.source, "search", f"domain '{d.name}' has no search: add [[search]] passes"
+            )
+    frames = []
+    for d_index, d in enumerate(project.domains):
+        if not d.estimate:
+            continue
+        flat = np.flatnonzero(proportions[:, d_index] > 0)
+        if len(flat) == 0:
+            continue
+        ijk = grid.ijk(flat)
+        centres = grid.centres(flat)
+        prop = proportions[flat, d_index].astype(np.float64)
+        frame = pd.DataFrame(
+            {
+                "x": centres[:, 0],
+                "y": centres[:, 1],
+                "z": centres[:, 2],
+                "i": ijk[:, 0],
+                "j": ijk[:, 1],
+                "k": ijk[:, 2],
+                "domain": d.name,
+                "proportion": prop,
+                "density": d.density,
+                "tonnes": grid.block_volume * prop * d.density,
+            }
+        )
+        frame["_flat"] = flat
+        if d.density_from_composites:
+            model = models[f"{d.name}.{project.grades[0]}"]
+            orientation = model.structures[0].orientation if model.structures else Orientation()
+            frame["density"] = _estimated_density(project, table, d, centres, grid, e, orientation)
+            frame["tonnes"] = grid.block_volume * prop * frame["density"].to_numpy()
+        for g in project.grades:
+            key = f"{d.name}.{g}"
+            source = table if e.boundaries == "soft" else table[table["domain"] == d.name]
+            source = source[source[g].notna()]
+            model = models[key]
+            fewest = min(p.min_samples for p in project.passes_for(d.name))
+            if fewest > len(source):
+                raise setting_error(
+                    project.source,
+                    "search.min_samples",
+                    f"every search pass of domain '{d.name}' needs at least {fewest} samples, "
+                    f"but the domain has {len(source)} composites with {g}",
+                )
+            passes = passes_from(
+                project.passes_for(d.name),
+                model.structures[0].orientation if model.structures else Orientation(),
+            )
+            mean = None
+            if e.method == "simple":
+                mean = (declustered_means or {}).get(d.name, {}).get(g, float("nan"))
+                if not np.isfinite(mean):
+                    raise setting_error(
+                        project.source,
+                        "estimation.method",
+                        f"simple kriging needs the declustered mean of {g} in domain "
+                        f"'{d.name}', and it could not be computed (no composites with {g})",
+                    )
+            job = EstimationJob(
+                source[["x", "y", "z"]].to_numpy(float),
+                source[g].to_numpy(float),
+                source["hole"].to_numpy(),
+                model,
+                passes,
+                e.method,
+                mean,
+                grid.block_size,
+                e.discretisation,
+                e.idw_power,
+            )
+            res = run_job(
+                job,
+                centres,
+                chunk_size=chunk_size,
+                backend=backend,
+                workers=workers,
+                cluster=cluster,
+                label=f"{d.name} {g}",
+            )
+            frame[g] = res["estimate"]
+            frame[f"{g}_variance"] = res["variance"]
+            frame[f"{g}_slope"] = res["slope"]
+            frame[f"{g}_efficiency"] = res["efficiency"]
+            frame[f"{g}_samples"] = res["n_samples"]
+            frame[f"{g}_holes"] = res["n_holes"]
+            frame[f"{g}_distance"] = res["mean_distance"]
+            frame[f"{g}_pass"] = res["search_pass"]
+            frame[f"{g}_nn"] = res["nearest"]
+            frame[f"{g}_idw"] = res["inverse_distance"]
+            frame[f"{g}_ill_conditioned"] = res["ill_conditioned"]
+        frames.append(frame)
+    model_table = pd.concat(frames, ignore_index=True)
+    order = {d.name: n for n, d in enumerate(project.domains)}
+    model_table["_order"] = model_table["domain"].map(order)
+    model_table = model_table.sort_values(["_flat", "_order"], kind="stable").drop(
+        columns=["_flat", "_order"]
+    )
+    return model_table.reset_index(drop=True)
+
+
+def classify(project: Project, blocks: pd.DataFrame) -> pd.DataFrame:
+    """A copy of ``blocks`` with the proposed ``class`` of each row from the project's
+    classification rules on its first grade."""
+    c = project.classification
+    labels = classify_blocks(blocks, project.grades[0], c.rules, c.fallback, clean_up=c.clean_up)
+    return blocks.assign(**{"class": labels})

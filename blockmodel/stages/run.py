@@ -1,0 +1,145 @@
+"""The run: the stages called in order, their results collected for rendering."""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+
+import pandas as pd
+
+from blockmodel.config.project import Project
+from blockmodel.stages.checks import estimate_warnings
+from blockmodel.stages.composites import Composites, load_and_composite
+from blockmodel.stages.declustering import Declustering, decluster
+from blockmodel.stages.domain_model import DomainModel, build_domain_model
+from blockmodel.stages.estimate import classify, estimate_block_model
+from blockmodel.stages.support import Support, support_curves
+from blockmodel.stages.tables import TruthCheck, grade_tonnage_tables, truth_check
+from blockmodel.stages.validation import Validation, validate
+from blockmodel.stages.variography import Variography, variography
+
+__all__ = ["EngineOptions", "RunResults", "Steps", "run_stages"]
+
+
+@dataclass(frozen=True)
+class EngineOptions:
+    """Where the estimation runs; None keeps the project's ``[estimation]`` setting."""
+
+    backend: str | None = None
+    workers: int | None = None
+    chunk_size: int | None = None
+    cluster: str | None = None
+
+
+class Steps:
+    """Announces each step on ``say`` as it starts, keeps its duration in ``timings``
+    (seconds) and passes every warning to ``warn`` as it arises."""
+
+    def __init__(self, say: Callable[[str], None], warn: Callable[[str], None]):
+        self.say, self.warn = say, warn
+        self.timings: dict[str, float] = {}
+
+    def data_warnings(self, problems) -> None:
+        """The first 20 warnings about the data tables (all are in the report)."""
+        for w in problems[:20]:
+            self.say("  warning: " + "  ".join(x for x in w.row() if x))
+        if len(problems) > 20:
+            self.say(f"  ... {len(problems) - 20} more data warnings in the report")
+
+    @contextmanager
+    def __call__(self, name: str):
+        start = time.perf_counter()
+        self.say(f"- {name} ...")
+        try:
+            yield
+        finally:
+            self.timings[name] = round(time.perf_counter() - start, 3)
+
+
+@dataclass(frozen=True)
+class RunResults:
+    """Everything a run computed, for the report and the files to be rendered from."""
+
+    project: Project
+    composites: Composites
+    domains: DomainModel
+    declustering: Declustering
+    variography: dict[str, Variography]
+    blocks: pd.DataFrame  # estimated and classified
+    validation: Validation
+    support: Support
+    tables: dict[str, pd.DataFrame]
+    truth: TruthCheck | None
+    warnings: tuple[str, ...]
+    timings: dict[str, float] = field(default_factory=dict)
+
+    @property
+    def models(self) -> dict:
+        return {k: v.model for k, v in self.variography.items()}
+
+
+def run_stages(project: Project, steps: Steps, engine: EngineOptions | None = None) -> RunResults:
+    """Every stage of a run in order; warnings go to ``steps.warn`` as they arise and are
+    kept, in order, in the result."""
+    engine = engine or EngineOptions()
+    warnings: list[str] = []
+
+    def warn(message: str) -> None:
+        warnings.append(message)
+        steps.warn(message)
+
+    with steps("load, check and composite"):
+        composites = load_and_composite(project)
+    steps.data_warnings(composites.holes.warnings)
+    with steps("domain proportions"):
+        domains = build_domain_model(project, composites.table)
+    with steps("declustering"):
+        decl = decluster(project, composites.table, domains)
+    with steps("variography"):
+        vario = variography(project, composites.table, decl.weights)
+    for res in vario.values():
+        for message in res.warnings():
+            warn(message)
+    models = {k: v.model for k, v in vario.items()}
+    with steps("estimation"):
+        blocks = estimate_block_model(
+            project,
+            composites.table,
+            models,
+            domains.grid,
+            domains.proportions,
+            backend=engine.backend,
+            workers=engine.workers,
+            chunk_size=engine.chunk_size,
+            cluster=engine.cluster,
+            declustered_means={k: v.declustered_mean for k, v in decl.by_domain.items()},
+        )
+        blocks = classify(project, blocks)
+    for message in estimate_warnings(project, composites, domains, blocks):
+        warn(message)
+    with steps("validation"):
+        validation = validate(project, composites.table, models, decl, domains.grid, blocks)
+        support = support_curves(project, composites.table, decl, models, domains.grid, blocks)
+    for message in validation.warnings():
+        warn(message)
+    with steps("grade-tonnage"):
+        tables = grade_tonnage_tables(project, blocks, project.report.cutoffs)
+        truth = truth_check(project, domains.grid, blocks)
+    if truth is not None and truth.problem:
+        warn(truth.problem)
+    return RunResults(
+        project,
+        composites,
+        domains,
+        decl,
+        vario,
+        blocks,
+        validation,
+        support,
+        tables,
+        truth,
+        tuple(warnings),
+        dict(steps.timings),
+    )

@@ -1,0 +1,253 @@
+"""Stage 4: experimental variograms and the variogram model of each domain and grade
+(given in the project file, or fitted after finding the orientation of continuity)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from blockmodel.config.project import Project
+from blockmodel.errors import setting_error
+from blockmodel.estimation.orientation import Orientation
+from blockmodel.variography.directions import OrientationFit, find_orientation
+from blockmodel.variography.experimental import (
+    ExperimentalVariogram,
+    NormalScores,
+    experimental_variogram,
+    normal_scores,
+    scan_directions,
+)
+from blockmodel.variography.fitting import (
+    MIN_PAIRS,
+    FittedModel,
+    fit_variogram_checked,
+    principal_directions,
+)
+from blockmodel.variography.models import Structure, VariogramModel
+
+__all__ = ["Variography", "variography"]
+
+
+@dataclass(frozen=True)
+class Variography:
+    """One domain and grade: experimental variograms, the model and where it came from.
+
+    ``scale`` converts the experimental values to the model's units: 1 for the
+    semivariogram of grades; the (declustered) variance for a correlogram or normal-score
+    variogram; the squared mean for the pairwise relative variogram.
+    """
+
+    domain: str
+    grade: str
+    orientation: Orientation
+    directional: tuple[ExperimentalVariogram, ...]
+    downhole: ExperimentalVariogram
+    model: VariogramModel
+    source: str  # "fitted" or "project file"
+    scale: float = 1.0
+    scores: NormalScores | None = None
+    scan: dict | None = None
+    orientation_fit: OrientationFit | None = None  # when the orientation was found from data
+    fit: FittedModel | None = None  # when the model was fitted
+
+    def warnings(self) -> list[str]:
+        """What a reader must know about how far to trust this model."""
+        out = []
+        key = f"{self.domain}.{self.grade}"
+        if self.fit is not None:
+            for label, r2 in self.fit.poor().items():
+                out.append(
+                    f"{key}: the fitted model follows the {label} variogram poorly "
+                    f"(weighted R² {r2:.2f}); review it, or give the model in "
+                    f"[variogram.{key}]"
+                )
+            if self.fit.lags_dropped:
+                out.append(
+                    f"{key}: {self.fit.lags_dropped} lag(s) with fewer than {MIN_PAIRS} pairs "
+                    "were left out of the fit"
+                )
+        o = self.orientation_fit
+        if o is not None and o.loose_axes():
+            out.append(
+                f"{key}: the data do not place the {' and '.join(o.loose_axes())} axis "
+                f"({o.describe()}); give variography.orientation if the geology says more"
+            )
+        return out
+
+
+def _mean_hole_direction(composites: pd.DataFrame) -> np.ndarray | None:
+    """Mean unit direction (3,) of the holes, from successive composites of each hole
+    (sign-aligned, so up and down count alike); None when no hole has two composites."""
+    table = composites.sort_values(["hole", "from"], kind="stable")
+    xyz = table[["x", "y", "z"]].to_numpy(float)
+    same = table["hole"].to_numpy()[1:] == table["hole"].to_numpy()[:-1]
+    steps = (xyz[1:] - xyz[:-1])[same]
+    length = np.linalg.norm(steps, axis=1)
+    steps = steps[length > 0] / length[length > 0, None]
+    if len(steps) == 0:
+        return None
+    steps[steps[:, 2] > 0] *= -1.0
+    mean = steps.mean(axis=0)
+    return mean / np.linalg.norm(mean)
+
+
+def _model_from_spec(spec) -> VariogramModel:
+    return VariogramModel(
+        spec.nugget,
+        [Structure(s.kind, s.sill, s.ranges, Orientation(*s.orientation)) for s in spec.structures],
+    )
+
+
+def _scaled(model: VariogramModel, factor: float) -> VariogramModel:
+    return VariogramModel(
+        model.nugget * factor,
+        [Structure(s.kind, s.sill * factor, s.ranges, s.orientation) for s in model.structures],
+    )
+
+
+def variography(
+    project: Project, table: pd.DataFrame, weights: np.ndarray
+) -> dict[str, Variography]:
+    """Experimental variograms along the principal axes, downhole and over a fan of
+    directions, and the fitted (or given) model, per estimated domain and grade.
+
+    Parameters
+    ----------
+    project : Project
+    table : DataFrame
+        The composites (not changed).
+    weights : (n,) float64
+        Declustering weight of each composite, in the table's order.
+    """
+    v = project.variography
+    out = {}
+    for d in project.domains:
+        if not d.estimate:
+            continue
+        in_domain = (table["domain"] == d.name).to_numpy()
+        sub = table[in_domain]
+        sub_weights = weights[in_domain]
+        for g in project.grades:
+            key = f"{d.name}.{g}"
+            ok = sub[g].notna().to_numpy()
+            pts = sub.loc[ok, ["x", "y", "z"]].to_numpy(float)
+            grades = sub.loc[ok, g].to_numpy(float)
+            decl = sub_weights[ok]
+            given = key in project.variogram
+            if not given and (len(grades) < 2 or np.ptp(grades) == 0):
+                shown = f" ({grades[0]:g})" if len(grades) else ""
+                raise setting_error(
+                    project.data.intervals,
+                    g,
+                    f"{key}: {len(grades)} composite(s), all grades "
+                    f"equal{shown}: no variogram can be fitted; give a model in [variogram.{key}]",
+                )
+            mean = float(decl @ grades / decl.sum()) if len(grades) else 0.0
+            variance = float(decl @ (grades - mean) ** 2 / decl.sum()) if len(grades) else 0.0
+            values, scores, scale = grades, None, 1.0
+            if v.transform == "normal_scores":
+                values, scores = normal_scores(grades, decl)
+                scale = variance
+            elif v.estimator == "correlogram":
+                scale = variance
+            elif v.estimator == "pairwise_relative":
+                scale = mean * mean
+            if given:
+                model = _model_from_spec(project.variogram[key])
+                orient = model.structures[0].orientation if model.structures else Orientation()
+            elif v.orientation is not None:
+                model, orient = None, Orientation(*v.orientation)
+            else:  # find the orientation of continuity in 3D
+                try:
+                    found = find_orientation(pts, values, lag=v.lag, n_lags=v.lags, kind=v.kinds[0])
+                except ValueError as exc:
+                    raise setting_error(
+                        project.source,
+                        "variography.orientation",
+                        f"cannot find the orientation of continuity for {key} ({exc}); give "
+                        f"variography.orientation or a model in [variogram.{key}]",
+                    ) from None
+                model, orient = None, found.orientation
+            orientation_fit = found if not given and v.orientation is None else None
+            common = {
+                "estimator": v.estimator,
+                "weights": decl if v.use_declustering_weights else None,
+            }
+            directional = []
+            for axis, (az, pl) in enumerate(principal_directions(orient)):
+                directional.append(
+                    experimental_variogram(
+                        pts,
+                        values,
+                        lag=v.lag if axis < 2 else v.minor_lag,
+                        n_lags=v.lags,
+                        lag_tolerance=None
+                        if v.lag_tolerance is None
+                        else v.lag_tolerance * (1.0 if axis < 2 else v.minor_lag / v.lag),
+                        direction=(az, pl),
+                        angular_tolerance=v.angular_tolerance,
+                        horizontal_bandwidth=v.horizontal_bandwidth,
+                        vertical_bandwidth=v.vertical_bandwidth,
+                        label=("major", "semi", "minor")[axis],
+                        **common,
+                    )
+                )
+            downhole = experimental_variogram(
+                pts,
+                values,
+                lag=project.compositing.length,
+                n_lags=v.lags,
+                holes=sub.loc[ok, "hole"].to_numpy(),
+                label="downhole",
+                **common,
+            )
+            scan = None
+            if len(values) > 1:
+                scan = scan_directions(
+                    pts,
+                    values,
+                    np.arange(0.0, 180.0, 15.0),
+                    np.array([0.0, 30.0, 60.0]),
+                    lag=v.lag,
+                    n_lags=min(v.lags, 8),
+                    angular_tolerance=15.0,
+                    **common,
+                )
+            fit = None
+            if model is None:
+                fitted_to = [(e, a) for a, e in enumerate(directional)]
+                along = _mean_hole_direction(sub.loc[ok])
+                if along is not None:  # the short lags down the holes fix the nugget
+                    fitted_to.append((downhole, along))
+                try:
+                    fit = fit_variogram_checked(
+                        fitted_to,
+                        v.kinds[: v.structures],
+                        orient,
+                        fixed=dict(v.fixed),
+                        extent=float(np.linalg.norm(np.ptp(pts, axis=0))),
+                    )
+                    fitted = fit.model
+                except ValueError as exc:
+                    raise setting_error(
+                        project.source, "variography", f"cannot fit a variogram for {key}: {exc}"
+                    ) from None
+                # standardised variograms: sills scaled to the declustered variance (common practice)
+                model = _scaled(fitted, scale)
+            out[key] = Variography(
+                d.name,
+                g,
+                orient,
+                tuple(directional),
+                downhole,
+                model,
+                "fitted" if fit is not None else "project file",
+                scale=scale,
+                scores=scores,
+                scan=scan,
+                orientation_fit=orientation_fit,
+                fit=fit,
+            )
+    return out
