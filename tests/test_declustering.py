@@ -13,7 +13,7 @@ def test_regular_grid_gets_equal_weights():
     # On a regular grid every cell holds one sample whatever the origin (Deutsch 1989).
     g = np.arange(0, 100, 10.0) + 5
     pts = np.array(np.meshgrid(g, g, [0.0])).reshape(3, -1).T
-    res = cell_declustering(pts, np.arange(len(pts), dtype=float), np.array([10.0]), origins=4)
+    res = cell_declustering(pts, np.arange(len(pts), dtype=float), np.array([10.0]), grid_shifts=4)
     np.testing.assert_allclose(res.weights, 1.0)
     nn = nearest_neighbour_weights(pts, pts + 0.1)
     np.testing.assert_allclose(nn, 1.0)
@@ -23,13 +23,13 @@ def test_duplicated_cluster_halves_weights(rng):
     pts = rng.uniform(0, 100, size=(50, 3))
     pts[:, 2] = 0
     vals = rng.normal(size=50)
-    base = cell_declustering(pts, vals, np.array([25.0]), choose="fixed", fixed_size=25.0)
+    base = cell_declustering(pts, vals, np.array([25.0]), keep="given_size", given_size=25.0)
     dup = cell_declustering(
         np.vstack([pts, pts[:10]]),
         np.r_[vals, vals[:10]],
         np.array([25.0]),
-        choose="fixed",
-        fixed_size=25.0,
+        keep="given_size",
+        given_size=25.0,
     )
     # cells holding duplicated samples: each copy gets half of what the original had,
     # exactly when a cell's samples are all duplicated; compare total weight per location
@@ -46,9 +46,9 @@ def test_duplicated_isolated_sample_halves_exactly():
         np.vstack([pts, pts[:1]]),
         np.ones(5),
         np.array([50.0]),
-        origins=1,
-        choose="fixed",
-        fixed_size=50.0,
+        grid_shifts=1,
+        keep="given_size",
+        given_size=50.0,
     )
     np.testing.assert_allclose(res.weights[[0, 4]], res.weights[1] / 2)
 

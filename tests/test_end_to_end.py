@@ -73,8 +73,8 @@ def test_block_model_columns(two_runs):
         "au_holes",
         "au_distance",
         "au_pass",
-        "au_nn",
-        "au_idw",
+        "au_nearest",
+        "au_inverse_distance",
     ]
     assert list(b.columns[: len(expected)]) == expected
     assert (b["proportion"] > 0).all() and set(b["domain"]) == {"lode", "halo"}

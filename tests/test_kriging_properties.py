@@ -146,7 +146,7 @@ def test_simple_kriging_one_sample():
     # One sample: the weight is C(h)/C(0) and the mean takes the rest (common practice
     # identity of simple kriging; Journel & Huijbregts 1978, V.A.1).
     model = bm.VariogramModel(0.1, [bm.Structure("spherical", 0.9, (50, 50, 50))])
-    search = bm.SearchEllipsoid((100, 100, 100), max_samples=4)
+    search = bm.SearchEllipsoid((100, 100, 100), min_samples=1, max_samples=4)
     h = np.array([[20.0, 0.0, 0.0]])
     w = model.covariance(h)[0] / model.total_sill
     table = bm.krige(np.zeros((1, 3)), [5.0], h, model, search, method="simple", mean=2.0)

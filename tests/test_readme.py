@@ -45,3 +45,12 @@ def test_quick_start_on_a_fresh_environment(tmp_path):
     report = Path(clone) / "reports" / "demo"
     for name in ("report.html", "block_model.parquet", "grade_tonnage.csv", "manifest.json"):
         assert (report / name).is_file()
+
+
+def test_readme_table_of_keys_is_made_from_the_declarations():
+    """Each setting is declared once; the README's table of keys must be the one made
+    from those declarations (regenerate: python3 -m blockmodel.config.schema README.md)."""
+    from blockmodel.config.schema import with_table
+
+    text = (REPO / "README.md").read_text(encoding="utf-8")
+    assert with_table(text) == text, "run: python3 -m blockmodel.config.schema README.md"

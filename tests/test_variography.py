@@ -79,8 +79,8 @@ def test_fit_recovers_simulated_anisotropy(anisotropic_field):
                     n_lags=12,
                     direction=(az, pl),
                     angular_tolerance=15,
-                    horizontal_bandwidth=6,
-                    vertical_bandwidth=4,
+                    side_band=6,
+                    updown_band=4,
                 ),
                 axis,
             )

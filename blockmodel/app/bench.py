@@ -17,6 +17,7 @@ import time
 
 import numpy as np
 
+from blockmodel.estimation.kriging import DISCRETISATION
 from blockmodel.estimation.orientation import Orientation
 from blockmodel.estimation.search import SearchEllipsoid
 from blockmodel.variography.models import Structure, VariogramModel
@@ -32,7 +33,7 @@ MODEL = VariogramModel(
     ],
 )
 SEARCH = SearchEllipsoid((150.0, 100.0, 40.0), ORIENT, min_samples=4, max_samples=24)
-BLOCK, DISC = (10.0, 10.0, 5.0), (4, 4, 2)
+BLOCK, DISC = (10.0, 10.0, 5.0), DISCRETISATION
 
 
 def synthetic_composites(

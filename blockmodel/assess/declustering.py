@@ -30,7 +30,7 @@ class CellDeclustering:
 
     Attributes
     ----------
-    sizes : (s,) float64, metres (cell size along x; y and z scale by the anisotropy)
+    sizes : (s,) float64, metres (cell size along x; y and z follow the cell shape)
     means : (s,) float64, declustered mean at each size
     chosen_size : float
     weights : (n,) float64, summing to n (mean weight 1)
@@ -46,11 +46,12 @@ class CellDeclustering:
         return float(self.means[np.argmin(np.abs(self.sizes - self.chosen_size))])
 
 
-def _cell_weights(points: np.ndarray, size: np.ndarray, origins: int) -> np.ndarray:
+def _cell_weights(points: np.ndarray, size: np.ndarray, shifts: int) -> np.ndarray:
+    """Weights averaged over ``shifts`` cell grids shifted along the cell diagonal."""
     w = np.zeros(len(points))
     base = points.min(axis=0)
-    for k in range(origins):
-        shift = size * (k / origins)
+    for k in range(shifts):
+        shift = size * (k / shifts)
         cells = np.floor((points - base + shift) / size).astype(np.int64)
         _, inverse, counts = np.unique(cells, axis=0, return_inverse=True, return_counts=True)
         inverse = inverse.ravel()
@@ -63,26 +64,26 @@ def cell_declustering(
     values: np.ndarray,
     sizes: np.ndarray,
     *,
-    anisotropy: tuple[float, float, float] = (1.0, 1.0, 1.0),
-    origins: int = 8,
-    choose: str = "minimum",
-    fixed_size: float | None = None,
+    cell_shape: tuple[float, float, float] = (1.0, 1.0, 1.0),
+    grid_shifts: int = 8,
+    keep: str = "lowest_mean",
+    given_size: float | None = None,
 ) -> CellDeclustering:
-    """Cell declustering weights, averaged over shifted grid origins.
+    """Cell declustering weights, averaged over shifted cell grids.
 
     Parameters
     ----------
     points : (n, 3) float64, metres
     values : (n,) float64
     sizes : (s,) float64, metres
-        Cell sizes along x to try; y and z sizes are ``size * anisotropy[1:]``.
-    anisotropy : (3,) float
-        Ratio of the cell's x, y, z sides.
-    origins : int
-        Number of origin offsets, shifted along the cell diagonal, averaged.
-    choose : {"minimum", "maximum", "fixed"}
-        Keep the size giving the smallest mean (drilling clustered in high grade), the
-        largest, or ``fixed_size``.
+        Cell sizes along x to try; y and z sizes are ``size * cell_shape[1:] / cell_shape[0]``.
+    cell_shape : (3,) float
+        Relative lengths of the cell's x, y, z sides.
+    grid_shifts : int
+        Number of cell grids, shifted along the cell diagonal, whose weights are averaged.
+    keep : {"lowest_mean", "highest_mean", "given_size"}
+        Keep the size giving the lowest declustered mean (drilling clustered in high
+        grade), the highest, or ``given_size``.
 
     Returns
     -------
@@ -95,23 +96,24 @@ def cell_declustering(
     points = np.asarray(points, dtype=np.float64)
     values = np.asarray(values, dtype=np.float64)
     sizes = np.asarray(sizes, dtype=np.float64)
-    aniso = np.asarray(anisotropy, dtype=np.float64)
-    if choose not in ("minimum", "maximum", "fixed"):
-        raise ValueError(f"choose must be minimum, maximum or fixed; got {choose!r}")
-    if choose == "fixed":
-        if fixed_size is None or fixed_size <= 0:
-            raise ValueError("choose='fixed' needs a positive fixed_size")
-        sizes = np.unique(np.append(sizes, fixed_size))
+    shape = np.asarray(cell_shape, dtype=np.float64)
+    shape = shape / shape[0]
+    if keep not in ("lowest_mean", "highest_mean", "given_size"):
+        raise ValueError(f"keep must be lowest_mean, highest_mean or given_size; got {keep!r}")
+    if keep == "given_size":
+        if given_size is None or given_size <= 0:
+            raise ValueError("keep='given_size' needs a positive given_size")
+        sizes = np.unique(np.append(sizes, given_size))
     means = np.empty(len(sizes))
     all_w = []
     for n, s in enumerate(sizes):
-        w = _cell_weights(points, s * aniso, origins)
+        w = _cell_weights(points, s * shape, grid_shifts)
         all_w.append(w)
         means[n] = w @ values / w.sum()
-    if choose == "fixed":
-        pick = int(np.flatnonzero(sizes == fixed_size)[0])
+    if keep == "given_size":
+        pick = int(np.flatnonzero(sizes == given_size)[0])
     else:
-        pick = int(np.argmin(means) if choose == "minimum" else np.argmax(means))
+        pick = int(np.argmin(means) if keep == "lowest_mean" else np.argmax(means))
     return CellDeclustering(sizes, means, float(sizes[pick]), all_w[pick])
 
 

@@ -144,7 +144,7 @@ def swath(
     Parameters
     ----------
     blocks : DataFrame
-        Block model rows of one domain (``tonnes``, grade, ``{grade}_nn``).
+        Block model rows of one domain (``tonnes``, grade, ``{grade}_nearest``).
     composites : DataFrame
         That domain's composites with a ``weight`` column (declustering).
     axis : {"x", "y", "z"}
@@ -161,7 +161,7 @@ def swath(
     nb = int(max(b_bin.max(initial=0), c_bin.max(initial=0)) + 1)
     t = blocks["tonnes"].to_numpy(float)
     g = blocks[grade].to_numpy(float)
-    nn = blocks[f"{grade}_nn"].to_numpy(float)
+    nn = blocks[f"{grade}_nearest"].to_numpy(float)
     ok = np.isfinite(g)
     w = composites["weight"].to_numpy(float) if "weight" in composites else np.ones(len(composites))
     cv = composites[grade].to_numpy(float)
@@ -189,10 +189,10 @@ def global_bias(blocks: pd.DataFrame, grade: str) -> pd.DataFrame:
     """Tonnage-weighted kriged mean against the nearest-neighbour mean per domain (%)."""
     rows = []
     for dom, b in blocks.groupby("domain", sort=False):
-        ok = np.isfinite(b[grade]) & np.isfinite(b[f"{grade}_nn"])
+        ok = np.isfinite(b[grade]) & np.isfinite(b[f"{grade}_nearest"])
         t = b.loc[ok, "tonnes"]
         k = float((t * b.loc[ok, grade]).sum() / t.sum())
-        n = float((t * b.loc[ok, f"{grade}_nn"]).sum() / t.sum())
+        n = float((t * b.loc[ok, f"{grade}_nearest"]).sum() / t.sum())
         rows.append((dom, k, n, 100.0 * (k - n) / n))
     return pd.DataFrame(
         rows, columns=["domain", "kriged_mean", "nearest_mean", "difference_percent"]

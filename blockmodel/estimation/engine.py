@@ -15,7 +15,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from blockmodel.estimation.kriging import estimate
+from blockmodel.estimation.kriging import DISCRETISATION, estimate
 from blockmodel.estimation.search import SearchEllipsoid
 from blockmodel.variography.models import VariogramModel
 
@@ -34,7 +34,7 @@ class EstimationJob:
     method: str = "ordinary"
     mean: float | None = None
     block_size: tuple[float, float, float] | None = None
-    discretisation: tuple[int, int, int] = (4, 4, 2)
+    discretisation: tuple[int, int, int] = DISCRETISATION
     power: float = 2.0
 
 

@@ -21,9 +21,10 @@ from blockmodel.variography.models import VariogramModel
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
-__all__ = ["METHODS", "discretisation_offsets", "estimate", "krige"]
+__all__ = ["DISCRETISATION", "METHODS", "discretisation_offsets", "estimate", "krige"]
 
 METHODS = ("ordinary", "simple", "inverse_distance", "nearest")
+DISCRETISATION = (4, 4, 2)  # points per block along x, y, z, unless set otherwise
 
 #: Columns written by :func:`estimate`, in order.
 COLUMNS = (
@@ -118,7 +119,7 @@ def estimate(
     method: str = "ordinary",
     mean: float | None = None,
     block_size: Sequence[float] | None = None,
-    discretisation: Sequence[int] = (4, 4, 2),
+    discretisation: Sequence[int] = DISCRETISATION,
     hole_ids: np.ndarray | None = None,
     power: float = 2.0,
     chunk_size: int = 20_000,
@@ -295,7 +296,7 @@ def krige(
     method: str = "ordinary",
     mean: float | None = None,
     block_size: Sequence[float] | None = None,
-    discretisation: Sequence[int] = (4, 4, 2),
+    discretisation: Sequence[int] = DISCRETISATION,
     hole_ids: np.ndarray | None = None,
     power: float = 2.0,
     chunk_size: int = 20_000,

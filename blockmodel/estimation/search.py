@@ -14,7 +14,11 @@ from scipy.spatial import cKDTree
 from blockmodel.estimation import _kernels
 from blockmodel.estimation.orientation import Orientation
 
-__all__ = ["Neighbourhoods", "SearchEllipsoid", "find_neighbours"]
+__all__ = ["MAX_SAMPLES", "MIN_SAMPLES", "Neighbourhoods", "SearchEllipsoid", "find_neighbours"]
+
+
+MIN_SAMPLES = 4  # fewest samples to estimate, unless a search says otherwise
+MAX_SAMPLES = 24  # most samples used, unless a search says otherwise
 
 
 @dataclass(frozen=True)
@@ -41,8 +45,8 @@ class SearchEllipsoid:
 
     ranges: tuple[float, float, float]
     orientation: Orientation = field(default_factory=Orientation)
-    min_samples: int = 1
-    max_samples: int = 24
+    min_samples: int = MIN_SAMPLES
+    max_samples: int = MAX_SAMPLES
     max_per_hole: int | None = None
     max_per_octant: int | None = None
     min_octants: int = 0

@@ -330,7 +330,7 @@ def column_unit(column: str, grades: dict[str, str]) -> str:
     if grade not in grades:
         return {"density": "t/m3", "tonnes": "t", "x": "m", "y": "m", "z": "m"}.get(column, "")
     unit = grades[grade]
-    if what in ("", "nn", "idw", "nearest", "inverse_distance"):
+    if what in ("", "nearest", "inverse_distance"):
         return unit
     if what == "variance":
         return f"({unit})²"

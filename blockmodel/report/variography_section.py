@@ -38,9 +38,11 @@ def render_declustering(
     write_table(table, folder / "declustering.csv")
     s = project.declustering
     report.heading("Declustering")
+    sweep = s.cell_sizes
     report.paragraph(
-        f"Method: {s.method}; cell sizes swept {s.cell_sizes}, anisotropy {s.anisotropy}, "
-        f"{s.origins} origins, choice: {s.choose}."
+        f"Method: {s.method}; {sweep.count} cell sizes swept from {sweep.smallest:g} to "
+        f"{sweep.largest:g} m, cell shape {s.cell_shape}, {s.grid_shifts} shifted grids per "
+        f"size; kept: {s.keep.replace('_', ' ')}."
     )
     report.table(table)
     for name, d in declustering.by_domain.items():

@@ -91,8 +91,8 @@ def decluster(
     s = project.declustering
     weights = np.ones(len(composites))
     out = {}
-    lo, hi, n = s.cell_sizes
-    sizes = np.linspace(lo, hi, int(n))
+    sweep = s.cell_sizes
+    sizes = np.linspace(sweep.smallest, sweep.largest, sweep.count)
     primary = project.grades[0]
     for d_index, d in enumerate(project.domains):
         rows = np.flatnonzero((composites["domain"] == d.name).to_numpy())
@@ -109,10 +109,10 @@ def decluster(
                 pts[ok],
                 vals[ok],
                 sizes,
-                anisotropy=s.anisotropy,
-                origins=s.origins,
-                choose=s.choose,
-                fixed_size=s.fixed_size,
+                cell_shape=s.cell_shape,
+                grid_shifts=s.grid_shifts,
+                keep=s.keep,
+                given_size=s.given_size,
             )
             w[ok] = cell.weights
         elif s.method == "nearest":

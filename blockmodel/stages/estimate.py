@@ -67,7 +67,7 @@ def estimate_block_model(
     -------
     DataFrame with columns ``x, y, z, i, j, k, domain, proportion, density, tonnes`` and,
     per grade g, ``g, g_variance, g_slope, g_efficiency, g_samples, g_holes, g_distance,
-    g_pass, g_nn, g_idw``.
+    g_pass, g_nearest, g_inverse_distance``.
     """
     e = project.estimation
     backend = backend or e.backend
@@ -165,8 +165,8 @@ def estimate_block_model(
             frame[f"{g}_holes"] = res["n_holes"]
             frame[f"{g}_distance"] = res["mean_distance"]
             frame[f"{g}_pass"] = res["search_pass"]
-            frame[f"{g}_nn"] = res["nearest"]
-            frame[f"{g}_idw"] = res["inverse_distance"]
+            frame[f"{g}_nearest"] = res["nearest"]
+            frame[f"{g}_inverse_distance"] = res["inverse_distance"]
             frame[f"{g}_ill_conditioned"] = res["ill_conditioned"]
         frames.append(frame)
     model_table = pd.concat(frames, ignore_index=True)

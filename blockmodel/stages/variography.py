@@ -188,8 +188,8 @@ def variography(
                         else v.lag_tolerance * (1.0 if axis < 2 else v.minor_lag / v.lag),
                         direction=(az, pl),
                         angular_tolerance=v.angular_tolerance,
-                        horizontal_bandwidth=v.horizontal_bandwidth,
-                        vertical_bandwidth=v.vertical_bandwidth,
+                        side_band=v.side_band,
+                        updown_band=v.updown_band,
                         label=("major", "semi", "minor")[axis],
                         **common,
                     )

@@ -79,8 +79,8 @@ def experimental_variogram(
     lag_tolerance: float | None = None,
     direction: tuple[float, float] | None = None,
     angular_tolerance: float = 22.5,
-    horizontal_bandwidth: float = np.inf,
-    vertical_bandwidth: float = np.inf,
+    side_band: float = np.inf,
+    updown_band: float = np.inf,
     estimator: str = "semivariogram",
     weights: np.ndarray | None = None,
     holes: np.ndarray | None = None,
@@ -104,9 +104,12 @@ def experimental_variogram(
     direction : (azimuth, plunge) degrees, optional
         None for omnidirectional.
     angular_tolerance : float, degrees
-    horizontal_bandwidth, vertical_bandwidth : float, metres
-        Largest offset of a pair from the direction line, measured horizontally and in
-        the vertical plane containing the direction.
+    side_band : float, metres
+        Largest offset of a pair from the direction line measured horizontally, at right
+        angles to the direction.
+    updown_band : float, metres
+        Largest offset of a pair from the direction line measured in the vertical plane
+        that holds the direction, at right angles to it.
     estimator : {"semivariogram", "correlogram", "pairwise_relative"}
     weights : (n,) float64, optional
         Declustering weights; a pair weighs ``w_i w_j``.
@@ -150,8 +153,8 @@ def experimental_variogram(
         if direction is not None:
             along = h @ u
             perp = h - along[:, None] * u
-            ok &= (np.abs(along) >= cos_tol * d) & (np.abs(perp @ e_h) <= horizontal_bandwidth)
-            ok &= np.abs(perp @ e_v) <= vertical_bandwidth
+            ok &= (np.abs(along) >= cos_tol * d) & (np.abs(perp @ e_h) <= side_band)
+            ok &= np.abs(perp @ e_v) <= updown_band
         if lag_tolerance is None:
             b = np.searchsorted(edges, d, side="left") - 1
         else:
