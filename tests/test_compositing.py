@@ -76,5 +76,11 @@ def test_capping_by_value_and_percentile():
     np.testing.assert_allclose(capped["au"], [1, 2, 3, 5, 50])
     np.testing.assert_allclose(capped["au_uncapped"], comps["au"])
     assert s[0].capped == 1 and s[0].metal_removed_percent == pytest.approx(100 * 5 / 16)
+    # percentile by linear interpolation between order statistics (Hyndman & Fan 1996,
+    # definition 7): ore grades 1, 2, 3, 10; the 50th lies at (n - 1) p = 1.5, half way
+    # from 2 to 3; the 90th at 2.7, 0.7 of the way from 3 to 10
     capped, s = cap_grades(comps, [CappingRule("ore", "au", percentile=50.0)])
-    assert s[0].limit == pytest.approx(np.percentile([1, 2, 3, 10.0], 50))
+    assert s[0].limit == pytest.approx(2.5)
+    np.testing.assert_allclose(capped["au"], [1, 2, 2.5, 2.5, 50])
+    capped, s = cap_grades(comps, [CappingRule("ore", "au", percentile=90.0)])
+    assert s[0].limit == pytest.approx(7.9) and s[0].capped == 1

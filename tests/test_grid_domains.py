@@ -19,7 +19,7 @@ def _tilted_slab(normal, offset, size=1000.0) -> Surface:
 
 
 def test_grid_conventions():
-    # DESIGN §3: centre origin + (i + 1/2) size, flat index i + nx (j + ny k)
+    # grid module docstring: centre origin + (i + 1/2) size, flat index i + nx (j + ny k)
     g = BlockGrid((100.0, 200.0, 300.0), (10.0, 5.0, 2.0), (4, 3, 2))
     assert g.flat_index(1, 2, 1) == 1 + 4 * (2 + 3 * 1)
     np.testing.assert_allclose(g.centres([g.flat_index(1, 2, 1)])[0], [115.0, 212.5, 303.0])

@@ -52,7 +52,7 @@ def _plain_loop(pts, vals, targets, model, search, block_size, disc):
         sol = np.linalg.solve(lhs, np.append(cbar, 1.0))
         lam = sol[:k]
         variance = cvv - lam @ cbar - sol[k]
-        # slope of the regression of true block on estimate, and efficiency (DESIGN §4)
+        # slope of the regression of true block on estimate, and efficiency (definitions in blockmodel/estimation/kriging.py)
         slope = (lam @ cbar) / (lam @ lhs[:k, :k] @ lam)
         out[b] = lam @ vals[near], variance, slope, (cvv - variance) / cvv
     return out
@@ -71,13 +71,22 @@ def test_fast_path_equals_plain_loop(rng):
 
 
 def test_weights_sum_to_one_and_slope_definition(rng):
+    """Ordinary kriging identities (Journel & Huijbregts 1978, V.A; the definitions in the
+    kriging module): weights sum to one; with S = C_00 - variance - mu (the weighted
+    point-to-block covariance), the slope is S / (S - mu) and the efficiency
+    (C_00 - variance) / C_00, where C_00 is the block's mean covariance computed here."""
     pts, vals, _, targets = _data(rng)
     table = bm.krige(pts, vals, targets, MODEL, SEARCH, block_size=(10, 10, 5))
     ok = table.search_pass > 0
     assert ok.sum() > 50
     np.testing.assert_allclose(table.weight_sum[ok], 1.0, atol=1e-10)
-    cvv = (table.variance + MODEL.total_sill * 0)[ok]  # efficiency identity below
-    assert np.all(table.efficiency[ok] <= 1.0) and np.all(cvv >= 0)
+    offsets = bm.discretisation_offsets((10, 10, 5), (4, 4, 2))
+    cvv = MODEL.structured_covariance((offsets[:, None] - offsets[None]).reshape(-1, 3)).mean()
+    var, mu = table.variance[ok].to_numpy(), table.lagrange[ok].to_numpy()
+    weighted = cvv - var - mu
+    np.testing.assert_allclose(table.slope[ok], weighted / (weighted - mu), rtol=1e-9)
+    np.testing.assert_allclose(table.efficiency[ok], (cvv - var) / cvv, rtol=1e-9)
+    assert np.all(table.efficiency[ok] <= 1.0) and np.all(var >= 0)
 
 
 def test_exact_at_samples_point_support(rng):

@@ -1,4 +1,4 @@
-"""Orientation convention: golden axis vectors of DESIGN §3."""
+"""Orientation convention: the golden axis vectors written in the orientation module."""
 
 import numpy as np
 import pytest
@@ -7,7 +7,8 @@ import blockmodel as bm
 
 S, C = 0.5, np.sqrt(3) / 2
 
-# Golden values: DESIGN.md §3 table (the project's own convention, derived by hand).
+# Golden values: the table in blockmodel/estimation/orientation.py (the project's own
+# convention, derived by hand).
 GOLDEN = [
     ((0, 0, 0), [(0, 1, 0), (1, 0, 0), (0, 0, 1)]),
     ((90, 0, 0), [(1, 0, 0), (0, -1, 0), (0, 0, 1)]),
@@ -31,7 +32,7 @@ def test_axes_orthonormal_right_handed(rng):
 
 def test_lode_north_dipping_east():
     # A plane striking north and dipping 30 degrees east: both in-plane axes are
-    # horizontal-north and down-dip-east, the minor axis is the plane's normal (DESIGN §3).
+    # horizontal-north and down-dip-east, the minor axis is the plane's normal (README, conventions).
     a = bm.Orientation(0, 0, 30).axes()
     down_dip = np.array([np.cos(np.radians(30)), 0, -np.sin(np.radians(30))])
     np.testing.assert_allclose(a[1], down_dip, atol=1e-12)

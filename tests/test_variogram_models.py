@@ -14,7 +14,7 @@ def _model(kind, sill=2.0, ranges=(100, 50, 10), nugget=0.5, o=None):
 @pytest.mark.parametrize(
     ("kind", "share"),
     # Practical range: spherical and cubic reach the sill, exponential and Gaussian 95 %
-    # (DESIGN §3; Chilès & Delfiner 2012, §2.5).
+    # (models module docstring; Chilès & Delfiner 2012, §2.5).
     [
         ("spherical", 1.0),
         ("cubic", 1.0),

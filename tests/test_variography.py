@@ -31,6 +31,27 @@ def test_meuse_lags_match_gstat(meuse_log_zinc):
     np.testing.assert_allclose(ev.value[:2], [0.12345, 0.21622], atol=5e-6)
 
 
+def test_meuse_all_lags_match_scikit_gstat(meuse_log_zinc):
+    """All 15 lags, pair counts and semivariogram values, against scikit-gstat's
+    Variogram (a general-purpose library; even bins up to the same cutoff, the
+    classical estimator), computed in the same run."""
+    skgstat = pytest.importorskip("skgstat")
+    pts, v, width = meuse_log_zinc
+    ev = experimental_variogram(pts, v, lag=width, n_lags=15)
+    ref = skgstat.Variogram(
+        pts[:, :2],
+        v,
+        bin_func="even",
+        n_lags=15,
+        maxlag=15 * width,
+        estimator="matheron",
+        fit_method=None,
+    )
+    np.testing.assert_allclose(ref.bins, width * np.arange(1, 16), rtol=1e-12)
+    assert list(ev.pairs) == list(ref.bin_count)
+    np.testing.assert_allclose(ev.value, ref.experimental, rtol=1e-12)
+
+
 def test_meuse_spherical_fit_matches_gstat(meuse_log_zinc):
     # gstat fit.variogram with N/h^2 weights: nugget 0.0507, partial sill 0.5906, range 897
     pts, v, width = meuse_log_zinc
@@ -124,11 +145,20 @@ def test_centred_lags_with_tolerance():
         experimental_variogram(pts, vals, lag=5.0, n_lags=2, lag_tolerance=3.0)
 
 
-def test_normal_scores_round_trip(rng):
-    v = rng.lognormal(size=500)
-    y, table = normal_scores(v)
-    assert abs(y.mean()) < 0.01 and abs(y.std() - 1) < 0.05
-    np.testing.assert_allclose(table.back(y), v, rtol=1e-10)
+def test_normal_scores_against_the_normal_table():
+    """Five values take the standard normal quantiles of their plotting positions
+    (rank - 1/2) / n = 0.1, 0.3, 0.5, 0.7, 0.9: -1.281552, -0.524401, 0, 0.524401, 1.281552
+    (standard normal quantiles as printed in any normal table; recalled from memory, and
+    scipy's norm.ppf agrees to 1e-6); doubling the
+    weight of the largest value moves the positions to 1/12, 3/12, 5/12, 7/12, 10/12."""
+    from scipy.stats import norm
+
+    y, table = normal_scores(np.array([3.0, 1.0, 4.0, 1.5, 9.0]))
+    np.testing.assert_allclose(y, [0.0, -1.281552, 0.524401, -0.524401, 1.281552], atol=1e-6)
+    np.testing.assert_allclose(table.back(y), [3.0, 1.0, 4.0, 1.5, 9.0], rtol=1e-12)
+    y, _ = normal_scores(np.array([3.0, 1.0, 4.0, 1.5, 9.0]), np.array([1, 1, 1, 1, 2.0]))
+    expected = norm.ppf(np.array([5, 1, 7, 3, 10]) / 12)
+    np.testing.assert_allclose(y, expected, rtol=1e-12)
 
 
 def test_correlogram_of_independent_values_is_near_one(rng):

@@ -2,7 +2,17 @@
 distance and nearest sample, with oriented search passes.
 
 The numerical work is done by :func:`estimate`, which takes and returns plain arrays;
-:func:`krige` wraps it into a DataFrame, the public contract of DESIGN §4.
+:func:`krige` wraps it into a DataFrame (the public, documented form).
+
+Definitions (covariance form, ``C(h) = total sill - gamma(h)``): ordinary kriging solves
+``sum_j w_j C_ij + mu = C_i0`` with ``sum_j w_j = 1``; simple kriging solves
+``sum_j w_j C_ij = C_i0`` and the known mean takes the weight ``1 - sum w``.  For a block,
+``C_i0`` is the mean covariance between sample i and the block's discretisation points and
+``C_00`` the mean covariance between those points, nugget excluded; a point target adds
+the nugget at zero separation (exact interpolation).  With ``S = sum_i w_i C_i0``: kriging
+variance ``C_00 - S - mu``; slope of the regression of the true block grade on its
+estimate ``S / (S - mu)`` (``w' C w = S - mu``; 1 for simple kriging); kriging efficiency
+``(C_00 - variance) / C_00``.
 """
 
 from __future__ import annotations

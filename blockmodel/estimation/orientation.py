@@ -1,11 +1,27 @@
 """Orientation of an ellipsoid: the only place where angles become axis vectors.
 
-Convention (DESIGN §3), defined by the resulting unit vectors:
+The convention of the whole package (also in the README), defined by the resulting unit
+vectors in the frame x east, y north, z up:
 
 * ``azimuth``: bearing of the major axis, degrees clockwise from north (+y).
 * ``plunge``: angle of the major axis below the horizontal, degrees, positive downward.
 * ``tilt``: rotation of the semi and minor axes about the major axis, degrees, clockwise
   when looking along the major axis (semi turns toward -minor).
+
+Golden vectors (rows major, semi, minor; s = sin 30°, c = cos 30°), checked by
+``tests/test_orientation.py``:
+
+==================  ===========  ===========  ==========
+angles              major        semi         minor
+==================  ===========  ===========  ==========
+(0, 0, 0)           (0, 1, 0)    (1, 0, 0)    (0, 0, 1)
+(90, 0, 0)          (1, 0, 0)    (0, -1, 0)   (0, 0, 1)
+(0, 30, 0)          (0, c, -s)   (1, 0, 0)    (0, s, c)
+(0, 0, 30)          (0, 1, 0)    (c, 0, -s)   (s, 0, c)
+==================  ===========  ===========  ==========
+
+A plane striking north and dipping 30° east is ``(0, 0, 30)``: the semi axis points down
+the dip, the minor axis is the plane's normal.
 """
 
 from __future__ import annotations

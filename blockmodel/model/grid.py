@@ -1,4 +1,6 @@
-"""The regular block grid (DESIGN §3): origin at the minimum corner, x-fastest flat index."""
+"""The regular block grid: origin at the minimum corner; block ``(i, j, k)`` has its centre
+at ``origin + (i + 1/2, j + 1/2, k + 1/2) * block_size`` and flat index
+``i + nx * (j + ny * k)`` (x fastest, the cell order of VTK images)."""
 
 from __future__ import annotations
 

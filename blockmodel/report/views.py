@@ -30,7 +30,7 @@ def _write_png(image: np.ndarray, path: Path) -> None:
 
 def block_image(grid: BlockGrid, blocks, columns: list[str]):
     """pyvista ImageData with one cell per block; per column the tonnage-weighted mean over
-    the block's domain rows (NaN where none). Cell order is x fastest (DESIGN §3)."""
+    the block's domain rows (NaN where none). Cell order is x fastest (see :mod:`blockmodel.model.grid`)."""
     import pyvista as pv
 
     image = pv.ImageData(

@@ -1,6 +1,7 @@
 """Variogram models: an isotropic nugget plus nested anisotropic structures.
 
-Ranges are practical ranges along the structure's (major, semi, minor) axes (DESIGN §3):
+Ranges are practical ranges along the structure's (major, semi, minor) axes (see
+:mod:`blockmodel.estimation.orientation` for the axes):
 the spherical and cubic models reach their sill at the range, the exponential and Gaussian
 models reach 95 % of it.  Each structure is written as ``sill * correlation(r)`` with the
 reduced distance ``r = |diag(1/a) R h|``; covariance and variogram both derive from it.
