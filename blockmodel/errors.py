@@ -18,6 +18,7 @@ class Problem:
     problem: str
 
     def row(self) -> tuple[str, str, str, str, str]:
+        """The problem as five text cells: file, line, hole, field, problem."""
         return (
             self.file,
             "" if self.line is None else str(self.line),
@@ -37,6 +38,7 @@ class InputError(Exception):
         super().__init__(self.table())
 
     def table(self, limit: int = 200) -> str:
+        """Every problem (at most ``limit``) as an aligned text table, or the bare message of a single problem without a location."""
         rows = [("file", "line", "hole", "field", "problem")] + [
             p.row() for p in self.problems[:limit]
         ]

@@ -13,6 +13,7 @@ CORE = [
     "estimation/search.py",
     "estimation/kriging.py",
     "estimation/_kernels.py",
+    "estimation/_neighbours.py",
     "variography/models.py",
     "variography/experimental.py",
     "variography/fitting.py",

@@ -1,7 +1,6 @@
 """Bad input tried as a user would: each fault gives a correct run with a listed warning, or
 exit status 2 with one clear message naming file, line, hole or key; never a traceback."""
 
-import numpy as np
 import pandas as pd
 import pytest
 

@@ -7,7 +7,8 @@ from matplotlib import colormaps
 from matplotlib.image import imread
 
 from blockmodel.model.grid import BlockGrid
-from blockmodel.report import plots
+from blockmodel.report import maps
+from blockmodel.report.figures import GRADE_CMAP
 
 
 def _distinct_colours(png):
@@ -43,7 +44,7 @@ def grid_and_blocks(rng):
 def test_plan_shows_values_of_its_level(grid_and_blocks, tmp_path):
     grid, b = grid_and_blocks
     path = tmp_path / "plan.png"
-    plots.plan_figure(b, grid, "au", 1012.0, path, "g/t", vmin=0.0, vmax=4.0)
+    maps.plan_figure(b, grid, "au", 1012.0, path, "g/t", vmin=0.0, vmax=4.0)
     colours, share = _distinct_colours(path)
     assert colours > 200 and share > 0.3
     # the block at (i, j) = (10, 7) on level k = 2: find its pixel through the axes transform
@@ -51,7 +52,7 @@ def test_plan_shows_values_of_its_level(grid_and_blocks, tmp_path):
 
     matplotlib.use("Agg", force=True)
     one = b[(b.i == 10) & (b.j == 7) & (b.k == 2)].iloc[0]
-    expected = np.array(colormaps[plots.GRADE_CMAP](np.clip(one.au / 4.0, 0, 1))[:3])
+    expected = np.array(colormaps[GRADE_CMAP](np.clip(one.au / 4.0, 0, 1))[:3])
     img = imread(path)[..., :3]
     # locate the image area: the largest box of non-white pixels left of the colour bar
     mask = ~np.all(img > 0.97, axis=2)
@@ -72,7 +73,7 @@ def test_plan_shows_values_of_its_level(grid_and_blocks, tmp_path):
 def test_section_not_blank(grid_and_blocks, tmp_path):
     grid, b = grid_and_blocks
     path = tmp_path / "section.png"
-    plots.section_figure(b, grid, "au", (5e5 + 100, 7e6 + 75, 1015), 60.0, 20.0, path, "g/t")
+    maps.section_figure(b, grid, "au", (5e5 + 100, 7e6 + 75, 1015), 60.0, 20.0, path, "g/t")
     colours, share = _distinct_colours(path)
     assert colours > 200 and share > 0.1
 

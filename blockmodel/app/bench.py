@@ -79,6 +79,7 @@ def matmul_peak(size: int = 2000, repeats: int = 5) -> float:
 
 
 def block_kriging_rate(n_blocks: int, composites: int = 15_000) -> dict[str, float]:
+    """Blocks per second of block kriging (``n_blocks`` blocks, synthetic composites), with the seconds spent searching and solving."""
     from blockmodel.estimation.kriging import estimate
 
     pts, vals, holes = synthetic_composites(composites)
@@ -119,6 +120,7 @@ def block_kriging_rate(n_blocks: int, composites: int = 15_000) -> dict[str, flo
 def point_kriging_versus_pykrige(
     n_samples: int = 500, n_targets: int = 400
 ) -> dict[str, float] | None:
+    """Points per second of point kriging here and in pykrige's moving-neighbourhood loop on the same data, side by side; None without pykrige."""
     try:
         from pykrige.ok3d import OrdinaryKriging3D
     except ImportError:
@@ -168,6 +170,7 @@ def _child_peak(code: str) -> dict:
 
 
 def memory_million_blocks(n_blocks: int) -> dict:
+    """Peak memory (measured in a child process) and seconds to estimate ``n_blocks`` blocks."""
     return _child_peak(
         "import time\nfrom blockmodel.app.bench import MODEL, SEARCH, BLOCK, DISC, synthetic_composites, _targets\nfrom blockmodel.estimation.engine import EstimationJob, run_job\n"
         "pts, vals, holes = synthetic_composites(15000)\n"
@@ -179,6 +182,7 @@ def memory_million_blocks(n_blocks: int) -> dict:
 
 
 def variogram_memory(n: int) -> dict:
+    """Peak memory (child process) and seconds of one directional variogram of ``n`` composites."""
     return _child_peak(
         "import time\nfrom blockmodel.app.bench import synthetic_composites\n"
         "from blockmodel.variography.experimental import experimental_variogram\n"

@@ -176,6 +176,7 @@ def _dispatch(args) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """Run the command line with ``argv`` (default: the process's); returns the exit status (0 done, 2 bad input or full disk, 130 interrupted)."""
     args = _parser().parse_args(argv)
     from blockmodel.app.outputs import watch_interrupts
 

@@ -238,7 +238,7 @@ def view(
     cutoff : float, optional
         With ``kind="cutoff"``: show blocks at or above it.
     """
-    from blockmodel.report.plots import column_unit
+    from blockmodel.report.maps import column_unit
     from blockmodel.stages.domain_model import block_model_grid
 
     need_file(block_model)
@@ -264,12 +264,12 @@ def view(
         tmp = atomic_path(png)
     try:
         if kind in ("plan", "section"):
-            from blockmodel.report import plots
+            from blockmodel.report import maps
 
             if kind == "plan":
-                plots.plan_figure(blocks, grid, field, at[2], tmp, unit)
+                maps.plan_figure(blocks, grid, field, at[2], tmp, unit)
             else:
-                plots.section_figure(blocks, grid, field, at, azimuth, width, tmp, unit)
+                maps.section_figure(blocks, grid, field, at, azimuth, width, tmp, unit)
         else:
             from blockmodel.report.views import render_view
 
@@ -291,7 +291,7 @@ def view(
 
 def _check_png_target(png: Path, inputs: list[Path]) -> None:
     """A view may replace a PNG the tool wrote, never an input or any other file."""
-    from blockmodel.report.plots import PNG_SOFTWARE
+    from blockmodel.report.figures import PNG_SOFTWARE
 
     png = Path(png)
     if any(png.resolve() == Path(p).resolve() for p in inputs):

@@ -304,6 +304,7 @@ class OutputFolder:
         shutil.rmtree(self.path, ignore_errors=True)
 
     def discard(self) -> None:
+        """Remove the staging folder and everything the tool put in it."""
         shutil.rmtree(self.path, ignore_errors=True)
 
 

@@ -43,6 +43,7 @@ class CellDeclustering:
 
     @property
     def mean(self) -> float:
+        """Declustered mean at the chosen cell size."""
         return float(self.means[np.argmin(np.abs(self.sizes - self.chosen_size))])
 
 

@@ -68,10 +68,12 @@ class GaussianAnamorphosis:
 
     @property
     def mean(self) -> float:
+        """Mean of the modelled point distribution (the first Hermite coefficient)."""
         return float(self.coefficients[0])
 
     @property
     def variance(self) -> float:
+        """Variance of the modelled point distribution (sum of the squared Hermite coefficients after the first)."""
         return float(np.sum(self.coefficients[1:] ** 2))
 
     def block_variance(self, r: float) -> float:

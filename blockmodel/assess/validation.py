@@ -30,6 +30,7 @@ class CrossValidation:
     total: int
 
     def summary(self) -> dict[str, float]:
+        """The statistics as a flat dict (for a table row)."""
         return {
             k: getattr(self, k)
             for k in (

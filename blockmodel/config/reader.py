@@ -25,9 +25,11 @@ class Reader:
         self.base = path.parent
 
     def fail(self, key: str, message: str) -> typing.NoReturn:
+        """Stop with one problem naming ``key`` in the project file."""
         raise InputError([Problem(str(self.path), None, None, key, message)])
 
     def build(self, cls, data, key: str):
+        """An instance of dataclass ``cls`` from the TOML table ``data`` found at ``key``."""
         if not isinstance(data, dict):
             self.fail(key, f"'{key}' must be a table")
         hints = typing.get_type_hints(cls)
@@ -67,6 +69,7 @@ class Reader:
         return cls(**kwargs)
 
     def convert(self, tp, value, key: str):
+        """``value`` as type ``tp`` (numbers finite, paths resolved), or a problem naming ``key``."""
         origin = typing.get_origin(tp)
         args = typing.get_args(tp)
         if origin in (typing.Union, types.UnionType):

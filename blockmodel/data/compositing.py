@@ -16,6 +16,8 @@ __all__ = ["CappingSummary", "CompositingSummary", "cap_grades", "composite", "h
 
 @dataclass
 class CompositingSummary:
+    """Counts of what compositing kept, dropped and merged."""
+
     composites: int
     dropped_low_coverage: int
     residuals_merged: int
@@ -158,6 +160,8 @@ def composite(
 
 @dataclass
 class CappingSummary:
+    """One capping rule applied: its limit, how many composites it cut, and the metal removed (percent)."""
+
     domain: str
     grade: str
     limit: float

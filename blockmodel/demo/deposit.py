@@ -93,6 +93,7 @@ def in_shoot(u, v):
 
 
 def topography_elevation(x, y):
+    """Elevation (m) of the demo's ground surface at (x, y) (arrays, metres)."""
     xl, yl = x - ORIGIN[0], y - ORIGIN[1]
     return 1182.0 + 8.0 * np.sin(xl / 90.0) + 6.0 * np.cos(yl / 120.0)
 
@@ -124,14 +125,17 @@ def _slab(extent_u, extent_v, extra, step=10.0) -> Surface:
 
 
 def lode_surface() -> Surface:
+    """The demo lode's closed solid."""
     return _slab((-210.0, 210.0), (-150.0, 250.0), 0.0)
 
 
 def halo_surface() -> Surface:
+    """The closed solid of the low-grade halo around the lode (12 m beyond it)."""
     return _slab((-225.0, 225.0), (-165.0, 265.0), 12.0)
 
 
 def topography_surface(step=20.0) -> Surface:
+    """The demo's ground surface as a triangulated grid (``step`` metres)."""
     xs = ORIGIN[0] + np.arange(-20.0, 420.0 + 1e-9, step)
     ys = ORIGIN[1] + np.arange(-20.0, 520.0 + 1e-9, step)
     X, Y = np.meshgrid(xs, ys, indexing="ij")

@@ -93,6 +93,7 @@ class Progress:
         self.start = time.perf_counter()
 
     def advance(self, n: int) -> None:
+        """Count ``n`` more blocks done and redraw the bar."""
         self.done += n
         if self.enabled:
             rate = self.done / max(time.perf_counter() - self.start, 1e-9)
@@ -105,6 +106,7 @@ class Progress:
             self.stream.flush()
 
     def close(self) -> None:
+        """End the bar's line."""
         if self.enabled:
             self.stream.write("\n")
             self.stream.flush()

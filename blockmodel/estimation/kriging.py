@@ -24,7 +24,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 from scipy.spatial import cKDTree
 
-from blockmodel.estimation import _kernels
+from blockmodel.estimation import _kernels, _neighbours
 from blockmodel.estimation.search import SearchEllipsoid, find_neighbours
 from blockmodel.variography.models import VariogramModel
 
@@ -233,7 +233,7 @@ def estimate(
                 c: np.empty(len(tgt)) for c in ("mean_distance", "nearest", "inverse_distance")
             }
             holes_found = np.empty(len(tgt), dtype=np.int64)
-            _kernels.summarise_neighbours(
+            _neighbours.summarise_neighbours(
                 idx,
                 cnt.astype(np.int64),
                 dist,
@@ -254,7 +254,7 @@ def estimate(
                 out["estimate"][tgt] = out[method][tgt]
                 continue
             canonical = np.sort(idx, axis=1)
-            order, starts = _kernels.group_rows(canonical)
+            order, starts = _neighbours.group_rows(canonical)
             res = {c: np.full(len(tgt), np.nan) for c in ("est", "var", "slope", "mu", "neg", "ws")}
             flag = np.zeros(len(tgt), dtype=bool)
             _kernels.krige_groups(

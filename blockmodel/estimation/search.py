@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.spatial import cKDTree
 
-from blockmodel.estimation import _kernels
+from blockmodel.estimation import _neighbours
 from blockmodel.estimation.orientation import Orientation
 
 __all__ = ["MAX_SAMPLES", "MIN_SAMPLES", "Neighbourhoods", "SearchEllipsoid", "find_neighbours"]
@@ -92,6 +92,7 @@ class SearchEllipsoid:
 
     @property
     def has_limits(self) -> bool:
+        """True when per-hole or octant rules apply."""
         return bool(self.max_per_hole or self.max_per_octant or self.min_octants)
 
 
@@ -173,7 +174,7 @@ def find_neighbours(
         sub_out = np.empty((len(rows), kmax), dtype=np.int64)
         sub_count = np.empty(len(rows), dtype=np.int64)
         sub_octants = np.empty(len(rows), dtype=np.int64)
-        _kernels.select_neighbours(
+        _neighbours.select_neighbours(
             idx,
             local,
             holes,

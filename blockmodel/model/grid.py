@@ -47,11 +47,13 @@ class BlockGrid:
 
     @property
     def n_blocks(self) -> int:
+        """Number of blocks in the grid."""
         nx, ny, nz = self.shape
         return nx * ny * nz
 
     @property
     def block_volume(self) -> float:
+        """Volume of one block, cubic metres."""
         dx, dy, dz = self.block_size
         return dx * dy * dz
 

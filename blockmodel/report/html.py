@@ -42,12 +42,15 @@ class HtmlReport:
         self.warnings.append(text)
 
     def heading(self, text: str) -> None:
+        """A section heading."""
         self.parts.append(f"<h2>{html.escape(text)}</h2>")
 
     def paragraph(self, text: str) -> None:
+        """A paragraph of text (escaped)."""
         self.parts.append(f"<p>{html.escape(text)}</p>")
 
     def table(self, frame: pd.DataFrame, *, digits: int = 3) -> None:
+        """A table, numbers with ``digits`` decimals and thousands separators."""
         self.parts.append(
             frame.to_html(
                 index=False, float_format=lambda v: f"{v:,.{digits}f}", na_rep="–", border=0
@@ -55,6 +58,7 @@ class HtmlReport:
         )
 
     def image(self, path: Path, caption: str = "") -> None:
+        """A PNG embedded in the page, with a caption."""
         data = base64.b64encode(Path(path).read_bytes()).decode("ascii")
         cap = f"<figcaption>{html.escape(caption)}</figcaption>" if caption else ""
         self.parts.append(
@@ -62,9 +66,11 @@ class HtmlReport:
         )
 
     def raw(self, fragment: str) -> None:
+        """HTML written as given (the tool's own markup only)."""
         self.parts.append(fragment)
 
     def write(self, path: Path) -> None:
+        """Write the page (cautions at top and bottom, warnings first) to ``path``."""
         caution = f'<div class="caution"><strong>Caution.</strong> {html.escape(CAUTIONS)}</div>'
         warned = ""
         if self.warnings:

@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 
 from blockmodel.model.grid import BlockGrid
-from blockmodel.report.plots import CLASS_COLOURS, GRADE_CMAP
+from blockmodel.report.figures import CLASS_COLOURS, GRADE_CMAP
 
 __all__ = ["block_image", "render_view"]
 
@@ -21,7 +21,7 @@ def _write_png(image: np.ndarray, path: Path) -> None:
     """Write an RGB(A) array as PNG, with the tool's "Software" text chunk."""
     from PIL import Image, PngImagePlugin
 
-    from blockmodel.report.plots import PNG_SOFTWARE
+    from blockmodel.report.figures import PNG_SOFTWARE
 
     info = PngImagePlugin.PngInfo()
     info.add_text("Software", PNG_SOFTWARE)
@@ -64,7 +64,7 @@ def _traces(composites, grade: str | None):
     """Drillhole traces as polylines through the composites' ends, coloured by grade."""
     import pyvista as pv
 
-    from blockmodel.report.plots import composite_segments
+    from blockmodel.report.maps import composite_segments
 
     start, end = composite_segments(composites)
     n = len(start)

@@ -26,7 +26,7 @@ def render_views(
     """A plan and a section through the main domain's centre (its tonnage-weighted centre
     snapped to a block centre), 3D slices of the first grade along each axis, and 3D
     slices coloured by class with the domain solids."""
-    from blockmodel.report import plots
+    from blockmodel.report import maps
 
     primary = project.grades[0]
     unit = project.data.grades[primary]
@@ -42,7 +42,7 @@ def render_views(
     )
     report.heading("Views")
     p = folder / "plan.png"
-    plots.plan_figure(blocks, grid, primary, float(centre[2]), p, unit, composites=composites)
+    maps.plan_figure(blocks, grid, primary, float(centre[2]), p, unit, composites=composites)
     report.image(p, f"Plan through the centre of the {main} domain")
     # across strike: a right angle to the major axis of the main domain's model
     model = models.get(f"{main}.{primary}")
@@ -52,7 +52,7 @@ def render_views(
         else 90.0
     )
     p = folder / "section.png"
-    plots.section_figure(
+    maps.section_figure(
         blocks,
         grid,
         primary,

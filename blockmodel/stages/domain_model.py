@@ -43,6 +43,7 @@ def build_domain_model(project: Project, composites: pd.DataFrame) -> DomainMode
 
 
 def block_model_grid(project: Project) -> BlockGrid:
+    """The project's block grid."""
     return BlockGrid(project.grid.origin, project.grid.block_size, project.grid.shape)
 
 

@@ -77,6 +77,7 @@ class RunResults:
 
     @property
     def models(self) -> dict:
+        """The variogram model of each ``domain.grade``."""
         return {k: v.model for k, v in self.variography.items()}
 
 

@@ -204,6 +204,7 @@ class NormalScores:
     scores: np.ndarray
 
     def forward(self, z: np.ndarray) -> np.ndarray:
+        """Normal scores of ``z`` by linear interpolation in the table (clamped at its ends)."""
         return np.interp(z, self.values, self.scores)
 
     def back(self, y: np.ndarray) -> np.ndarray:

@@ -1,0 +1,169 @@
+"""Compiled kernels of the neighbour search: choosing samples under per-hole and octant
+limits, grouping targets that share a neighbourhood, and summarising neighbourhoods.
+
+Pure arrays in, arrays out; compiled with numba and cached on disk; no ``fastmath``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit, prange
+
+_CACHE = True
+
+
+@njit(cache=_CACHE)
+def select_neighbours(
+    cand, local, hole_of, max_samples, max_per_hole, max_per_octant, out, counts, octants_filled
+):
+    """Apply per-hole and per-octant limits to distance-ordered candidates.
+
+    Parameters
+    ----------
+    cand : (m, q) int64, candidate sample indices by increasing distance, n = none
+    local : (m, q, 3) float64, candidate offsets from the target in the search frame
+    hole_of : (n,) int64, hole code of each sample
+    max_samples, max_per_hole, max_per_octant : int (<= 0 means no limit)
+    out : (m, max_samples) int64, chosen indices (written), padded with n
+    counts : (m,) int64 (written)
+    octants_filled : (m,) int64 (written)
+    """
+    m, q = cand.shape
+    n = hole_of.shape[0]
+    for t in range(m):
+        used = 0
+        holes_seen = np.full(max_samples, -1, dtype=np.int64)
+        holes_count = np.zeros(max_samples, dtype=np.int64)
+        n_seen = 0
+        octant_count = np.zeros(8, dtype=np.int64)
+        for c in range(q):
+            s = cand[t, c]
+            if s >= n:
+                break
+            h = hole_of[s]
+            pos = -1
+            if max_per_hole > 0:
+                pos = -1
+                for u in range(n_seen):
+                    if holes_seen[u] == h:
+                        pos = u
+                        break
+                if pos >= 0 and holes_count[pos] >= max_per_hole:
+                    continue
+            octant = 0
+            if local[t, c, 0] < 0.0:
+                octant += 1
+            if local[t, c, 1] < 0.0:
+                octant += 2
+            if local[t, c, 2] < 0.0:
+                octant += 4
+            if max_per_octant > 0 and octant_count[octant] >= max_per_octant:
+                continue
+            octant_count[octant] += 1
+            if max_per_hole > 0:
+                if pos >= 0:
+                    holes_count[pos] += 1
+                else:
+                    holes_seen[n_seen] = h
+                    holes_count[n_seen] = 1
+                    n_seen += 1
+            out[t, used] = s
+            used += 1
+            if used == max_samples:
+                break
+        counts[t] = used
+        filled = 0
+        for o in range(8):
+            if octant_count[o] > 0:
+                filled += 1
+        octants_filled[t] = filled
+        for c in range(used, max_samples):
+            out[t, c] = n
+
+
+@njit(cache=_CACHE)
+def group_rows(rows):
+    """Order rows so that identical rows are contiguous; returns (order, group starts).
+
+    Rows are hashed (FNV-1a over their entries) and sorted by hash; a group ends wherever a
+    row differs from the one before, so a hash collision can only split a group, never merge
+    different rows.
+    """
+    m, k = rows.shape
+    h = np.empty(m, dtype=np.uint64)
+    prime = np.uint64(1099511628211)
+    for t in range(m):
+        x = np.uint64(14695981039346656037)
+        for c in range(k):
+            x = (x ^ np.uint64(rows[t, c])) * prime
+        h[t] = x
+    order = np.argsort(h, kind="mergesort").astype(np.int64)
+    starts = np.empty(m + 1, dtype=np.int64)
+    n = 0
+    for p in range(m):
+        new = p == 0
+        if not new:
+            a, b = order[p - 1], order[p]
+            for c in range(k):
+                if rows[a, c] != rows[b, c]:
+                    new = True
+                    break
+        if new:
+            starts[n] = p
+            n += 1
+    starts[n] = m
+    return order, starts[: n + 1].copy()
+
+
+@njit(cache=_CACHE, parallel=True)
+def summarise_neighbours(
+    index,
+    count,
+    distance,
+    samples,
+    targets,
+    values,
+    hole_codes,
+    power,
+    n_holes,
+    mean_distance,
+    nearest,
+    inverse_distance,
+):
+    """Per target: distinct holes, mean Euclidean distance (metres), nearest sample value and
+    inverse-distance estimate (anisotropic distance to the given power).
+
+    ``index`` and ``distance`` are ordered by increasing anisotropic distance.
+    """
+    m = index.shape[0]
+    for t in prange(m):
+        k = count[t]
+        holes = np.empty(k, dtype=np.int64)
+        dsum = 0.0
+        wsum = 0.0
+        vsum = 0.0
+        exact = -1
+        for i in range(k):
+            s = index[t, i]
+            holes[i] = hole_codes[s]
+            dx = samples[s, 0] - targets[t, 0]
+            dy = samples[s, 1] - targets[t, 1]
+            dz = samples[s, 2] - targets[t, 2]
+            dsum += np.sqrt(dx * dx + dy * dy + dz * dz)
+            d = distance[t, i]
+            if d <= 1e-12:
+                if exact < 0:
+                    exact = s
+            else:
+                w = 1.0 / d**power
+                wsum += w
+                vsum += w * values[s]
+        holes.sort()
+        distinct = 0
+        for i in range(k):
+            if i == 0 or holes[i] != holes[i - 1]:
+                distinct += 1
+        n_holes[t] = distinct
+        mean_distance[t] = dsum / k
+        nearest[t] = values[index[t, 0]]
+        inverse_distance[t] = values[exact] if exact >= 0 else vsum / wsum
