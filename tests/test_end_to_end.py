@@ -31,6 +31,10 @@ FILES = [
     "cross_validation_lode.png",
     "swath_lode.png",
     "change_of_support_lode.png",
+    "change_of_support.csv",
+    "experimental_variograms.csv",
+    "cross_validation.csv",
+    "swaths.csv",
 ]
 
 

@@ -56,9 +56,11 @@ def test_swath_and_bias():
             "au_nearest": [1.0, 2, 3, 6],
         }
     )
-    comps = pd.DataFrame({"x": [4.0, 16, 26, 36], "au": [1.0, 2, 3, 4], "weight": [1.0, 1, 1, 1]})
-    s = swath(blocks, comps, "au", "x", 20.0)
+    comps = pd.DataFrame({"x": [4.0, 16, 26, 36], "au": [1.0, 2, 3, 4]})
+    s = swath(blocks, comps, "au", "x", 20.0, np.array([1.0, 3.0, 1.0, 1.0]))
     np.testing.assert_allclose(s["kriged"], [1.5, 3.5])
+    # slices 0-20 and 20-40 m: composites 1 (weight 1) and 2 (weight 3), then 3 and 4
+    np.testing.assert_allclose(s["composites"], [(1 + 6) / 4, 3.5])
     b = global_bias(blocks, "au")
     kriged, nearest = (1 + 2 + 6 + 8) / 6, (1 + 2 + 6 + 12) / 6
     assert b["difference_percent"][0] == pytest.approx(100 * (kriged - nearest) / nearest)

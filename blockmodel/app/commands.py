@@ -108,6 +108,7 @@ def _manifest(command: str, project: Project, **extra) -> dict:
 
 def run_variography(project: Project, out: Path | None = None, *, replace: bool = False) -> Path:
     """Declustering and variography alone: plots, declustering table, fitted models."""
+    from blockmodel.report.files import write_variography_files
     from blockmodel.report.variography_section import render_variography
     from blockmodel.stages.composites import load_and_composite
     from blockmodel.stages.declustering import decluster
@@ -130,6 +131,7 @@ def run_variography(project: Project, out: Path | None = None, *, replace: bool 
                 steps.warn(message)
                 report.warn(message)
         render_variography(project, decl, vario, staged.path, report)
+        write_variography_files(project, decl, vario, staged.path)
         report.write(staged.path / "variography.html")
         staged.commit(_manifest("variography", project))
     return staged.target
@@ -145,6 +147,7 @@ def run(
 ) -> Path:
     """The whole chain: the stages, then the report rendered from their results; returns
     the report folder."""
+    from blockmodel.report.files import write_run_files
     from blockmodel.report.run_report import render_run
     from blockmodel.stages.run import run_stages
 
@@ -153,8 +156,10 @@ def run(
     staged = OutputFolder(out or project.report.folder, input_files(project), replace=replace)
     with staged:
         results = run_stages(project, steps, engine)
-        csv = write_csv if write_csv is not None else project.report.write_csv
-        report = render_run(results, staged.path, steps, write_csv=csv)
+        report = render_run(results, staged.path, steps)
+        with steps("result files"):
+            csv = write_csv if write_csv is not None else project.report.write_csv
+            write_run_files(results, staged.path, csv=csv)
         report.paragraph(f"Timings (s): {steps.timings}")
         report.write(staged.path / "report.html")
         staged.commit(
@@ -183,6 +188,7 @@ def report_again(
     replace: bool = False,
 ) -> Path:
     """Re-report an existing block model at new cut-offs or classification rules."""
+    from blockmodel.report.files import write_grade_tonnage
     from blockmodel.report.run_report import render_grade_tonnage
     from blockmodel.stages.estimate import classify
     from blockmodel.stages.tables import grade_tonnage_tables
@@ -197,6 +203,7 @@ def report_again(
         report = HtmlReport(f"{project.name}: grade–tonnage re-report of {Path(block_model).name}")
         tables = grade_tonnage_tables(project, blocks, cutoffs)
         render_grade_tonnage(project, tables, staged.path, report)
+        write_grade_tonnage(tables, staged.path)
         report.write(staged.path / "report.html")
         staged.commit(
             _manifest(

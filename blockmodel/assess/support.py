@@ -248,16 +248,10 @@ def change_of_support(
     total_tonnes : float
         Tonnes of the domain's estimated blocks; tonnage fractions are scaled by it.
     """
-    from blockmodel.estimation import _kernels
-    from blockmodel.estimation.kriging import discretisation_offsets
+    from blockmodel.estimation.kriging import block_covariance
 
     ana = empirical_anamorphosis(values, weights)
-    kinds, sills, mats = model.packed()
-    cvv = float(
-        _kernels.mean_block_covariance(
-            discretisation_offsets(block_size, discretisation), kinds, sills, mats
-        )
-    )
+    cvv = block_covariance(model, block_size, discretisation)
     block_variance = ana.variance * cvv / model.total_sill
     r = support_coefficient(ana, block_variance)
     cutoffs = np.asarray(cutoffs, dtype=np.float64)

@@ -139,6 +139,7 @@ def swath(
     grade: str,
     axis: str,
     width: float,
+    weights: np.ndarray,
 ) -> pd.DataFrame:
     """Mean grades in slices along x, y or z.
 
@@ -147,9 +148,11 @@ def swath(
     blocks : DataFrame
         Block model rows of one domain (``tonnes``, grade, ``{grade}_nearest``).
     composites : DataFrame
-        That domain's composites with a ``weight`` column (declustering).
+        That domain's composites.
     axis : {"x", "y", "z"}
     width : float, metres
+    weights : (n,) float64
+        Declustering weights of the composites (their mean per slice is weighted).
 
     Returns
     -------
@@ -164,7 +167,7 @@ def swath(
     g = blocks[grade].to_numpy(float)
     nn = blocks[f"{grade}_nearest"].to_numpy(float)
     ok = np.isfinite(g)
-    w = composites["weight"].to_numpy(float) if "weight" in composites else np.ones(len(composites))
+    w = np.asarray(weights, dtype=np.float64)
     cv = composites[grade].to_numpy(float)
     cok = np.isfinite(cv)
 

@@ -31,7 +31,14 @@ from blockmodel.variography.models import VariogramModel
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
-__all__ = ["DISCRETISATION", "METHODS", "discretisation_offsets", "estimate", "krige"]
+__all__ = [
+    "DISCRETISATION",
+    "METHODS",
+    "block_covariance",
+    "discretisation_offsets",
+    "estimate",
+    "krige",
+]
 
 METHODS = ("ordinary", "simple", "inverse_distance", "nearest")
 DISCRETISATION = (4, 4, 2)  # points per block along x, y, z, unless set otherwise
@@ -88,6 +95,24 @@ def discretisation_offsets(
     axes = [((np.arange(c) + 0.5) / c - 0.5) * s for c, s in zip(counts, size, strict=True)]
     gz, gy, gx = np.meshgrid(axes[2], axes[1], axes[0], indexing="ij")
     return np.column_stack([gx.ravel(), gy.ravel(), gz.ravel()])
+
+
+def block_covariance(
+    model: VariogramModel, block_size: Sequence[float], discretisation: Sequence[int]
+) -> float:
+    """Mean covariance between the discretisation points of one block, ``C̄(V, V)``
+    (nugget excluded), in the model's units squared.
+
+    Parameters
+    ----------
+    model : VariogramModel
+    block_size : (3,) float, metres
+    discretisation : (3,) int
+        Points per block axis (centres of equal sub-cells).
+    """
+    kinds, sills, mats = model.packed()
+    offsets = discretisation_offsets(block_size, discretisation)
+    return float(_kernels.mean_block_covariance(offsets, kinds, sills, mats))
 
 
 def _as_points(name: str, a: np.ndarray) -> np.ndarray:

@@ -1,11 +1,31 @@
-"""Writing results as files: tables as CSV or Parquet, the block model as Parquet, CSV
-and a VTK image, variogram models as TOML; and reading them back."""
+"""The result files of a run, written in one place and read back: tables as CSV (ten
+significant digits) or Parquet, the block model as Parquet, CSV and a VTK image, the
+variogram models as TOML.  A later command reads a report folder with :func:`read_run`
+instead of recomputing.
+
+============================  =========================================================
+file                          what it holds
+============================  =========================================================
+composites.csv                composites, with their ``declustering_weight``
+declustering.csv              per domain and grade: naive and declustered statistics
+variogram_models.toml         the model of each domain and grade, as a project file takes it
+experimental_variograms.csv   every experimental variogram: domain, grade, direction, lag
+normal_scores_D_G.csv         back-transform table (normal-score variography only)
+block_model.parquet           the block model (``block_model.csv`` on request)
+block_model.vti               the block model as a VTK image (x fastest)
+cross_validation.csv          per composite left out: true, estimate, error, variance
+swaths.csv                    per domain, axis and slice: kriged, nearest, composites
+change_of_support.csv         discrete Gaussian grade–tonnage curve per domain
+grade_tonnage.csv             kriged blocks at each cut-off, per domain and class
+============================  =========================================================
+"""
 
 from __future__ import annotations
 
 import hashlib
 import re
 import tomllib
+from dataclasses import dataclass
 from pathlib import Path
 
 import pandas as pd
@@ -13,7 +33,19 @@ import pandas as pd
 from blockmodel.model.grid import BlockGrid
 from blockmodel.variography.models import Structure, VariogramModel
 
-__all__ = ["read_models", "safe_stem", "write_block_model", "write_models", "write_table"]
+__all__ = [
+    "SavedRun",
+    "read_models",
+    "read_run",
+    "read_table",
+    "safe_stem",
+    "write_block_model",
+    "write_grade_tonnage",
+    "write_models",
+    "write_run_files",
+    "write_table",
+    "write_variography_files",
+]
 
 LABELS = ("domain", "class", "x", "y", "z", "i", "j", "k")
 
@@ -79,3 +111,126 @@ def read_models(path: Path) -> dict[str, VariogramModel]:
                 ],
             )
     return out
+
+
+def experimental_table(variography: dict) -> pd.DataFrame:
+    """Every experimental variogram as rows ``domain, grade, direction, lag, pairs,
+    distance, value`` (direction: major, semi, minor or downhole)."""
+    frames = []
+    for res in variography.values():
+        for ev in (*res.directional, res.downhole):
+            frames.append(
+                pd.DataFrame(
+                    {
+                        "domain": res.domain,
+                        "grade": res.grade,
+                        "direction": ev.label,
+                        "lag": range(1, len(ev.pairs) + 1),
+                        "pairs": ev.pairs,
+                        "distance": ev.distance,
+                        "value": ev.value,
+                    }
+                )
+            )
+    return pd.concat(frames, ignore_index=True)
+
+
+def write_variography_files(project, declustering, variography: dict, folder: Path) -> None:
+    """``declustering.csv``, ``variogram_models.toml``, ``experimental_variograms.csv`` and
+    the normal-score tables."""
+    write_table(declustering.table(project.grades), folder / "declustering.csv")
+    write_models(variography, folder / "variogram_models.toml")
+    write_table(experimental_table(variography), folder / "experimental_variograms.csv")
+    for key, res in variography.items():
+        if res.scores is not None:
+            table = pd.DataFrame({"value": res.scores.values, "normal_score": res.scores.scores})
+            write_table(table, folder / f"normal_scores_{safe_stem(key.replace('.', '_'))}.csv")
+
+
+def write_grade_tonnage(tables: dict[str, pd.DataFrame], folder: Path) -> None:
+    """``grade_tonnage.csv`` for the first grade, ``grade_tonnage_G.csv`` for the others."""
+    for n, (g, gt) in enumerate(tables.items()):
+        write_table(gt, folder / ("grade_tonnage.csv" if n == 0 else f"grade_tonnage_{g}.csv"))
+
+
+def composites_table(results) -> pd.DataFrame:
+    """The composites with their declustering weight, ordered by hole and depth."""
+    table = results.composites.table.assign(declustering_weight=results.declustering.weights)
+    return table.sort_values(["hole", "from"], kind="stable")
+
+
+def cross_validation_table(validation) -> pd.DataFrame:
+    """Every composite left out and re-estimated, per domain."""
+    frames = [
+        v.cross_validation.table.assign(domain=name) for name, v in validation.by_domain.items()
+    ]
+    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+
+
+def swaths_table(validation) -> pd.DataFrame:
+    """Every swath slice, per domain and axis."""
+    frames = [
+        t.assign(domain=name, axis=axis)
+        for name, v in validation.by_domain.items()
+        for axis, t in v.swaths.items()
+    ]
+    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+
+
+def write_run_files(results, folder: Path, *, csv: bool = False) -> None:
+    """Every result file of a run (the table in this module's docstring)."""
+    write_table(composites_table(results), folder / "composites.csv")
+    write_variography_files(results.project, results.declustering, results.variography, folder)
+    write_block_model(results.blocks, results.domains.grid, folder, csv=csv)
+    write_table(cross_validation_table(results.validation), folder / "cross_validation.csv")
+    write_table(swaths_table(results.validation), folder / "swaths.csv")
+    if results.support.by_domain:
+        write_table(results.support.table(), folder / "change_of_support.csv")
+    write_grade_tonnage(results.tables, folder)
+
+
+@dataclass(frozen=True)
+class SavedRun:
+    """The result files of a report folder, read back (see :func:`read_run`)."""
+
+    composites: pd.DataFrame
+    declustering: pd.DataFrame
+    models: dict[str, VariogramModel]
+    experimental: pd.DataFrame
+    blocks: pd.DataFrame
+    cross_validation: pd.DataFrame
+    swaths: pd.DataFrame
+    support: pd.DataFrame | None
+    grade_tonnage: pd.DataFrame
+
+
+TEXT_COLUMNS = ("domain", "hole", "class", "grade", "direction", "axis", "metal_unit", "note")
+
+
+def read_table(path: Path) -> pd.DataFrame:
+    """A CSV written by :func:`write_table`: an empty number is missing, the text columns
+    (:data:`TEXT_COLUMNS`) stay text as written (empty, ``NA`` or ``12`` alike)."""
+    frame = pd.read_csv(
+        path, dtype=dict.fromkeys(TEXT_COLUMNS, str), keep_default_na=False, na_values=[""]
+    )
+    for c in TEXT_COLUMNS:
+        if c in frame:
+            frame[c] = frame[c].fillna("")
+    return frame
+
+
+def read_run(folder: Path) -> SavedRun:
+    """Read back the result files a run wrote into ``folder``."""
+    folder = Path(folder)
+    support = folder / "change_of_support.csv"
+    return SavedRun(
+        composites=read_table(folder / "composites.csv"),
+        declustering=read_table(folder / "declustering.csv"),
+        models=read_models(folder / "variogram_models.toml"),
+        experimental=read_table(folder / "experimental_variograms.csv"),
+        blocks=pd.read_parquet(folder / "block_model.parquet"),
+        cross_validation=read_table(folder / "cross_validation.csv"),
+        swaths=read_table(folder / "swaths.csv"),
+        support=read_table(support) if support.exists() else None,
+        grade_tonnage=read_table(folder / "grade_tonnage.csv"),
+    )

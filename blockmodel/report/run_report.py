@@ -9,7 +9,7 @@ from pathlib import Path
 import pandas as pd
 
 from blockmodel.config.project import Project
-from blockmodel.report.files import safe_stem, write_block_model, write_table
+from blockmodel.report.files import safe_stem
 from blockmodel.report.html import HtmlReport
 from blockmodel.report.variography_section import render_variography
 from blockmodel.report.views_section import render_views
@@ -18,14 +18,13 @@ from blockmodel.stages.run import RunResults
 __all__ = ["render_grade_tonnage", "render_run"]
 
 
-def render_run(results: RunResults, folder: Path, steps, *, write_csv: bool) -> HtmlReport:
-    """Write every file of a run's report folder except the HTML and the manifest, and
-    return the report, ready to be written."""
+def render_run(results: RunResults, folder: Path, steps) -> HtmlReport:
+    """Draw every figure of a run into ``folder`` and return the HTML report, ready to be
+    written (the result files are written by :func:`blockmodel.report.files.write_run_files`)."""
     project, comps = results.project, results.composites
     report = HtmlReport(f"{project.name}: block model estimate")
     for message in results.warnings:
         report.warn(message)
-    write_table(comps.table.sort_values(["hole", "from"], kind="stable"), folder / "composites.csv")
     _data_sections(project, comps, report)
     with steps("declustering and variogram plots"):
         render_variography(project, results.declustering, results.variography, folder, report)
@@ -53,8 +52,6 @@ def render_run(results: RunResults, folder: Path, steps, *, write_csv: bool) -> 
         )
     if results.truth is not None:
         _truth_section(results, report)
-    with steps("block model files"):
-        write_block_model(results.blocks, results.domains.grid, folder, csv=write_csv)
     report.heading("Run")
     return report
 
@@ -160,7 +157,6 @@ def _support_section(results: RunResults, folder: Path, report: HtmlReport) -> N
         )
         report.image(p, f"Kriged grade–tonnage curve against the discrete Gaussian model, {name}")
     if s.by_domain:
-        write_table(s.table(), folder / "change_of_support.csv")
         report.paragraph(
             "Tonnes, grade and metal expected at block support by the discrete Gaussian "
             "model (declustered composites, block variance from the variogram model): "
@@ -171,13 +167,11 @@ def _support_section(results: RunResults, folder: Path, report: HtmlReport) -> N
 def render_grade_tonnage(
     project: Project, tables: dict[str, pd.DataFrame], folder: Path, report: HtmlReport
 ) -> None:
-    """``grade_tonnage.csv`` (first grade; ``grade_tonnage_G.csv`` for the others), the
-    curves per domain and the report's tables, rounded for reading."""
+    """The grade–tonnage curves per domain and the report's tables, rounded for reading."""
     from blockmodel.report import plots
 
-    for n, (g, gt) in enumerate(tables.items()):
+    for g, gt in tables.items():
         unit = project.data.grades[g]
-        write_table(gt, folder / ("grade_tonnage.csv" if n == 0 else f"grade_tonnage_{g}.csv"))
         first_unit = gt["metal_unit"].iloc[0]
         main = gt[(gt["metal_unit"] == first_unit) & (gt["class"] == "all")]
         curves = {

@@ -1,15 +1,13 @@
-"""The declustering and variography sections of a report, with their plots and files
-(``declustering.csv``, ``variogram_models.toml``, normal-score tables)."""
+"""The declustering and variography sections of a report, with their plots (the files are
+written by :mod:`blockmodel.report.files`)."""
 
 from __future__ import annotations
 
 import dataclasses
 from pathlib import Path
 
-import pandas as pd
-
 from blockmodel.config.project import Project
-from blockmodel.report.files import safe_stem, write_models, write_table
+from blockmodel.report.files import safe_stem
 from blockmodel.report.html import HtmlReport
 from blockmodel.stages.declustering import Declustering
 
@@ -19,7 +17,7 @@ __all__ = ["render_variography"]
 def render_declustering(
     project: Project, declustering: Declustering, folder: Path, report: HtmlReport
 ) -> None:
-    """``declustering.csv``, one plot per domain swept by cells, and the report section."""
+    """One plot per domain swept by cells, and the report section."""
     from blockmodel.report import plots
 
     primary = project.grades[0]
@@ -35,7 +33,6 @@ def render_declustering(
                 project.data.grades[primary],
             )
     table = declustering.table(project.grades)
-    write_table(table, folder / "declustering.csv")
     s = project.declustering
     report.heading("Declustering")
     sweep = s.cell_sizes
@@ -59,7 +56,7 @@ def render_variography(
     report: HtmlReport,
 ) -> None:
     """Declustering, then per domain and grade the variogram plots, the model in words,
-    how the orientation was found and how well the model fits; ``variogram_models.toml``."""
+    how the orientation was found and how well the model fits."""
     from blockmodel.report import plots
 
     render_declustering(project, declustering, folder, report)
@@ -99,10 +96,7 @@ def render_variography(
             plots.direction_map_figure(res, p, units[res.grade])
             report.image(p, f"Variogram by direction and lag, {key}")
         if res.scores is not None:
-            table = pd.DataFrame({"value": res.scores.values, "normal_score": res.scores.scores})
-            write_table(table, folder / f"normal_scores_{stem}.csv")
             report.paragraph(
                 f"{key}: variograms of normal scores; back-transform table in "
                 f"normal_scores_{stem}.csv."
             )
-    write_models(variography, folder / "variogram_models.toml")

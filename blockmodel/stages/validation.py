@@ -95,7 +95,8 @@ def validate(
     for d in project.domains:
         if not d.estimate:
             continue
-        sub = composites[(composites["domain"] == d.name) & composites[primary].notna()]
+        rows = ((composites["domain"] == d.name) & composites[primary].notna()).to_numpy()
+        sub = composites[rows]
         model = models[f"{d.name}.{primary}"]
         cv = cross_validate(
             sub[["x", "y", "z"]].to_numpy(float),
@@ -110,7 +111,11 @@ def validate(
             else None,
         )
         b = blocks[blocks["domain"] == d.name]
-        swaths = {a: swath(b, sub, primary, a, 4 * grid.block_size[n]) for n, a in enumerate("xyz")}
+        weights = declustering.weights[rows]
+        swaths = {
+            a: swath(b, sub, primary, a, 4 * grid.block_size[n], weights)
+            for n, a in enumerate("xyz")
+        }
         out[d.name] = DomainValidation(d.name, cv, swaths)
     return Validation(
         primary, method, project.validation.leave_out, out, global_bias(blocks, primary)
