@@ -4,7 +4,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from blockmodel.config.project import CappingRule, Compositing
+from blockmodel.config.sections import CappingRule, Compositing
 from blockmodel.data.compositing import cap_grades, composite
 from blockmodel.data.drillholes import DrillholeSet
 

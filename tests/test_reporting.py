@@ -13,7 +13,7 @@ from blockmodel.assess.support import (
     hermite,
     support_coefficient,
 )
-from blockmodel.config.project import ClassRule
+from blockmodel.config.sections import ClassRule
 from blockmodel.report.tables import TROY_OUNCE_GRAMS, grade_tonnage
 
 

@@ -9,7 +9,7 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
-from blockmodel.config.project import ClassRule
+from blockmodel.config.sections import ClassRule
 
 __all__ = ["UNESTIMATED", "classify_blocks"]
 

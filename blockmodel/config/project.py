@@ -20,10 +20,7 @@ from blockmodel.config.reader import Reader
 from blockmodel.config.schema import setting
 from blockmodel.config.sections import (
     CappingRule,
-    CellSweep,
     Classification,
-    ClassRule,
-    Columns,
     Compositing,
     DataFiles,
     Declustering,
@@ -33,35 +30,12 @@ from blockmodel.config.sections import (
     ModelSpec,
     Report,
     SearchPass,
-    StructureSpec,
     Validation,
     Variography,
 )
 from blockmodel.errors import InputError, Problem
 
-__all__ = [
-    "CappingRule",
-    "CellSweep",
-    "ClassRule",
-    "Classification",
-    "Columns",
-    "Compositing",
-    "DataFiles",
-    "Declustering",
-    "Domain",
-    "Estimation",
-    "Grid",
-    "ModelSpec",
-    "Project",
-    "Report",
-    "SearchPass",
-    "StructureSpec",
-    "Validation",
-    "Variography",
-    "grid_memory_bytes",
-    "load_project",
-    "resolved",
-]
+__all__ = ["Project", "grid_memory_bytes", "load_project", "resolved"]
 
 
 @dataclass(frozen=True)

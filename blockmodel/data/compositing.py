@@ -7,7 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from blockmodel.config.project import CappingRule, Compositing
+from blockmodel.config.sections import CappingRule, Compositing
 from blockmodel.data.desurvey import positions_along_hole
 from blockmodel.data.drillholes import DrillholeSet
 

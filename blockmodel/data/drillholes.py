@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from blockmodel.config.project import DataFiles
+from blockmodel.config.sections import DataFiles
 from blockmodel.data.tables import (
     COORDINATE_LIMIT,
     DEPTH_LIMIT,

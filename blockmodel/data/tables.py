@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from blockmodel.config.project import DataFiles
+from blockmodel.config.sections import DataFiles
 from blockmodel.errors import InputError, Problem
 
 __all__ = [
