@@ -67,7 +67,6 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
         Listing every problem found (file, line, hole, field, problem).
     """
     c = data.columns
-    cf, sf, af = str(data.collars), str(data.surveys), str(data.intervals)
     collars_raw = read_table(
         data.collars, {"hole id": c.hole, "x": c.x, "y": c.y, "z": c.z, "depth": c.depth}
     )
@@ -82,7 +81,28 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
     intervals_raw = read_table(data.intervals, required)
     problems: list[Problem] = []
     warnings: list[Problem] = []
+    collars = _collars(collars_raw, data, problems)
+    surveys = _surveys(surveys_raw, collars, data, problems, warnings)
+    intervals, below, missing = _intervals(intervals_raw, collars, data, problems, warnings)
+    if problems:
+        raise InputError(problems)
+    intervals = intervals.drop(columns="_line").reset_index(drop=True)
+    return DrillholeSet(
+        collars=collars.drop(columns="_line").reset_index(drop=True),
+        surveys=surveys.drop(columns="_line")
+        .sort_values(["hole", "depth"], kind="stable")
+        .reset_index(drop=True),
+        intervals=intervals,
+        grades=list(data.grades),
+        warnings=warnings,
+        below_detection=below,
+        missing=missing,
+    )
 
+
+def _collars(collars_raw: pd.DataFrame, data: DataFiles, problems: list[Problem]) -> pd.DataFrame:
+    """The collars table checked: numbers in range, ids present and unique, depths positive."""
+    c, cf = data.columns, str(data.collars)
     collars = pd.DataFrame({"hole": collars_raw[c.hole].astype(str), "_line": collars_raw["_line"]})
     for key, col in (("x", c.x), ("y", c.y), ("z", c.z)):
         collars[key] = parse_numbers(
@@ -98,9 +118,21 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
     bad_depth = collars["depth"] <= 0
     for line, hole in zip(collars["_line"][bad_depth], collars["hole"][bad_depth], strict=True):
         problems.append(Problem(cf, int(line), hole, c.depth, "hole depth must be positive"))
+    return collars
+
+
+def _surveys(
+    surveys_raw: pd.DataFrame,
+    collars: pd.DataFrame,
+    data: DataFiles,
+    problems: list[Problem],
+    warnings: list[Problem],
+) -> pd.DataFrame:
+    """The surveys checked against the collars: angles in range, depths increasing and
+    within the hole; upward dips and single surveys are warnings."""
+    c, cf, sf = data.columns, str(data.collars), str(data.surveys)
     known = set(collars["hole"])
     total_depth = dict(zip(collars["hole"], collars["depth"], strict=True))
-
     surveys = pd.DataFrame({"hole": surveys_raw[c.hole].astype(str), "_line": surveys_raw["_line"]})
     surveys["depth"] = parse_numbers(
         surveys_raw, c.survey_depth, sf, problems, c.hole, low=0.0, high=DEPTH_LIMIT
@@ -176,7 +208,22 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
     for hole in sorted(known - set(surveys["hole"])):
         line = int(collars.loc[collars["hole"] == hole, "_line"].iloc[0])
         problems.append(Problem(cf, line, hole, None, "hole has no survey"))
+    return surveys
 
+
+def _intervals(
+    intervals_raw: pd.DataFrame,
+    collars: pd.DataFrame,
+    data: DataFiles,
+    problems: list[Problem],
+    warnings: list[Problem],
+) -> tuple[pd.DataFrame, dict[str, int], dict[str, int]]:
+    """The sample intervals checked against the collars: from < to, within the hole, no
+    overlaps (gaps are warnings); grades and density parsed.  Returns the table and the
+    counts of below-detection and missing values per grade."""
+    c, af = data.columns, str(data.intervals)
+    known = set(collars["hole"])
+    total_depth = dict(zip(collars["hole"], collars["depth"], strict=True))
     intervals = pd.DataFrame(
         {"hole": intervals_raw[c.hole].astype(str), "_line": intervals_raw["_line"]}
     )
@@ -249,17 +296,4 @@ def load_drillholes(data: DataFiles) -> DrillholeSet:
             warnings.append(
                 Problem(af, int(lines[0]), hole, None, "every grade of this hole is missing")
             )
-    if problems:
-        raise InputError(problems)
-    intervals = intervals.drop(columns="_line").reset_index(drop=True)
-    return DrillholeSet(
-        collars=collars.drop(columns="_line").reset_index(drop=True),
-        surveys=surveys.drop(columns="_line")
-        .sort_values(["hole", "depth"], kind="stable")
-        .reset_index(drop=True),
-        intervals=intervals,
-        grades=list(data.grades),
-        warnings=warnings,
-        below_detection=below,
-        missing=missing,
-    )
+    return intervals, below, missing

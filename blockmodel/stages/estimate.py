@@ -48,6 +48,84 @@ def _estimated_density(project, table, domain, centres, grid, e, orientation) ->
     return np.where(np.isfinite(res["estimate"]), res["estimate"], domain.density)
 
 
+# block-model column (per grade g) <- key of the estimator's results
+OUTPUTS = {
+    "{g}": "estimate",
+    "{g}_variance": "variance",
+    "{g}_slope": "slope",
+    "{g}_efficiency": "efficiency",
+    "{g}_samples": "n_samples",
+    "{g}_holes": "n_holes",
+    "{g}_distance": "mean_distance",
+    "{g}_pass": "search_pass",
+    "{g}_nearest": "nearest",
+    "{g}_inverse_distance": "inverse_distance",
+    "{g}_ill_conditioned": "ill_conditioned",
+}
+
+
+def _estimate_grade(
+    project: Project,
+    domain: str,
+    grade: str,
+    table: pd.DataFrame,
+    model: VariogramModel,
+    grid: BlockGrid,
+    centres: np.ndarray,
+    mean: float | None,
+    *,
+    chunk_size: int,
+    backend: str,
+    workers: int,
+    cluster: str,
+) -> dict[str, np.ndarray]:
+    """One grade of one domain at the block ``centres`` (n, 3) by the project's method,
+    from the domain's composites (all composites with soft boundaries)."""
+    e = project.estimation
+    source = table if e.boundaries == "soft" else table[table["domain"] == domain]
+    source = source[source[grade].notna()]
+    fewest = min(p.min_samples for p in project.passes_for(domain))
+    if fewest > len(source):
+        raise setting_error(
+            project.source,
+            "search.min_samples",
+            f"every search pass of domain '{domain}' needs at least {fewest} samples, "
+            f"but the domain has {len(source)} composites with {grade}",
+        )
+    if e.method == "simple" and not np.isfinite(mean):
+        raise setting_error(
+            project.source,
+            "estimation.method",
+            f"simple kriging needs the declustered mean of {grade} in domain "
+            f"'{domain}', and it could not be computed (no composites with {grade})",
+        )
+    passes = passes_from(
+        project.passes_for(domain),
+        model.structures[0].orientation if model.structures else Orientation(),
+    )
+    job = EstimationJob(
+        source[["x", "y", "z"]].to_numpy(float),
+        source[grade].to_numpy(float),
+        source["hole"].to_numpy(),
+        model,
+        passes,
+        e.method,
+        mean,
+        grid.block_size,
+        e.discretisation,
+        e.idw_power,
+    )
+    return run_job(
+        job,
+        centres,
+        chunk_size=chunk_size,
+        backend=backend,
+        workers=workers,
+        cluster=cluster,
+        label=f"{domain} {grade}",
+    )
+
+
 def estimate_block_model(
     project: Project,
     table: pd.DataFrame,
@@ -109,65 +187,25 @@ def estimate_block_model(
             orientation = model.structures[0].orientation if model.structures else Orientation()
             frame["density"] = _estimated_density(project, table, d, centres, grid, e, orientation)
             frame["tonnes"] = grid.block_volume * prop * frame["density"].to_numpy()
+        engine = {"chunk_size": chunk_size, "backend": backend, "workers": workers}
         for g in project.grades:
-            key = f"{d.name}.{g}"
-            source = table if e.boundaries == "soft" else table[table["domain"] == d.name]
-            source = source[source[g].notna()]
-            model = models[key]
-            fewest = min(p.min_samples for p in project.passes_for(d.name))
-            if fewest > len(source):
-                raise setting_error(
-                    project.source,
-                    "search.min_samples",
-                    f"every search pass of domain '{d.name}' needs at least {fewest} samples, "
-                    f"but the domain has {len(source)} composites with {g}",
-                )
-            passes = passes_from(
-                project.passes_for(d.name),
-                model.structures[0].orientation if model.structures else Orientation(),
-            )
             mean = None
             if e.method == "simple":
                 mean = (declustered_means or {}).get(d.name, {}).get(g, float("nan"))
-                if not np.isfinite(mean):
-                    raise setting_error(
-                        project.source,
-                        "estimation.method",
-                        f"simple kriging needs the declustered mean of {g} in domain "
-                        f"'{d.name}', and it could not be computed (no composites with {g})",
-                    )
-            job = EstimationJob(
-                source[["x", "y", "z"]].to_numpy(float),
-                source[g].to_numpy(float),
-                source["hole"].to_numpy(),
-                model,
-                passes,
-                e.method,
-                mean,
-                grid.block_size,
-                e.discretisation,
-                e.idw_power,
-            )
-            res = run_job(
-                job,
+            res = _estimate_grade(
+                project,
+                d.name,
+                g,
+                table,
+                models[f"{d.name}.{g}"],
+                grid,
                 centres,
-                chunk_size=chunk_size,
-                backend=backend,
-                workers=workers,
+                mean,
                 cluster=cluster,
-                label=f"{d.name} {g}",
+                **engine,
             )
-            frame[g] = res["estimate"]
-            frame[f"{g}_variance"] = res["variance"]
-            frame[f"{g}_slope"] = res["slope"]
-            frame[f"{g}_efficiency"] = res["efficiency"]
-            frame[f"{g}_samples"] = res["n_samples"]
-            frame[f"{g}_holes"] = res["n_holes"]
-            frame[f"{g}_distance"] = res["mean_distance"]
-            frame[f"{g}_pass"] = res["search_pass"]
-            frame[f"{g}_nearest"] = res["nearest"]
-            frame[f"{g}_inverse_distance"] = res["inverse_distance"]
-            frame[f"{g}_ill_conditioned"] = res["ill_conditioned"]
+            for column, key in OUTPUTS.items():
+                frame[column.format(g=g)] = res[key]
         frames.append(frame)
     model_table = pd.concat(frames, ignore_index=True)
     order = {d.name: n for n, d in enumerate(project.domains)}

@@ -121,133 +121,150 @@ def variography(
     weights : (n,) float64
         Declustering weight of each composite, in the table's order.
     """
-    v = project.variography
     out = {}
     for d in project.domains:
         if not d.estimate:
             continue
         in_domain = (table["domain"] == d.name).to_numpy()
-        sub = table[in_domain]
-        sub_weights = weights[in_domain]
         for g in project.grades:
-            key = f"{d.name}.{g}"
-            ok = sub[g].notna().to_numpy()
-            pts = sub.loc[ok, ["x", "y", "z"]].to_numpy(float)
-            grades = sub.loc[ok, g].to_numpy(float)
-            decl = sub_weights[ok]
-            given = key in project.variogram
-            if not given and (len(grades) < 2 or np.ptp(grades) == 0):
-                shown = f" ({grades[0]:g})" if len(grades) else ""
-                raise setting_error(
-                    project.data.intervals,
-                    g,
-                    f"{key}: {len(grades)} composite(s), all grades "
-                    f"equal{shown}: no variogram can be fitted; give a model in [variogram.{key}]",
-                )
-            mean = float(decl @ grades / decl.sum()) if len(grades) else 0.0
-            variance = float(decl @ (grades - mean) ** 2 / decl.sum()) if len(grades) else 0.0
-            values, scores, scale = grades, None, 1.0
-            if v.transform == "normal_scores":
-                values, scores = normal_scores(grades, decl)
-                scale = variance
-            elif v.estimator == "correlogram":
-                scale = variance
-            elif v.estimator == "pairwise_relative":
-                scale = mean * mean
-            if given:
-                model = _model_from_spec(project.variogram[key])
-                orient = model.structures[0].orientation if model.structures else Orientation()
-            elif v.orientation is not None:
-                model, orient = None, Orientation(*v.orientation)
-            else:  # find the orientation of continuity in 3D
-                try:
-                    found = find_orientation(pts, values, lag=v.lag, n_lags=v.lags, kind=v.kinds[0])
-                except ValueError as exc:
-                    raise setting_error(
-                        project.source,
-                        "variography.orientation",
-                        f"cannot find the orientation of continuity for {key} ({exc}); give "
-                        f"variography.orientation or a model in [variogram.{key}]",
-                    ) from None
-                model, orient = None, found.orientation
-            orientation_fit = found if not given and v.orientation is None else None
-            common = {
-                "estimator": v.estimator,
-                "weights": decl if v.use_declustering_weights else None,
-            }
-            directional = []
-            for axis, (az, pl) in enumerate(principal_directions(orient)):
-                directional.append(
-                    experimental_variogram(
-                        pts,
-                        values,
-                        lag=v.lag if axis < 2 else v.minor_lag,
-                        n_lags=v.lags,
-                        lag_tolerance=None
-                        if v.lag_tolerance is None
-                        else v.lag_tolerance * (1.0 if axis < 2 else v.minor_lag / v.lag),
-                        direction=(az, pl),
-                        angular_tolerance=v.angular_tolerance,
-                        side_band=v.side_band,
-                        updown_band=v.updown_band,
-                        label=("major", "semi", "minor")[axis],
-                        **common,
-                    )
-                )
-            downhole = experimental_variogram(
+            ok = in_domain & table[g].notna().to_numpy()
+            out[f"{d.name}.{g}"] = _one(project, d.name, g, table[ok], weights[ok])
+    return out
+
+
+def _one(
+    project: Project, domain: str, grade: str, sub: pd.DataFrame, decl: np.ndarray
+) -> Variography:
+    """Variography of one domain and grade from its composites ``sub`` (grade present)
+    and their declustering weights."""
+    v = project.variography
+    key = f"{domain}.{grade}"
+    pts = sub[["x", "y", "z"]].to_numpy(float)
+    grades = sub[grade].to_numpy(float)
+    given = key in project.variogram
+    if not given and (len(grades) < 2 or np.ptp(grades) == 0):
+        shown = f" ({grades[0]:g})" if len(grades) else ""
+        raise setting_error(
+            project.data.intervals,
+            grade,
+            f"{key}: {len(grades)} composite(s), all grades "
+            f"equal{shown}: no variogram can be fitted; give a model in [variogram.{key}]",
+        )
+    values, scores, scale = _values_and_scale(v, grades, decl)
+    orientation_fit = None
+    if given:
+        model = _model_from_spec(project.variogram[key])
+        orient = model.structures[0].orientation if model.structures else Orientation()
+    elif v.orientation is not None:
+        model, orient = None, Orientation(*v.orientation)
+    else:  # find the orientation of continuity in 3D
+        try:
+            orientation_fit = find_orientation(
+                pts, values, lag=v.lag, n_lags=v.lags, kind=v.kinds[0]
+            )
+        except ValueError as exc:
+            raise setting_error(
+                project.source,
+                "variography.orientation",
+                f"cannot find the orientation of continuity for {key} ({exc}); give "
+                f"variography.orientation or a model in [variogram.{key}]",
+            ) from None
+        model, orient = None, orientation_fit.orientation
+    common = {"estimator": v.estimator, "weights": decl if v.use_declustering_weights else None}
+    directional = _directional(v, pts, values, orient, common)
+    downhole = experimental_variogram(
+        pts,
+        values,
+        lag=project.compositing.length,
+        n_lags=v.lags,
+        holes=sub["hole"].to_numpy(),
+        label="downhole",
+        **common,
+    )
+    scan = None
+    if len(values) > 1:
+        scan = scan_directions(
+            pts,
+            values,
+            np.arange(0.0, 180.0, 15.0),
+            np.array([0.0, 30.0, 60.0]),
+            lag=v.lag,
+            n_lags=min(v.lags, 8),
+            angular_tolerance=15.0,
+            **common,
+        )
+    fit = None
+    if model is None:
+        fitted_to = [(e, a) for a, e in enumerate(directional)]
+        along = _mean_hole_direction(sub)
+        if along is not None:  # the short lags down the holes fix the nugget
+            fitted_to.append((downhole, along))
+        try:
+            fit = fit_variogram_checked(
+                fitted_to,
+                v.kinds[: v.structures],
+                orient,
+                fixed=dict(v.fixed),
+                extent=float(np.linalg.norm(np.ptp(pts, axis=0))),
+            )
+        except ValueError as exc:
+            raise setting_error(
+                project.source, "variography", f"cannot fit a variogram for {key}: {exc}"
+            ) from None
+        # standardised variograms: sills scaled to the declustered variance (common practice)
+        model = _scaled(fit.model, scale)
+    return Variography(
+        domain,
+        grade,
+        orient,
+        tuple(directional),
+        downhole,
+        model,
+        "fitted" if fit is not None else "project file",
+        scale=scale,
+        scores=scores,
+        scan=scan,
+        orientation_fit=orientation_fit,
+        fit=fit,
+    )
+
+
+def _values_and_scale(v, grades: np.ndarray, decl: np.ndarray):
+    """The values the variograms are computed on (grades or their normal scores), the
+    normal-score table (or None), and the factor taking the experimental values to grade
+    units squared: the declustered variance for normal scores and the correlogram, the
+    squared declustered mean for the pairwise relative variogram, else 1."""
+    mean = float(decl @ grades / decl.sum()) if len(grades) else 0.0
+    variance = float(decl @ (grades - mean) ** 2 / decl.sum()) if len(grades) else 0.0
+    if v.transform == "normal_scores":
+        values, scores = normal_scores(grades, decl)
+        return values, scores, variance
+    if v.estimator == "correlogram":
+        return grades, None, variance
+    if v.estimator == "pairwise_relative":
+        return grades, None, mean * mean
+    return grades, None, 1.0
+
+
+def _directional(v, pts, values, orient: Orientation, common: dict) -> list:
+    """Experimental variograms along the major, semi and minor axes of ``orient`` (the
+    minor with its own lag)."""
+    out = []
+    for axis, (az, pl) in enumerate(principal_directions(orient)):
+        lag = v.lag if axis < 2 else v.minor_lag
+        out.append(
+            experimental_variogram(
                 pts,
                 values,
-                lag=project.compositing.length,
+                lag=lag,
                 n_lags=v.lags,
-                holes=sub.loc[ok, "hole"].to_numpy(),
-                label="downhole",
+                lag_tolerance=None if v.lag_tolerance is None else v.lag_tolerance * (lag / v.lag),
+                direction=(az, pl),
+                angular_tolerance=v.angular_tolerance,
+                side_band=v.side_band,
+                updown_band=v.updown_band,
+                label=("major", "semi", "minor")[axis],
                 **common,
             )
-            scan = None
-            if len(values) > 1:
-                scan = scan_directions(
-                    pts,
-                    values,
-                    np.arange(0.0, 180.0, 15.0),
-                    np.array([0.0, 30.0, 60.0]),
-                    lag=v.lag,
-                    n_lags=min(v.lags, 8),
-                    angular_tolerance=15.0,
-                    **common,
-                )
-            fit = None
-            if model is None:
-                fitted_to = [(e, a) for a, e in enumerate(directional)]
-                along = _mean_hole_direction(sub.loc[ok])
-                if along is not None:  # the short lags down the holes fix the nugget
-                    fitted_to.append((downhole, along))
-                try:
-                    fit = fit_variogram_checked(
-                        fitted_to,
-                        v.kinds[: v.structures],
-                        orient,
-                        fixed=dict(v.fixed),
-                        extent=float(np.linalg.norm(np.ptp(pts, axis=0))),
-                    )
-                    fitted = fit.model
-                except ValueError as exc:
-                    raise setting_error(
-                        project.source, "variography", f"cannot fit a variogram for {key}: {exc}"
-                    ) from None
-                # standardised variograms: sills scaled to the declustered variance (common practice)
-                model = _scaled(fitted, scale)
-            out[key] = Variography(
-                d.name,
-                g,
-                orient,
-                tuple(directional),
-                downhole,
-                model,
-                "fitted" if fit is not None else "project file",
-                scale=scale,
-                scores=scores,
-                scan=scan,
-                orientation_fit=orientation_fit,
-                fit=fit,
-            )
+        )
     return out
