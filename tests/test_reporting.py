@@ -153,3 +153,24 @@ def test_block_tonnage_of_lognormal_blocks():
     sr = s * r
     expected = 1 - norm.cdf((np.log(cut / m) + sr * sr / 2) / sr)
     np.testing.assert_allclose(got[:, 0], expected, atol=2e-3)
+
+
+def test_html_page_from_its_template_escapes_text(tmp_path):
+    """The page comes from the package's template: user text (a domain called '<b>') is
+    escaped, tables are embedded as tables, cautions open and close the page."""
+    from blockmodel.report.html import CAUTIONS, HtmlReport
+
+    r = HtmlReport("Project <b>")
+    r.warn("domain '<b>' & more")
+    r.heading("Grade <b>")
+    r.table(pd.DataFrame({"domain": ["<b>"], "tonnes": [1234.5]}))
+    r.box("truth")
+    r.paragraph("inside")
+    r.end_box()
+    path = tmp_path / "r.html"
+    r.write(path)
+    page = path.read_text(encoding="utf-8")
+    assert "<b>" not in page.replace("<body>", "")
+    assert "Project &lt;b&gt;" in page and "1,234.500" in page and "<table" in page
+    assert '<div class="truth">' in page and "1 warning(s)" in page
+    assert page.count("Caution.") == 2 and CAUTIONS.split(".")[0] in page

@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 import base64
-import html
+import dataclasses
+from dataclasses import dataclass
 from pathlib import Path
 
 import pandas as pd
 
-__all__ = ["CAUTIONS", "HtmlReport"]
+__all__ = ["CAUTIONS", "HtmlReport", "Part"]
 
 CAUTIONS = (
     "This output is a technical estimate produced by software from the data and settings "
@@ -29,12 +30,24 @@ th{background:#f0f0f0} .caution{background:#fff4e5;border:1px solid #e0a050;padd
 """
 
 
+@dataclass(frozen=True)
+class Part:
+    """One piece of the page: a heading, paragraph, table, image, or the opening or
+    closing of a boxed division (``text`` is its class)."""
+
+    kind: str
+    text: str = ""
+    html: str = ""  # a table, rendered by pandas (the tool's own markup)
+    data: str = ""  # an image, base64
+
+
 class HtmlReport:
-    """Collects sections, then writes one HTML file with every image embedded."""
+    """Collects the parts of a report, then writes one self-contained HTML page through
+    the template ``templates/report.html`` (text escaped; every image embedded)."""
 
     def __init__(self, title: str):
         self.title = title
-        self.parts: list[str] = []
+        self.parts: list[Part] = []
         self.warnings: list[str] = []
 
     def warn(self, text: str) -> None:
@@ -43,47 +56,54 @@ class HtmlReport:
 
     def heading(self, text: str) -> None:
         """A section heading."""
-        self.parts.append(f"<h2>{html.escape(text)}</h2>")
+        self.parts.append(Part("heading", text))
 
     def paragraph(self, text: str) -> None:
         """A paragraph of text (escaped)."""
-        self.parts.append(f"<p>{html.escape(text)}</p>")
+        self.parts.append(Part("paragraph", text))
 
     def table(self, frame: pd.DataFrame, *, digits: int = 3) -> None:
         """A table, numbers with ``digits`` decimals and thousands separators."""
-        self.parts.append(
-            frame.to_html(
-                index=False, float_format=lambda v: f"{v:,.{digits}f}", na_rep="–", border=0
-            )
+        rendered = frame.to_html(
+            index=False, float_format=lambda v: f"{v:,.{digits}f}", na_rep="–", border=0
         )
+        self.parts.append(Part("table", html=rendered))
 
     def image(self, path: Path, caption: str = "") -> None:
         """A PNG embedded in the page, with a caption."""
         data = base64.b64encode(Path(path).read_bytes()).decode("ascii")
-        cap = f"<figcaption>{html.escape(caption)}</figcaption>" if caption else ""
-        self.parts.append(
-            f'<figure><img alt="{html.escape(caption)}" src="data:image/png;base64,{data}">{cap}</figure>'
-        )
+        self.parts.append(Part("image", caption, data=data))
 
-    def raw(self, fragment: str) -> None:
-        """HTML written as given (the tool's own markup only)."""
-        self.parts.append(fragment)
+    def box(self, kind: str) -> None:
+        """Open a boxed division of class ``kind`` (e.g. ``truth``)."""
+        self.parts.append(Part("open", kind))
+
+    def end_box(self) -> None:
+        """Close the last division opened with :meth:`box`."""
+        self.parts.append(Part("close"))
+
+    def render(self) -> str:
+        """The page as text (cautions at top and bottom, warnings first)."""
+        import jinja2
+        import markupsafe
+
+        env = jinja2.Environment(
+            loader=jinja2.PackageLoader("blockmodel.report", "templates"),
+            autoescape=True,
+            undefined=jinja2.StrictUndefined,
+        )
+        parts = [
+            dataclasses.replace(p, html=markupsafe.Markup(p.html)) if p.kind == "table" else p
+            for p in self.parts
+        ]
+        return env.get_template("report.html").render(
+            title=self.title,
+            style=markupsafe.Markup(_STYLE),
+            cautions=CAUTIONS,
+            warnings=self.warnings,
+            parts=parts,
+        )
 
     def write(self, path: Path) -> None:
-        """Write the page (cautions at top and bottom, warnings first) to ``path``."""
-        caution = f'<div class="caution"><strong>Caution.</strong> {html.escape(CAUTIONS)}</div>'
-        warned = ""
-        if self.warnings:
-            items = "".join(f"<li>{html.escape(w)}</li>" for w in self.warnings)
-            warned = (
-                f'<div class="caution"><strong>{len(self.warnings)} warning(s) from this run'
-                f"</strong><ul>{items}</ul></div>"
-            )
-        doc = (
-            f"<!doctype html><html><head><meta charset='utf-8'><title>{html.escape(self.title)}</title>"
-            f"<style>{_STYLE}</style></head><body><h1>{html.escape(self.title)}</h1>{caution}"
-            + warned
-            + "\n".join(self.parts)
-            + f"{caution}</body></html>"
-        )
-        Path(path).write_text(doc, encoding="utf-8")
+        """Write the page to ``path``."""
+        Path(path).write_text(self.render(), encoding="utf-8")

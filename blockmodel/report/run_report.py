@@ -202,7 +202,7 @@ def render_grade_tonnage(
 
 
 def _truth_section(results: RunResults, report: HtmlReport) -> None:
-    report.raw('<div class="truth">')
+    report.box("truth")
     report.heading("Check against the known truth (demo only)")
     report.paragraph(
         "The demo deposit is invented, so its true block grades are known. This section "
@@ -212,4 +212,4 @@ def _truth_section(results: RunResults, report: HtmlReport) -> None:
         report.table(results.truth.figures)
     else:
         report.paragraph(results.truth.problem)
-    report.raw("</div>")
+    report.end_box()
