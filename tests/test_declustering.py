@@ -10,7 +10,8 @@ from .conftest import DEMO
 
 
 def test_regular_grid_gets_equal_weights():
-    # On a regular grid every cell holds one sample whatever the origin (Deutsch 1989).
+    # On a regular grid every cell holds one sample whatever the origin: equal weights
+    # (Journel 1983; follows from the definition of cell weights).
     g = np.arange(0, 100, 10.0) + 5
     pts = np.array(np.meshgrid(g, g, [0.0])).reshape(3, -1).T
     res = cell_declustering(pts, np.arange(len(pts), dtype=float), np.array([10.0]), grid_shifts=4)

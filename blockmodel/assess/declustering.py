@@ -4,8 +4,6 @@
 References
 ----------
 Journel, A. G. (1983), Nonparametric estimation of spatial distributions, Math. Geol. 15(3).
-Deutsch, C. V. (1989), DECLUS: a Fortran 77 program for determining optimum spatial
-declustering weights, Computers & Geosciences 15(3).
 Deutsch, C. V. (2015), Cell declustering parameter selection, Geostatistics Lessons.
 """
 
