@@ -84,3 +84,25 @@ def test_public_names():
 
     for name in ("Orientation", "Structure", "VariogramModel", "SearchEllipsoid", "krige"):
         assert name in bm.__all__ and hasattr(bm, name)
+
+
+def test_every_public_function_has_a_docstring():
+    """Module-level functions, classes and their methods not marked private (a leading
+    underscore) carry a docstring."""
+    missing = []
+    for path in sorted(PACKAGE.rglob("*.py")):
+        tree = ast.parse(path.read_text())
+        for node in tree.body:
+            if not isinstance(node, (ast.FunctionDef, ast.ClassDef)) or node.name.startswith("_"):
+                continue
+            if not ast.get_docstring(node):
+                missing.append(f"{path.relative_to(PACKAGE)}:{node.name}")
+            if isinstance(node, ast.ClassDef):
+                for item in node.body:
+                    if (
+                        isinstance(item, ast.FunctionDef)
+                        and not item.name.startswith("_")
+                        and not ast.get_docstring(item)
+                    ):
+                        missing.append(f"{path.relative_to(PACKAGE)}:{node.name}.{item.name}")
+    assert not missing, missing
