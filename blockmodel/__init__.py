@@ -12,9 +12,10 @@ krige, estimate
     Ordinary / simple kriging (point or block), inverse distance, nearest sample.
 """
 
-from blockmodel.estimation.kriging import discretisation_offsets, estimate, krige
+from blockmodel.estimation.kriging import estimate, krige
 from blockmodel.estimation.orientation import Orientation
 from blockmodel.estimation.search import SearchEllipsoid
+from blockmodel.estimation.systems import discretisation_offsets
 from blockmodel.variography.models import Structure, VariogramModel
 
 __all__ = [

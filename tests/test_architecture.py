@@ -12,6 +12,7 @@ CORE = [
     "estimation/orientation.py",
     "estimation/search.py",
     "estimation/kriging.py",
+    "estimation/systems.py",
     "estimation/_kernels.py",
     "estimation/_neighbours.py",
     "variography/models.py",

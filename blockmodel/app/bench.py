@@ -17,9 +17,9 @@ import time
 
 import numpy as np
 
-from blockmodel.estimation.kriging import DISCRETISATION
 from blockmodel.estimation.orientation import Orientation
 from blockmodel.estimation.search import SearchEllipsoid
+from blockmodel.estimation.systems import DISCRETISATION
 from blockmodel.variography.models import Structure, VariogramModel
 
 __all__ = ["main", "synthetic_composites"]

@@ -248,7 +248,7 @@ def change_of_support(
     total_tonnes : float
         Tonnes of the domain's estimated blocks; tonnage fractions are scaled by it.
     """
-    from blockmodel.estimation.kriging import block_covariance
+    from blockmodel.estimation.systems import block_covariance
 
     ana = empirical_anamorphosis(values, weights)
     cvv = block_covariance(model, block_size, discretisation)

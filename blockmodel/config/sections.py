@@ -7,8 +7,8 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from blockmodel.config.schema import setting
-from blockmodel.estimation.kriging import DISCRETISATION
 from blockmodel.estimation.search import MAX_SAMPLES, MIN_SAMPLES
+from blockmodel.estimation.systems import DISCRETISATION
 from blockmodel.variography.models import KINDS as _MODEL_KINDS
 
 __all__ = [

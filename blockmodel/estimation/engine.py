@@ -15,8 +15,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from blockmodel.estimation.kriging import DISCRETISATION, estimate
+from blockmodel.estimation.kriging import estimate
 from blockmodel.estimation.search import SearchEllipsoid
+from blockmodel.estimation.systems import DISCRETISATION
 from blockmodel.variography.models import VariogramModel
 
 __all__ = ["EstimationJob", "Progress", "run_job"]

@@ -24,24 +24,20 @@ from typing import TYPE_CHECKING
 import numpy as np
 from scipy.spatial import cKDTree
 
-from blockmodel.estimation import _kernels, _neighbours
+from blockmodel.estimation import _neighbours
 from blockmodel.estimation.search import SearchEllipsoid, find_neighbours
+from blockmodel.estimation.systems import (
+    DISCRETISATION,
+    KrigingSystems,
+)
 from blockmodel.variography.models import VariogramModel
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
-__all__ = [
-    "DISCRETISATION",
-    "METHODS",
-    "block_covariance",
-    "discretisation_offsets",
-    "estimate",
-    "krige",
-]
+__all__ = ["METHODS", "estimate", "krige"]
 
 METHODS = ("ordinary", "simple", "inverse_distance", "nearest")
-DISCRETISATION = (4, 4, 2)  # points per block along x, y, z, unless set otherwise
 
 #: Columns written by :func:`estimate`, in order.
 COLUMNS = (
@@ -62,7 +58,6 @@ COLUMNS = (
 )
 
 # A system whose smallest LU pivot is this small relative to the largest is flagged.
-_CONDITION_LIMIT = 1e-12
 
 
 def _lap(timings: dict[str, float] | None, key: str, since: float) -> float:
@@ -70,49 +65,6 @@ def _lap(timings: dict[str, float] | None, key: str, since: float) -> float:
     if timings is not None:
         timings[key] = timings.get(key, 0.0) + now - since
     return now
-
-
-def discretisation_offsets(
-    block_size: Sequence[float], discretisation: Sequence[int]
-) -> np.ndarray:
-    """Offsets from a block centre to the centres of a regular subdivision of the block.
-
-    Parameters
-    ----------
-    block_size : (3,) float, metres
-    discretisation : (3,) int, points along x, y, z
-
-    Returns
-    -------
-    (nx*ny*nz, 3) float64, metres, x fastest
-    """
-    size = np.asarray(block_size, dtype=np.float64)
-    counts = np.asarray(discretisation, dtype=np.int64)
-    if size.shape != (3,) or np.any(size <= 0):
-        raise ValueError(f"block_size must be three positive lengths, got {block_size!r}")
-    if counts.shape != (3,) or np.any(counts < 1):
-        raise ValueError(f"discretisation must be three counts >= 1, got {discretisation!r}")
-    axes = [((np.arange(c) + 0.5) / c - 0.5) * s for c, s in zip(counts, size, strict=True)]
-    gz, gy, gx = np.meshgrid(axes[2], axes[1], axes[0], indexing="ij")
-    return np.column_stack([gx.ravel(), gy.ravel(), gz.ravel()])
-
-
-def block_covariance(
-    model: VariogramModel, block_size: Sequence[float], discretisation: Sequence[int]
-) -> float:
-    """Mean covariance between the discretisation points of one block, ``C̄(V, V)``
-    (nugget excluded), in the model's units squared.
-
-    Parameters
-    ----------
-    model : VariogramModel
-    block_size : (3,) float, metres
-    discretisation : (3,) int
-        Points per block axis (centres of equal sub-cells).
-    """
-    kinds, sills, mats = model.packed()
-    offsets = discretisation_offsets(block_size, discretisation)
-    return float(_kernels.mean_block_covariance(offsets, kinds, sills, mats))
 
 
 def _as_points(name: str, a: np.ndarray) -> np.ndarray:
@@ -216,21 +168,11 @@ def estimate(
     out["merged_duplicates"] = np.array(merged)
 
     kriging = method in ("ordinary", "simple")
-    if kriging:
-        kinds, sills, mats = model.packed()
-        point_support = block_size is None
-        offsets = (
-            np.zeros((1, 3))
-            if point_support
-            else discretisation_offsets(block_size, discretisation)
-        )
-        cvv = (
-            model.total_sill
-            if point_support
-            else float(_kernels.mean_block_covariance(offsets, kinds, sills, mats))
-        )
-        samples_r = _kernels.reduced(local, mats)
-        offsets_r = np.ascontiguousarray(_kernels.reduced(offsets, mats).transpose(0, 2, 1))
+    system = (
+        KrigingSystems(model, local, block_size, discretisation, method == "simple", mean)
+        if kriging
+        else None
+    )
 
     remaining = np.arange(m)
     for number, s in enumerate(passes, start=1):
@@ -278,44 +220,11 @@ def estimate(
             if not kriging:
                 out["estimate"][tgt] = out[method][tgt]
                 continue
-            canonical = np.sort(idx, axis=1)
-            order, starts = _neighbours.group_rows(canonical)
-            res = {c: np.full(len(tgt), np.nan) for c in ("est", "var", "slope", "mu", "neg", "ws")}
-            flag = np.zeros(len(tgt), dtype=bool)
-            _kernels.krige_groups(
-                samples_r,
-                values,
-                np.ascontiguousarray(local_targets[tgt]),
-                offsets_r,
-                canonical,
-                cnt.astype(np.int64),
-                order,
-                starts,
-                kinds,
-                sills,
-                mats,
-                model.nugget,
-                cvv,
-                point_support,
-                method == "simple",
-                0.0 if mean is None else float(mean),
-                _CONDITION_LIMIT,
-                res["est"],
-                res["var"],
-                res["slope"],
-                res["mu"],
-                res["neg"],
-                res["ws"],
-                flag,
-            )
-            out["estimate"][tgt] = res["est"]
-            out["variance"][tgt] = res["var"]
-            out["slope"][tgt] = res["slope"]
-            out["efficiency"][tgt] = (cvv - res["var"]) / cvv
-            out["lagrange"][tgt] = res["mu"] if method == "ordinary" else np.nan
-            out["negative_weights"][tgt] = res["neg"]
-            out["weight_sum"][tgt] = res["ws"]
-            out["ill_conditioned"][tgt] = flag
+            res = system.solve(values, np.ascontiguousarray(local_targets[tgt]), idx, cnt)
+            for c, v in res.items():
+                out[c][tgt] = v
+            if method != "ordinary":
+                out["lagrange"][tgt] = np.nan
             _lap(timings, "kriging", clock)
         remaining = np.concatenate(not_found) if not_found else remaining[:0]
     return out
