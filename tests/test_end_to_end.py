@@ -35,6 +35,7 @@ FILES = [
     "experimental_variograms.csv",
     "cross_validation.csv",
     "swaths.csv",
+    "neighbourhood.csv",
 ]
 
 

@@ -46,6 +46,7 @@ def test_tables_read_back(written):
     _same(saved.composites, files.composites_table(results), "composites")
     _same(saved.declustering, results.declustering.table(results.project.grades), "declustering")
     _same(saved.experimental, files.experimental_table(results.variography), "experimental")
+    _same(saved.neighbourhood, results.neighbourhood.table(), "neighbourhood")
     _same(saved.cross_validation, files.cross_validation_table(results.validation), "cv")
     _same(saved.swaths, files.swaths_table(results.validation), "swaths")
     _same(saved.support, results.support.table(), "support")

@@ -59,6 +59,21 @@ def _parser() -> argparse.ArgumentParser:
     v.add_argument("--out", type=Path, help="output folder (default: beside the report folder)")
     v.add_argument("--replace", action="store_true", help=_REPLACE)
 
+    n = sub.add_parser(
+        "neighbourhood",
+        help="kriging neighbourhood analysis: test blocks under sweeps of search and block size",
+    )
+    n.add_argument("project", type=Path)
+    n.add_argument(
+        "--blocks",
+        nargs="+",
+        metavar="X,Y,Z",
+        default=[],
+        help="extra test blocks: the blocks holding these points (metres)",
+    )
+    n.add_argument("--out", type=Path, help="output folder (default: beside the report folder)")
+    n.add_argument("--replace", action="store_true", help=_REPLACE)
+
     a = sub.add_parser(
         "report", help="re-report an existing block model at new cut-offs or class rules"
     )
@@ -117,6 +132,32 @@ def _check_cutoffs(cut: list[float] | None) -> None:
         )
 
 
+def _points(texts: list[str]) -> list[tuple[float, float, float]]:
+    """``X,Y,Z`` texts as points; one clear message for a malformed one."""
+    out = []
+    for text in texts:
+        parts = text.split(",")
+        try:
+            point = tuple(float(p) for p in parts)
+        except ValueError:
+            point = ()
+        if len(point) != 3 or not all(abs(v) < 1e12 for v in point):
+            raise InputError(
+                [
+                    Problem(
+                        "command line",
+                        None,
+                        None,
+                        "--blocks",
+                        f"{text!r} is not a point X,Y,Z in metres (three numbers, commas, "
+                        "no spaces)",
+                    )
+                ]
+            )
+        out.append(point)
+    return out
+
+
 def _dispatch(args) -> None:
     """Call the command's function with the parsed arguments; print where it wrote."""
     if args.command == "bench":
@@ -159,6 +200,11 @@ def _dispatch(args) -> None:
             project, args.out, engine=engine, write_csv=args.csv or None, replace=args.replace
         )
         print(f"report written to {out}")
+    elif args.command == "neighbourhood":
+        out = commands.neighbourhood(
+            project, args.out, blocks=_points(args.blocks), replace=args.replace
+        )
+        print(f"neighbourhood analysis written to {out}")
     elif args.command == "variography":
         out = commands.run_variography(project, args.out, replace=args.replace)
         print(f"variography written to {out}")

@@ -8,6 +8,7 @@ import importlib.metadata
 import os
 import platform
 import sys
+from collections.abc import Sequence
 from pathlib import Path
 
 import pandas as pd
@@ -22,6 +23,7 @@ __all__ = [
     "check",
     "input_files",
     "make_demo",
+    "neighbourhood",
     "report_again",
     "run",
     "run_variography",
@@ -134,6 +136,60 @@ def run_variography(project: Project, out: Path | None = None, *, replace: bool 
         write_variography_files(project, decl, vario, staged.path)
         report.write(staged.path / "variography.html")
         staged.commit(_manifest("variography", project))
+    return staged.target
+
+
+def neighbourhood(
+    project: Project,
+    out: Path | None = None,
+    *,
+    blocks: Sequence[Sequence[float]] = (),
+    replace: bool = False,
+) -> Path:
+    """Kriging neighbourhood analysis alone: its page, figures and ``neighbourhood.csv``.
+
+    Parameters
+    ----------
+    blocks : sequence of (x, y, z), metres
+        Test blocks of the user's, besides the three chosen per domain.
+    """
+    from blockmodel.report.files import write_table
+    from blockmodel.report.neighbourhood_section import render_neighbourhood
+    from blockmodel.stages.composites import load_and_composite
+    from blockmodel.stages.declustering import decluster
+    from blockmodel.stages.domain_model import build_domain_model
+    from blockmodel.stages.neighbourhood import neighbourhood_analysis
+    from blockmodel.stages.variography import variography
+
+    folder = project.report.folder
+    out = Path(out) if out is not None else folder.with_name(f"{folder.name}_neighbourhood")
+    steps = _steps()
+    with OutputFolder(out, input_files(project), replace=replace) as staged:
+        report = HtmlReport(f"{project.name}: kriging neighbourhood analysis")
+        with steps("load, check and composite"):
+            comps = load_and_composite(project)
+        with steps("domain proportions and declustering"):
+            domains = build_domain_model(project, comps.table)
+            decl = decluster(project, comps.table, domains)
+        with steps("variography"):
+            vario = variography(project, comps.table, decl.weights)
+        for res in vario.values():
+            for message in res.warnings():
+                steps.warn(message)
+                report.warn(message)
+        models = {k: v.model for k, v in vario.items()}
+        with steps("neighbourhood analysis"):
+            result = neighbourhood_analysis(
+                project, comps.table, models, domains, decl, given=blocks
+            )
+        for message in result.warnings:
+            steps.warn(message)
+            report.warn(message)
+        with steps("figures"):
+            render_neighbourhood(result, staged.path, report, figures=True)
+        write_table(result.table(), staged.path / "neighbourhood.csv")
+        report.write(staged.path / "neighbourhood.html")
+        staged.commit(_manifest("neighbourhood", project, blocks=[list(b) for b in blocks]))
     return staged.target
 
 

@@ -201,6 +201,7 @@ def krige_groups(
     slope,
     lagrange,
     negative_weights,
+    negative_count,
     weight_sum,
     ill_conditioned,
 ):
@@ -222,7 +223,8 @@ def krige_groups(
     point_support, simple : bool
 
     Outputs (written in place, indexed by target): estimate, variance, slope, lagrange,
-    negative_weights (sum of negative weights), weight_sum, ill_conditioned (bool).
+    negative_weights (sum of negative weights), negative_count (how many), weight_sum,
+    ill_conditioned (bool).
 
     Notes
     -----
@@ -312,12 +314,14 @@ def krige_groups(
             lc = 0.0
             wsum = 0.0
             neg = 0.0
+            n_neg = 0.0
             for i in range(k):
                 w = rhs[i]
                 wsum += w
                 lc += w * cbar[i]
                 if w < 0.0:
                     neg += w
+                    n_neg += 1.0
                 if simple:
                     est += w * (values[idx[i]] - mean)
                 else:
@@ -331,4 +335,5 @@ def krige_groups(
             slope[b] = lc / var_est if var_est > 0.0 else np.nan
             lagrange[b] = mu
             negative_weights[b] = neg
+            negative_count[b] = n_neg
             weight_sum[b] = wsum

@@ -50,14 +50,13 @@ COLUMNS = (
     "mean_distance",
     "lagrange",
     "negative_weights",
+    "negative_count",
     "weight_sum",
     "ill_conditioned",
     "search_pass",
     "nearest",
     "inverse_distance",
 )
-
-# A system whose smallest LU pivot is this small relative to the largest is flagged.
 
 
 def _lap(timings: dict[str, float] | None, key: str, since: float) -> float:
@@ -277,7 +276,7 @@ def krige(
     -------
     pandas.DataFrame
         One row per target: ``estimate, variance, slope, efficiency, n_samples, n_holes,
-        mean_distance (metres), lagrange, negative_weights (sum), weight_sum,
+        mean_distance (metres), lagrange, negative_weights (sum), negative_count, weight_sum,
         ill_conditioned, search_pass (0 = not estimated), nearest, inverse_distance``.
         Estimates are NaN where no pass finds enough samples.  ``attrs["merged_duplicates"]``
         counts samples merged because they shared a location.

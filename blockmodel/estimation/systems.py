@@ -91,13 +91,13 @@ class KrigingSystems:
         )
 
     def solve(self, values, targets, idx, cnt) -> dict[str, np.ndarray]:
-        """Estimate, variance, slope, efficiency, Lagrange multiplier, negative weights,
-        weight sum and ill-conditioning of each target (n, 3) from its neighbours ``idx``
+        """Estimate, variance, slope, efficiency, Lagrange multiplier, sum and count of
+        negative weights, weight sum and ill-conditioning of each target (n, 3) from its neighbours ``idx``
         (first ``cnt`` of each row); targets sharing a neighbour set share one solve."""
         canonical = np.sort(idx, axis=1)
         order, starts = _neighbours.group_rows(canonical)
         n = len(targets)
-        res = {c: np.full(n, np.nan) for c in ("est", "var", "slope", "mu", "neg", "ws")}
+        res = {c: np.full(n, np.nan) for c in ("est", "var", "slope", "mu", "neg", "nneg", "ws")}
         flag = np.zeros(n, dtype=bool)
         _kernels.krige_groups(
             self.samples_r,
@@ -122,6 +122,7 @@ class KrigingSystems:
             res["slope"],
             res["mu"],
             res["neg"],
+            res["nneg"],
             res["ws"],
             flag,
         )
@@ -132,6 +133,7 @@ class KrigingSystems:
             "efficiency": (self.cvv - res["var"]) / self.cvv,
             "lagrange": res["mu"],
             "negative_weights": res["neg"],
+            "negative_count": res["nneg"],
             "weight_sum": res["ws"],
             "ill_conditioned": flag,
         }

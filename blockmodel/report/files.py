@@ -13,6 +13,7 @@ experimental_variograms.csv   every experimental variogram: domain, grade, direc
 normal_scores_D_G.csv         back-transform table (normal-score variography only)
 block_model.parquet           the block model (``block_model.csv`` on request)
 block_model.vti               the block model as a VTK image (x fastest)
+neighbourhood.csv             neighbourhood analysis: per test block and sweep point
 cross_validation.csv          per composite left out: true, estimate, error, variance
 swaths.csv                    per domain, axis and slice: kriged, nearest, composites
 change_of_support.csv         discrete Gaussian grade–tonnage curve per domain
@@ -182,6 +183,7 @@ def write_run_files(results, folder: Path, *, csv: bool = False) -> None:
     write_table(composites_table(results), folder / "composites.csv")
     write_variography_files(results.project, results.declustering, results.variography, folder)
     write_block_model(results.blocks, results.domains.grid, folder, csv=csv)
+    write_table(results.neighbourhood.table(), folder / "neighbourhood.csv")
     write_table(cross_validation_table(results.validation), folder / "cross_validation.csv")
     write_table(swaths_table(results.validation), folder / "swaths.csv")
     if results.support.by_domain:
@@ -197,6 +199,7 @@ class SavedRun:
     declustering: pd.DataFrame
     models: dict[str, VariogramModel]
     experimental: pd.DataFrame
+    neighbourhood: pd.DataFrame
     blocks: pd.DataFrame
     cross_validation: pd.DataFrame
     swaths: pd.DataFrame
@@ -204,7 +207,19 @@ class SavedRun:
     grade_tonnage: pd.DataFrame
 
 
-TEXT_COLUMNS = ("domain", "hole", "class", "grade", "direction", "axis", "metal_unit", "note")
+TEXT_COLUMNS = (
+    "domain",
+    "hole",
+    "class",
+    "grade",
+    "direction",
+    "axis",
+    "metal_unit",
+    "note",
+    "block",
+    "sweep",
+    "setting",
+)
 
 
 def read_table(path: Path) -> pd.DataFrame:
@@ -228,6 +243,7 @@ def read_run(folder: Path) -> SavedRun:
         declustering=read_table(folder / "declustering.csv"),
         models=read_models(folder / "variogram_models.toml"),
         experimental=read_table(folder / "experimental_variograms.csv"),
+        neighbourhood=read_table(folder / "neighbourhood.csv"),
         blocks=pd.read_parquet(folder / "block_model.parquet"),
         cross_validation=read_table(folder / "cross_validation.csv"),
         swaths=read_table(folder / "swaths.csv"),

@@ -14,6 +14,7 @@ __all__ = [
     "declustering_figure",
     "direction_map_figure",
     "grade_tonnage_figure",
+    "neighbourhood_figure",
     "swath_figure",
     "variogram_figure",
 ]
@@ -176,4 +177,59 @@ def cross_validation_figure(cv, path: Path, grade: str, unit: str, title: str) -
     )
     ax.legend()
     ax.grid(alpha=0.3)
+    save_png(fig, path)
+
+
+def neighbourhood_figure(rows, labels: dict, path: Path, title: str, note: str) -> None:
+    """Slope of regression and kriging efficiency of one test block against each sweep's
+    settings (one panel per sweep, the project's setting marked), with ``note`` (the
+    block, its place and the drill spacing) in the last panel.
+
+    Parameters
+    ----------
+    rows : DataFrame
+        The block's rows of the analysis table (``sweep, setting, value, current, slope,
+        efficiency``).
+    labels : dict of sweep name to axis label
+    """
+    plt = pyplot()
+    sweeps = list(dict.fromkeys(rows["sweep"]))
+    fig, axes = plt.subplots(2, 4, figsize=(15, 6.8))
+    flat = axes.ravel()
+    for ax, sweep in zip(flat, sweeps, strict=False):
+        part = rows[rows["sweep"] == sweep]
+        x = np.arange(len(part))
+        ax.plot(x, part["slope"], "-o", ms=4, color="#2c7fb8", label="slope of regression")
+        ax.plot(x, part["efficiency"], "--s", ms=4, color="#d95f0e", label="kriging efficiency")
+        now = np.flatnonzero(part["current"].to_numpy())
+        for i in now:
+            ax.axvline(i, color="#444444", ls=":", lw=1.2)
+            ax.annotate(
+                "project",
+                (i, 1.0),
+                xycoords=("data", "axes fraction"),
+                ha="center",
+                va="bottom",
+                fontsize=8,
+                color="#444444",
+            )
+        ax.set_xticks(x)
+        ax.set_xticklabels(
+            part["setting"],
+            rotation=45 if len(part) > 7 else 0,
+            fontsize=8,
+            ha="right" if len(part) > 7 else "center",
+        )
+        ax.set_xlabel(labels[sweep], fontsize=9)
+        ax.axhline(1.0, color="grey", lw=0.6)
+        ax.axhline(0.0, color="grey", lw=0.6)
+        ax.grid(alpha=0.3)
+    for ax in axes[:, 0]:
+        ax.set_ylabel("slope / efficiency (ratio)")
+    flat[0].legend(fontsize=8, loc="lower right")
+    for ax in flat[len(sweeps) :]:
+        ax.axis("off")
+    flat[-1].text(0.0, 1.0, note, va="top", ha="left", fontsize=9, wrap=True)
+    fig.suptitle(title, fontsize=11)
+    fig.tight_layout()
     save_png(fig, path)

@@ -11,6 +11,7 @@ import pandas as pd
 from blockmodel.config.project import Project
 from blockmodel.report.files import safe_stem
 from blockmodel.report.html import HtmlReport
+from blockmodel.report.neighbourhood_section import render_neighbourhood
 from blockmodel.report.variography_section import render_variography
 from blockmodel.report.views_section import render_views
 from blockmodel.stages.run import RunResults
@@ -28,6 +29,11 @@ def render_run(results: RunResults, folder: Path, steps) -> HtmlReport:
     _data_sections(project, comps, report)
     with steps("declustering and variogram plots"):
         render_variography(project, results.declustering, results.variography, folder, report)
+    render_neighbourhood(results.neighbourhood, folder, report, figures=False)
+    report.paragraph(
+        "Figures of slope and efficiency against each setting: blockmodel neighbourhood "
+        "PROJECT.toml."
+    )
     _estimation_section(results, report)
     with steps("validation plots"):
         _validation_section(results, folder, report)

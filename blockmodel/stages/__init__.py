@@ -5,6 +5,7 @@ writes no file; none changes another's output.
 2. :mod:`~blockmodel.stages.domain_model` — the grid and each block's share of each domain
 3. :mod:`~blockmodel.stages.declustering` — declustering weights and statistics
 4. :mod:`~blockmodel.stages.variography` — experimental variograms and the model
+   :mod:`~blockmodel.stages.neighbourhood` — kriging neighbourhood analysis
 5. :mod:`~blockmodel.stages.estimate` — the block model, estimated and classified
 6. :mod:`~blockmodel.stages.checks` — what the estimate cannot be trusted for
 7. :mod:`~blockmodel.stages.validation` — cross-validation, swaths, global bias
@@ -25,6 +26,7 @@ from blockmodel.stages.domain_model import (
     model_proportions,
 )
 from blockmodel.stages.estimate import classify, estimate_block_model
+from blockmodel.stages.neighbourhood import Neighbourhood, neighbourhood_analysis
 from blockmodel.stages.run import EngineOptions, RunResults, Steps, run_stages
 from blockmodel.stages.support import Support, support_curves
 from blockmodel.stages.tables import TruthCheck, grade_tonnage_tables, truth_check
@@ -37,6 +39,7 @@ __all__ = [
     "DomainDeclustering",
     "DomainModel",
     "EngineOptions",
+    "Neighbourhood",
     "RunResults",
     "Steps",
     "Support",
@@ -53,6 +56,7 @@ __all__ = [
     "hole_spacing",
     "load_and_composite",
     "model_proportions",
+    "neighbourhood_analysis",
     "run_stages",
     "support_curves",
     "truth_check",

@@ -15,6 +15,7 @@ from blockmodel.stages.composites import Composites, load_and_composite
 from blockmodel.stages.declustering import Declustering, decluster
 from blockmodel.stages.domain_model import DomainModel, build_domain_model
 from blockmodel.stages.estimate import classify, estimate_block_model
+from blockmodel.stages.neighbourhood import Neighbourhood, neighbourhood_analysis
 from blockmodel.stages.support import Support, support_curves
 from blockmodel.stages.tables import TruthCheck, grade_tonnage_tables, truth_check
 from blockmodel.stages.validation import Validation, validate
@@ -67,6 +68,7 @@ class RunResults:
     domains: DomainModel
     declustering: Declustering
     variography: dict[str, Variography]
+    neighbourhood: Neighbourhood
     blocks: pd.DataFrame  # estimated and classified
     validation: Validation
     support: Support
@@ -104,6 +106,8 @@ def run_stages(project: Project, steps: Steps, engine: EngineOptions | None = No
         for message in res.warnings():
             warn(message)
     models = {k: v.model for k, v in vario.items()}
+    with steps("neighbourhood analysis"):
+        neighbourhood = neighbourhood_analysis(project, composites.table, models, domains, decl)
     with steps("estimation"):
         blocks = estimate_block_model(
             project,
@@ -136,6 +140,7 @@ def run_stages(project: Project, steps: Steps, engine: EngineOptions | None = No
         domains,
         decl,
         vario,
+        neighbourhood,
         blocks,
         validation,
         support,
