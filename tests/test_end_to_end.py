@@ -36,6 +36,8 @@ FILES = [
     "cross_validation.csv",
     "swaths.csv",
     "neighbourhood.csv",
+    "statement.csv",
+    "statement.xlsx",
 ]
 
 

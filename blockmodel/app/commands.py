@@ -245,9 +245,9 @@ def report_again(
 ) -> Path:
     """Re-report an existing block model at new cut-offs or classification rules."""
     from blockmodel.report.files import write_grade_tonnage
-    from blockmodel.report.run_report import render_grade_tonnage
+    from blockmodel.report.run_report import render_grade_tonnage, render_statement
     from blockmodel.stages.estimate import classify
-    from blockmodel.stages.tables import grade_tonnage_tables
+    from blockmodel.stages.tables import grade_tonnage_tables, statement_tables
 
     staged = OutputFolder(out, [*input_files(project), block_model], replace=replace)
     with staged:
@@ -258,8 +258,10 @@ def report_again(
         cutoffs = cutoffs or project.report.cutoffs
         report = HtmlReport(f"{project.name}: grade–tonnage re-report of {Path(block_model).name}")
         tables = grade_tonnage_tables(project, blocks, cutoffs)
+        statements = statement_tables(project, tables)
+        render_statement(project, statements, report)
         render_grade_tonnage(project, tables, staged.path, report)
-        write_grade_tonnage(tables, staged.path)
+        write_grade_tonnage(project, tables, statements, staged.path)
         report.write(staged.path / "report.html")
         staged.commit(
             _manifest(

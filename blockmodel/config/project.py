@@ -72,6 +72,13 @@ class Project:
         """The search passes of a domain: its own, or the project's."""
         return self.domain(domain).search or self.search
 
+    def statement_cutoff(self, domain: str) -> float:
+        """The statement's reporting cut-off of ``domain``: its own, or the lowest report
+        cut-off above zero (zero when there is none)."""
+        if domain in self.report.statement_cutoffs:
+            return self.report.statement_cutoffs[domain]
+        return min((c for c in self.report.cutoffs if c > 0), default=0.0)
+
     def domain(self, name: str) -> Domain:
         """The domain called ``name``."""
         return next(d for d in self.domains if d.name == name)
@@ -160,6 +167,12 @@ def _check_values(p: Project, r: Reader) -> None:
             "report.cutoffs",
             f"'report.cutoffs' must be non-negative and strictly increasing; got {cut}",
         )
+    for name in p.report.statement_cutoffs:
+        if name not in names:
+            r.fail(
+                f"report.statement_cutoffs.{name}",
+                f"unknown domain '{name}'; domains are {', '.join(names)}",
+            )
     sweep = p.declustering.cell_sizes
     if not sweep.smallest < sweep.largest:
         r.fail(

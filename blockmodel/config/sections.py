@@ -369,3 +369,10 @@ class Report:
         (0.0, 0.5, 1.0, 1.5, 2.0, 3.0, 5.0), doc="cut-off grades, increasing", low=0.0
     )
     write_csv: bool = setting(False, doc="also write the block model as CSV")
+    statement_cutoffs: dict[str, float] = setting(
+        doc="reporting cut-off of the statement table per domain; a domain not named takes "
+        "the lowest report cut-off above zero",
+        low=0.0,
+        entry="DOMAIN",
+        factory=dict,
+    )

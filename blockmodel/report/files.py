@@ -18,6 +18,8 @@ cross_validation.csv          per composite left out: true, estimate, error, var
 swaths.csv                    per domain, axis and slice: kriged, nearest, composites
 change_of_support.csv         discrete Gaussian grade–tonnage curve per domain
 grade_tonnage.csv             kriged blocks at each cut-off, per domain and class
+statement.csv                 the statement table (unrounded), per grade, domain and class
+statement.xlsx                the statement, one sheet per grade, and the grade–tonnage tables
 ============================  =========================================================
 """
 
@@ -44,6 +46,7 @@ __all__ = [
     "write_grade_tonnage",
     "write_models",
     "write_run_files",
+    "write_statement_workbook",
     "write_table",
     "write_variography_files",
 ]
@@ -148,10 +151,37 @@ def write_variography_files(project, declustering, variography: dict, folder: Pa
             write_table(table, folder / f"normal_scores_{safe_stem(key.replace('.', '_'))}.csv")
 
 
-def write_grade_tonnage(tables: dict[str, pd.DataFrame], folder: Path) -> None:
-    """``grade_tonnage.csv`` for the first grade, ``grade_tonnage_G.csv`` for the others."""
+def write_grade_tonnage(
+    project, tables: dict[str, pd.DataFrame], statements: dict[str, pd.DataFrame], folder: Path
+) -> None:
+    """``grade_tonnage.csv`` for the first grade (``grade_tonnage_G.csv`` for the others),
+    ``statement.csv`` and the spreadsheet ``statement.xlsx``."""
     for n, (g, gt) in enumerate(tables.items()):
         write_table(gt, folder / ("grade_tonnage.csv" if n == 0 else f"grade_tonnage_{g}.csv"))
+    stacked = pd.concat([s.assign(grade_name=g) for g, s in statements.items()], ignore_index=True)
+    stacked = stacked[["grade_name", *[c for c in stacked.columns if c != "grade_name"]]]
+    write_table(stacked, folder / "statement.csv")
+    write_statement_workbook(project, tables, statements, folder / "statement.xlsx")
+
+
+def write_statement_workbook(
+    project, tables: dict[str, pd.DataFrame], statements: dict[str, pd.DataFrame], path: Path
+) -> None:
+    """One sheet per grade with its statement table (unrounded, units in the headers) and
+    one with every grade–tonnage table; openpyxl writes it."""
+    with pd.ExcelWriter(path, engine="openpyxl") as book:
+        for g, s in statements.items():
+            unit = project.data.grades[g]
+            sheet = s.rename(
+                columns={
+                    "cutoff": f"cut-off ({unit})",
+                    "tonnes": "tonnes (t)",
+                    "grade": f"grade ({unit})",
+                }
+            )
+            sheet.to_excel(book, sheet_name=f"statement {g}"[:31], index=False)
+        frames = [gt.assign(grade_name=g) for g, gt in tables.items()]
+        pd.concat(frames, ignore_index=True).to_excel(book, sheet_name="grade-tonnage", index=False)
 
 
 def composites_table(results) -> pd.DataFrame:
@@ -188,7 +218,7 @@ def write_run_files(results, folder: Path, *, csv: bool = False) -> None:
     write_table(swaths_table(results.validation), folder / "swaths.csv")
     if results.support.by_domain:
         write_table(results.support.table(), folder / "change_of_support.csv")
-    write_grade_tonnage(results.tables, folder)
+    write_grade_tonnage(results.project, results.tables, results.statements, folder)
 
 
 @dataclass(frozen=True)
@@ -216,6 +246,7 @@ TEXT_COLUMNS = (
     "axis",
     "metal_unit",
     "note",
+    "grade_name",
     "block",
     "sweep",
     "setting",

@@ -16,7 +16,7 @@ from blockmodel.report.variography_section import render_variography
 from blockmodel.report.views_section import render_views
 from blockmodel.stages.run import RunResults
 
-__all__ = ["render_grade_tonnage", "render_run"]
+__all__ = ["render_grade_tonnage", "render_run", "render_statement"]
 
 
 def render_run(results: RunResults, folder: Path, steps) -> HtmlReport:
@@ -26,6 +26,7 @@ def render_run(results: RunResults, folder: Path, steps) -> HtmlReport:
     report = HtmlReport(f"{project.name}: block model estimate")
     for message in results.warnings:
         report.warn(message)
+    render_statement(project, results.statements, report)
     _data_sections(project, comps, report)
     with steps("declustering and variogram plots"):
         render_variography(project, results.declustering, results.variography, folder, report)
@@ -170,41 +171,85 @@ def _support_section(results: RunResults, folder: Path, report: HtmlReport) -> N
         )
 
 
+def render_statement(
+    project: Project, statements: dict[str, pd.DataFrame], report: HtmlReport
+) -> None:
+    """The statement table of each grade, rounded as public statements are, with its
+    footnotes; shown first in the report."""
+    from blockmodel.report.tables import STATEMENT_ROUNDING, rounded_statement
+
+    for g, s in statements.items():
+        unit = project.data.grades[g]
+        report.heading(f"Statement of estimated tonnes and grade: {g} ({unit})")
+        shown = rounded_statement(s).rename(
+            columns={
+                "cut-off": f"cut-off ({unit})",
+                "tonnes": "tonnes (t)",
+                "grade": f"grade ({unit})",
+            }
+        )
+        report.table(shown)
+        cut = ", ".join(
+            f"{d} {c:g} {unit}"
+            for d, c in s.dropna(subset=["cutoff"])
+            .groupby("domain", sort=False)["cutoff"]
+            .first()
+            .items()
+        )
+        report.paragraph(
+            f"Reporting cut-offs: {cut}. {STATEMENT_ROUNDING} Classes are proposals from "
+            "numeric rules: a Competent or Qualified Person classifies, under the reporting "
+            "code in force, and states the resource with reasonable prospects for eventual "
+            "economic extraction. Spreadsheet: statement.xlsx."
+        )
+
+
 def render_grade_tonnage(
     project: Project, tables: dict[str, pd.DataFrame], folder: Path, report: HtmlReport
 ) -> None:
-    """The grade–tonnage curves per domain and the report's tables, rounded for reading."""
+    """Per grade and domain, a table with cut-off rows and class columns (tonnes, grade,
+    metal; rounded, no false decimals) and the curves per class; the curves per domain."""
     from blockmodel.report import plots
+    from blockmodel.report.tables import grade_tonnage_pivot
 
     for g, gt in tables.items():
         unit = project.data.grades[g]
         first_unit = gt["metal_unit"].iloc[0]
-        main = gt[(gt["metal_unit"] == first_unit) & (gt["class"] == "all")]
+        main = gt[gt["metal_unit"] == first_unit]
+        report.heading(f"Grade–tonnage: {g}")
+        report.paragraph(
+            "Tonnes, grade and metal of estimated blocks at or above each cut-off, rounded to "
+            "three significant figures (tonnes to no finer than 1,000 t); the CSV keeps full "
+            f"precision. Metal in {first_unit} (also {', '.join(gt['metal_unit'].unique()[1:]) or 'no other unit'} in the CSV)."
+        )
+        totals = main[main["class"] == "all"]
         curves = {
-            f"{dom}": (
+            ("all domains" if dom == "all" else dom): (
                 part["cutoff"].to_numpy(),
                 part["tonnes"].to_numpy(),
                 part["grade"].to_numpy(),
             )
-            for dom, part in main.groupby("domain", sort=False)
+            for dom, part in totals.groupby("domain", sort=False)
         }
         p = folder / f"grade_tonnage_{safe_stem(g)}.png"
-        plots.grade_tonnage_figure(curves, p, unit, f"Grade–tonnage, {g} (kriged blocks)")
-        report.heading(f"Grade–tonnage: {g}")
-        report.paragraph(
-            "Tonnes and grade of estimated blocks at or above each cut-off, rounded for reading; "
-            f"the CSV keeps full precision. Metal in {', '.join(gt['metal_unit'].unique())}."
-        )
-        units = list(gt["metal_unit"].unique())
-        shown = gt[gt["metal_unit"] == units[0]].drop(columns=["metal_unit", "metal", "note"])
-        for u in units:  # one metal column per unit; rows come in the same order per unit
-            shown[u] = gt.loc[gt["metal_unit"] == u, "metal"].to_numpy()
-        shown["tonnes"] = shown["tonnes"].round(-3)
-        shown["grade"] = shown["grade"].round(2)
-        for u in units:
-            shown[u] = shown[u].round(-2)
-        report.table(shown, digits=2)
-        report.image(p, f"Grade–tonnage curves, {g}")
+        plots.grade_tonnage_figure(curves, p, unit, f"Grade–tonnage by domain, {g} (kriged blocks)")
+        report.image(p, f"Grade–tonnage curves by domain, {g}")
+        for dom in dict.fromkeys(main["domain"]):
+            label = "all domains" if dom == "all" else dom
+            report.paragraph(f"{label}:")
+            report.table(grade_tonnage_pivot(main[main["domain"] == dom], unit, first_unit))
+            part = main[main["domain"] == dom]
+            curves = {
+                ("all classes" if cls == "all" else cls): (
+                    rows["cutoff"].to_numpy(),
+                    rows["tonnes"].to_numpy(),
+                    rows["grade"].to_numpy(),
+                )
+                for cls, rows in part.groupby("class", sort=False)
+            }
+            p = folder / f"grade_tonnage_{safe_stem(g)}_{safe_stem(label.replace(' ', '_'))}.png"
+            plots.grade_tonnage_figure(curves, p, unit, f"Grade–tonnage by class, {label}, {g}")
+            report.image(p, f"Grade–tonnage curves by class, {label}, {g}")
 
 
 def _truth_section(results: RunResults, report: HtmlReport) -> None:

@@ -17,7 +17,12 @@ from blockmodel.stages.domain_model import DomainModel, build_domain_model
 from blockmodel.stages.estimate import classify, estimate_block_model
 from blockmodel.stages.neighbourhood import Neighbourhood, neighbourhood_analysis
 from blockmodel.stages.support import Support, support_curves
-from blockmodel.stages.tables import TruthCheck, grade_tonnage_tables, truth_check
+from blockmodel.stages.tables import (
+    TruthCheck,
+    grade_tonnage_tables,
+    statement_tables,
+    truth_check,
+)
 from blockmodel.stages.validation import Validation, validate
 from blockmodel.stages.variography import Variography, variography
 
@@ -73,6 +78,7 @@ class RunResults:
     validation: Validation
     support: Support
     tables: dict[str, pd.DataFrame]
+    statements: dict[str, pd.DataFrame]
     truth: TruthCheck | None
     warnings: tuple[str, ...]
     timings: dict[str, float] = field(default_factory=dict)
@@ -131,6 +137,7 @@ def run_stages(project: Project, steps: Steps, engine: EngineOptions | None = No
         warn(message)
     with steps("grade-tonnage"):
         tables = grade_tonnage_tables(project, blocks, project.report.cutoffs)
+        statements = statement_tables(project, tables)
         truth = truth_check(project, domains.grid, blocks)
     if truth is not None and truth.problem:
         warn(truth.problem)
@@ -145,6 +152,7 @@ def run_stages(project: Project, steps: Steps, engine: EngineOptions | None = No
         validation,
         support,
         tables,
+        statements,
         truth,
         tuple(warnings),
         dict(steps.timings),

@@ -1,5 +1,5 @@
-"""Stage 9: grade–tonnage tables of the classified block model, and the comparison with
-the known truth of an invented deposit."""
+"""Stage 9: grade–tonnage and statement tables of the classified block model, and the
+comparison with the known truth of an invented deposit."""
 
 from __future__ import annotations
 
@@ -10,17 +10,56 @@ import pandas as pd
 
 from blockmodel.config.project import Project
 from blockmodel.model.grid import BlockGrid
-from blockmodel.report.tables import grade_tonnage
+from blockmodel.report.tables import grade_tonnage, statement
 
-__all__ = ["TruthCheck", "grade_tonnage_tables", "truth_check"]
+__all__ = [
+    "TruthCheck",
+    "class_order",
+    "grade_tonnage_tables",
+    "statement_cutoffs",
+    "statement_tables",
+    "truth_check",
+]
+
+
+def class_order(project: Project) -> list[str]:
+    """The project's classes in confidence order: its rules in order, then the fallback."""
+    names = [r.name for r in project.classification.rules] + [project.classification.fallback]
+    return list(dict.fromkeys(names))
+
+
+def statement_cutoffs(project: Project) -> dict[str, float]:
+    """Reporting cut-off of every estimated domain (:meth:`Project.statement_cutoff`)."""
+    return {d.name: project.statement_cutoff(d.name) for d in project.domains if d.estimate}
 
 
 def grade_tonnage_tables(
     project: Project, blocks: pd.DataFrame, cutoffs: Sequence[float]
 ) -> dict[str, pd.DataFrame]:
-    """Per grade (project order), tonnes, grade and metal at or above each cut-off, per
-    domain and class with totals (:func:`blockmodel.report.tables.grade_tonnage`)."""
-    return {g: grade_tonnage(blocks, g, project.data.grades[g], cutoffs) for g in project.grades}
+    """Per grade (project order), tonnes, grade and metal at or above each cut-off and at
+    each domain's reporting cut-off, per domain and class with totals
+    (:func:`blockmodel.report.tables.grade_tonnage`)."""
+    every = sorted({*cutoffs, *statement_cutoffs(project).values()})
+    order = class_order(project)
+    return {
+        g: grade_tonnage(blocks, g, project.data.grades[g], every, class_order=order)
+        for g in project.grades
+    }
+
+
+def statement_tables(project: Project, tables: dict[str, pd.DataFrame]) -> dict[str, pd.DataFrame]:
+    """Per grade, the statement table at each domain's reporting cut-off (unrounded)."""
+    cut = statement_cutoffs(project)
+    order = class_order(project)
+    return {
+        g: statement(
+            gt,
+            project.data.grades[g],
+            {d: c for d, c in cut.items() if (gt["domain"] == d).any()},
+            order,
+        )
+        for g, gt in tables.items()
+    }
 
 
 @dataclass(frozen=True)
