@@ -34,6 +34,17 @@ def test_same_seed_reproduces_committed_files(regenerated, name):
     assert filecmp.cmp(regenerated / name, DEMO / name, shallow=False)
 
 
+def test_make_demo_writes_a_runnable_project(regenerated, capsys):
+    """The packaged project file is the committed demo's, reporting into the new folder."""
+    from blockmodel.app.cli import main
+    from blockmodel.demo.deposit import PROJECT_REPORT_FOLDER
+
+    written = (regenerated / "project.toml").read_text()
+    old, new = PROJECT_REPORT_FOLDER
+    assert written == (DEMO / "project.toml").read_text().replace(old, new)
+    assert main(["check", str(regenerated / "project.toml")]) == 0, capsys.readouterr().err
+
+
 def test_truth_blocks_reproduced(regenerated):
     pd.testing.assert_frame_equal(
         pd.read_parquet(regenerated / "truth_blocks.parquet"),

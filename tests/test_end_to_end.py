@@ -94,7 +94,21 @@ def test_runs_are_deterministic(two_runs):
     ma, mb = (json.loads((p / "manifest.json").read_text()) for p in two_runs)
     ma.pop("timings_s"), mb.pop("timings_s")
     assert ma == mb
-    assert set(ma["inputs_sha256"]) >= {str(DEMO / "assays.csv")}
+    assert set(ma["inputs_sha256"]) >= {"assays.csv", "lode.ply", "project.toml"}
+
+
+def test_report_and_manifest_name_no_path_of_this_machine(two_runs):
+    """Paths are relative to the project file's folder, so a report passed on reads the
+    same anywhere (the data warnings name 'assays.csv', the configuration 'collars.csv')."""
+    a, _ = two_runs
+    for name in ("report.html", "manifest.json"):
+        text = (a / name).read_text(encoding="utf-8")
+        assert str(DEMO) not in text and str(DEMO.parent) not in text, name
+    manifest = json.loads((a / "manifest.json").read_text())
+    assert manifest["project"] == "project.toml"
+    assert manifest["configuration"]["data"]["collars"] == "collars.csv"
+    assert manifest["configuration"]["report"]["folder"] == "../reports/demo"
+    assert ">assays.csv<" in (a / "report.html").read_text(encoding="utf-8")
 
 
 def test_vti_cell_order(two_runs):

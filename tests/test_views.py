@@ -89,3 +89,33 @@ def test_3d_render_off_screen_not_blank(grid_and_blocks, tmp_path, column):
     colours, share = _distinct_colours(path)
     assert share > 0.1
     assert colours > (200 if column == "au" else 4)
+
+
+def test_3d_render_prints_no_display_warning(grid_and_blocks, tmp_path, capfd, monkeypatch):
+    """Rendering off-screen on a machine with no display once printed VTK's 'bad X server
+    connection' warning with raw colour codes on every run and view."""
+    from blockmodel.report.views import render_view
+
+    monkeypatch.delenv("DISPLAY", raising=False)
+    grid, b = grid_and_blocks
+    render_view(grid, b, "au", tmp_path / "v.png", unit="g/t", window_size=(400, 300))
+    err = capfd.readouterr().err
+    assert "X server" not in err and "\x1b[" not in err, err
+
+
+def test_view_without_display_or_png_stops(box_site, capsys, monkeypatch):
+    """With no display and no --png a view once exited 0 having done nothing."""
+    from blockmodel.app.cli import main
+
+    monkeypatch.delenv("DISPLAY", raising=False)
+    monkeypatch.delenv("WAYLAND_DISPLAY", raising=False)
+    monkeypatch.setattr("sys.platform", "linux")
+    code = main(
+        [
+            "view",
+            str(box_site / "data" / "project.toml"),
+            str(box_site / "out" / "block_model.parquet"),
+        ]
+    )
+    err = capsys.readouterr().err
+    assert code == 2 and "--png" in err and "Traceback" not in err

@@ -14,7 +14,7 @@ from pathlib import Path
 import pandas as pd
 
 from blockmodel.app.outputs import OutputFolder, atomic_path, file_hash, need_file
-from blockmodel.config.project import Project, resolved
+from blockmodel.config.project import Project, relative, resolved
 from blockmodel.errors import InputError, Problem
 from blockmodel.report.html import CAUTIONS, HtmlReport
 from blockmodel.stages.run import EngineOptions, Steps
@@ -99,8 +99,9 @@ def _manifest(command: str, project: Project, **extra) -> dict:
     """What a report folder's ``manifest.json`` records of the command that wrote it."""
     return {
         "command": command,
-        "project": str(project.source),
-        "inputs_sha256": {str(p): file_hash(p) for p in input_files(project)},
+        "project": project.source.name,
+        "paths": "relative to the project file's folder",
+        "inputs_sha256": {relative(p, project): file_hash(p) for p in input_files(project)},
         "configuration": resolved(project),
         "versions": _versions(),
         "cautions": CAUTIONS,
@@ -267,7 +268,7 @@ def report_again(
             _manifest(
                 "report",
                 project,
-                block_model=str(block_model),
+                block_model=relative(block_model, project),
                 block_model_sha256=file_hash(block_model),
                 cutoffs=list(cutoffs),
             )
@@ -307,6 +308,11 @@ def view(
     from blockmodel.stages.domain_model import block_model_grid
 
     need_file(block_model)
+    if png is None and not has_display():
+        raise InputError(
+            "this machine has no display for a window: pass --png FILE to write the view "
+            "to an image"
+        )
     if png is not None:
         _check_png_target(png, [*input_files(project), block_model])
     if kind in ("plan", "section") and png is None:
@@ -352,6 +358,14 @@ def view(
     finally:
         if tmp is not None:
             tmp.unlink(missing_ok=True)
+
+
+def has_display() -> bool:
+    """Whether a window can open here: on Linux and other X11 or Wayland systems, a
+    ``DISPLAY`` or ``WAYLAND_DISPLAY``; macOS and Windows always have one."""
+    if sys.platform in ("darwin", "win32"):
+        return True
+    return bool(os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"))
 
 
 def _check_png_target(png: Path, inputs: list[Path]) -> None:

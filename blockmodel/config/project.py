@@ -35,7 +35,7 @@ from blockmodel.config.sections import (
 )
 from blockmodel.errors import InputError, Problem
 
-__all__ = ["Project", "grid_memory_bytes", "load_project", "resolved"]
+__all__ = ["Project", "grid_memory_bytes", "load_project", "relative", "resolved"]
 
 
 @dataclass(frozen=True)
@@ -252,8 +252,15 @@ def load_project(path: str | Path) -> Project:
     return project
 
 
+def relative(path, project: Project) -> str:
+    """``path`` as written relative to the project file's folder (``/`` separators), so a
+    report names files the same way on every machine."""
+    return Path(os.path.relpath(Path(path), project.source.parent)).as_posix()
+
+
 def resolved(project: Project) -> dict:
-    """The full configuration, defaults included, as plain JSON-ready values."""
+    """The full configuration, defaults included, as plain JSON-ready values; paths
+    relative to the project file's folder."""
 
     def plain(v):
         if dataclasses.is_dataclass(v):
@@ -263,7 +270,7 @@ def resolved(project: Project) -> dict:
         if isinstance(v, (list, tuple)):
             return [plain(x) for x in v]
         if isinstance(v, Path):
-            return str(v)
+            return relative(v, project)
         return v
 
     return plain(project)

@@ -39,7 +39,22 @@ DEMO_FILES = (
     "halo.ply",
     "topography.ply",
     "truth_blocks.parquet",
+    "project.toml",
 )
+# the demo's project file ships in the package; a new demo folder reports into itself
+PROJECT_REPORT_FOLDER = ('folder = "../reports/demo"', 'folder = "report"')
+
+
+def demo_project_text() -> str:
+    """The demo's project file as ``make-demo`` writes it (report folder inside it)."""
+    from importlib.resources import files
+
+    text = files("blockmodel.demo").joinpath("project.toml").read_text(encoding="utf-8")
+    old, new = PROJECT_REPORT_FOLDER
+    if old not in text:
+        raise RuntimeError("the packaged demo project has no report folder line")
+    return text.replace(old, new)
+
 
 SEED = 20261201
 ORIGIN = np.array([512000.0, 7034000.0, 900.0])  # minimum corner of the demo block grid
@@ -324,7 +339,8 @@ def truth_blocks(deposit: DemoDeposit):
 
 
 def write_demo(folder: Path, seed: int = SEED) -> DemoDeposit:
-    """Write the demo's data files (CSV tables, PLY surfaces, true block grades).
+    """Write the demo's data files (CSV tables, PLY surfaces, true block grades) and a
+    project file that runs on them, reporting into ``folder/report``.
 
     Never overwrites: if any of the files exists already, nothing is written and
     :class:`~blockmodel.errors.InputError` names them.  Each file is written under a
@@ -354,6 +370,7 @@ def write_demo(folder: Path, seed: int = SEED) -> DemoDeposit:
         "halo.ply": lambda p: write_ply(p, halo_surface()),
         "topography.ply": lambda p: write_ply(p, topography_surface()),
         "truth_blocks.parquet": lambda p: truth_blocks(deposit).to_parquet(p, index=False),
+        "project.toml": lambda p: p.write_text(demo_project_text(), encoding="utf-8"),
     }
     for name in DEMO_FILES:
         tmp = atomic_path(folder / name)

@@ -76,12 +76,14 @@ def _data_sections(project: Project, comps, report: HtmlReport) -> None:
             f"{project.data.below_detection_factor} x the limit; {holes.missing[g]} missing."
         )
     if holes.warnings:
-        report.table(
-            pd.DataFrame(
-                [w.row() for w in holes.warnings],
-                columns=["file", "line", "hole", "field", "warning"],
-            )
+        from blockmodel.config.project import relative
+
+        table = pd.DataFrame(
+            [w.row() for w in holes.warnings],
+            columns=["file", "line", "hole", "field", "warning"],
         )
+        table["file"] = [relative(f, project) if f else "" for f in table["file"]]
+        report.table(table)
     report.heading("Compositing and capping")
     c = comps.compositing
     report.paragraph(

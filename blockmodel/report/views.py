@@ -108,6 +108,16 @@ def render_view(
     """
     import pyvista as pv
 
+    # VTK tries an X window before falling back to off-screen EGL and logs a warning on
+    # the way; only its errors are worth the user's attention
+    with pv.vtk_verbosity("error"):
+        _render(
+            pv, grid, blocks, column, path, unit, slices, cutoff, composites, solids, window_size
+        )
+
+
+def _render(pv, grid, blocks, column, path, unit, slices, cutoff, composites, solids, window_size):
+    """The body of :func:`render_view`."""
     categorical = blocks[column].dtype.kind in "OUS"
     image = block_image(grid, blocks, [column])
     plotter = pv.Plotter(off_screen=path is not None, window_size=list(window_size))
