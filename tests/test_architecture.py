@@ -107,3 +107,18 @@ def test_every_public_function_has_a_docstring():
                     ):
                         missing.append(f"{path.relative_to(PACKAGE)}:{node.name}.{item.name}")
     assert not missing, missing
+
+
+def test_package_import_is_light_and_every_public_name_resolves():
+    """``import blockmodel`` (and so ``blockmodel --help``) loads neither numba, scipy,
+    pandas nor matplotlib; each public name is imported on first use."""
+    code = (
+        "import sys, blockmodel\n"
+        "heavy = {'numba', 'scipy', 'pandas', 'matplotlib', 'pyvista'}\n"
+        "print(sorted(k for k in sys.modules if k.split('.')[0] in heavy))\n"
+        "missing = [n for n in blockmodel.__all__ if getattr(blockmodel, n, None) is None]\n"
+        "print(missing)"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    loaded, missing = out.stdout.strip().splitlines()
+    assert loaded == "[]" and missing == "[]", out.stdout

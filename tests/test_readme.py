@@ -52,3 +52,15 @@ def test_readme_table_of_keys_is_made_from_the_declarations():
 
     text = (REPO / "README.md").read_text(encoding="utf-8")
     assert with_table(text) == text, "run: python3 -m blockmodel.config.schema README.md"
+
+
+def test_notebook_example_runs(box_project, capsys):
+    """The README's notebook example runs as written (on the box project, for time)."""
+    text = (REPO / "README.md").read_text(encoding="utf-8")
+    section = text.split("## In a notebook", 1)[1].split("\n## ", 1)[0]
+    (code,) = re.findall(r"```python\n(.*?)\n```", section, flags=re.S)
+    assert "demo_drillholes/project.toml" in code
+    exec(code.replace("demo_drillholes/project.toml", str(box_project)), {})
+    out = capsys.readouterr().out
+    assert "Measured + Indicated" in out or "Total" in out
+    assert "estimate" in out

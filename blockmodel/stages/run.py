@@ -89,9 +89,12 @@ class RunResults:
         return {k: v.model for k, v in self.variography.items()}
 
 
-def run_stages(project: Project, steps: Steps, engine: EngineOptions | None = None) -> RunResults:
-    """Every stage of a run in order; warnings go to ``steps.warn`` as they arise and are
-    kept, in order, in the result."""
+def run_stages(
+    project: Project, steps: Steps | None = None, engine: EngineOptions | None = None
+) -> RunResults:
+    """Every stage of a run in order; warnings go to ``steps.warn`` as they arise (quiet
+    without ``steps``) and are kept, in order, in the result."""
+    steps = steps or Steps(lambda message: None, lambda message: None)
     engine = engine or EngineOptions()
     warnings: list[str] = []
 
