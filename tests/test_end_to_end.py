@@ -38,6 +38,12 @@ FILES = [
     "neighbourhood.csv",
     "statement.csv",
     "statement.xlsx",
+    "collar_plan.png",
+    "composites_lode_au.png",
+    "plan_variance.png",
+    "plan_slope.png",
+    "plan_pass.png",
+    "grade_tonnage_au_lode.png",
 ]
 
 

@@ -119,3 +119,20 @@ def test_view_without_display_or_png_stops(box_site, capsys, monkeypatch):
     )
     err = capsys.readouterr().err
     assert code == 2 and "--png" in err and "Traceback" not in err
+
+
+def test_axes_show_numbers_in_full():
+    """Projected coordinates once showed as a '+7.034e6' offset above the axis."""
+    from blockmodel.report.figures import pyplot, tidy_axes
+
+    plt = pyplot()
+    fig, ax = plt.subplots()
+    ax.plot([512000.0, 512400.0], [7034000.0, 7034480.0])
+    tidy_axes(fig)
+    fig.canvas.draw()
+    assert ax.yaxis.get_offset_text().get_text() == ""
+    assert ax.xaxis.get_offset_text().get_text() == ""
+    assert len(ax.get_yticks()) <= 9  # at most seven inside, one either side
+    labels = [t.get_text() for t in ax.get_yticklabels() if t.get_text()]
+    assert any(text.startswith("7034") for text in labels), labels
+    plt.close(fig)

@@ -10,7 +10,14 @@ import numpy as np
 
 from blockmodel.report.figures import CLASS_COLOURS, GRADE_CMAP, pyplot, save_png
 
-__all__ = ["column_unit", "composite_segments", "per_block", "plan_figure", "section_figure"]
+__all__ = [
+    "collar_plan_figure",
+    "column_unit",
+    "composite_segments",
+    "per_block",
+    "plan_figure",
+    "section_figure",
+]
 
 
 def _norm(values, vmin=None, vmax=None):
@@ -325,4 +332,38 @@ def section_figure(
     ax.set_ylabel("elevation (m)")
     ax.set_title(f"Section along {azimuth:.0f}°, width {width:.0f} m: {column}")
     ax.grid(alpha=0.2)
+    save_png(fig, path)
+
+
+def collar_plan_figure(collars, composites, spacing: dict[str, float], path: Path) -> None:
+    """Plan of the drilling: collars, hole traces (from the composites) coloured by domain,
+    and the drill spacing of each domain in the legend.
+
+    Parameters
+    ----------
+    collars : DataFrame ``hole, x, y``
+    composites : DataFrame ``hole, from, x, y, domain``
+    spacing : dict of domain to drill spacing, metres
+    """
+    plt = pyplot()
+    fig, ax = plt.subplots(figsize=(7.5, 7.5))
+    ordered = composites.sort_values(["hole", "from"], kind="stable")
+    for _, part in ordered.groupby("hole", sort=False):
+        ax.plot(part["x"], part["y"], "-", color="#999999", lw=0.6, zorder=1)
+    palette = ["#0072B2", "#E69F00", "#009E73", "#CC79A7", "#56B4E9", "#D55E00"]
+    for n, (name, part) in enumerate(ordered.groupby("domain", sort=False)):
+        if name not in spacing:
+            continue
+        gap = spacing[name]
+        label = f"{name} (drill spacing {gap:.0f} m)" if np.isfinite(gap) else name
+        ax.plot(part["x"], part["y"], ".", ms=2, color=palette[n % len(palette)], label=label)
+    ax.plot(collars["x"], collars["y"], "k+", ms=5, label="collars")
+    ax.set_aspect("equal")
+    ax.set_xlabel("east (m)")
+    ax.set_ylabel("north (m)")
+    ax.grid(alpha=0.3)
+    ax.legend(fontsize=8, loc="best")
+    ext = ax.axis()
+    _north_and_scale(ax, ext)
+    ax.set_title("Collars and hole traces; composites coloured by domain", fontsize=10)
     save_png(fig, path)

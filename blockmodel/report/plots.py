@@ -10,6 +10,7 @@ import numpy as np
 from blockmodel.report.figures import GRADE_CMAP, pyplot, save_png
 
 __all__ = [
+    "composites_figure",
     "cross_validation_figure",
     "declustering_figure",
     "direction_map_figure",
@@ -36,15 +37,18 @@ def variogram_figure(res, path: Path, unit: str) -> None:
             ax.annotate(
                 str(p), (d, v), textcoords="offset points", xytext=(0, 5), fontsize=6, ha="center"
             )
-        if res.model is not None and n < 3:
+        along = axes_vec[n] if n < 3 else res.downhole_direction
+        if res.model is not None and along is not None:
             hmax = max(float(np.nanmax(ev.distance[ok], initial=1.0)), 1.0) * 1.1
             h = np.linspace(0, hmax, 200)
             # the model is in grade units; draw it in the experimental variogram's units
-            gam = res.model.variogram(h[:, None] * axes_vec[n][None, :]) / res.scale
+            gam = res.model.variogram(h[:, None] * np.asarray(along)[None, :]) / res.scale
             ax.plot(h, gam, "-", color="#d95f0e", label="model")
+        if res.model is not None:
+            ax.axhline(res.model.nugget / res.scale, color="#d95f0e", ls=":", lw=1, label="nugget")
         title = ("major", "semi", "minor", "downhole")[n]
         if n < 3:
-            title += f" (az {dirs[n][0]:.0f}, plunge {dirs[n][1]:.0f})"
+            title += f" (az {int(round(dirs[n][0])) % 360}, plunge {int(round(dirs[n][1]))})"
         ax.set_title(title, fontsize=9)
         ax.set_xlabel("distance (m)")
         ax.grid(alpha=0.3)
@@ -134,9 +138,12 @@ def grade_tonnage_figure(
 
 def swath_figure(tables: dict[str, object], path: Path, grade: str, unit: str, title: str) -> None:
     """Swath plots (one per axis): kriged, nearest-sample and declustered composite means per slice, with composite counts."""
+    from matplotlib.ticker import MaxNLocator
+
     plt = pyplot()
-    fig, axes = plt.subplots(1, len(tables), figsize=(5 * len(tables), 3.8))
+    fig, axes = plt.subplots(1, len(tables), figsize=(5.6 * len(tables), 4.2))
     for ax, (axis, t) in zip(np.atleast_1d(axes), tables.items(), strict=True):
+        ax.xaxis.set_major_locator(MaxNLocator(nbins=4))
         ax.plot(t["centre"], t["kriged"], "-o", ms=3, label="kriged")
         ax.plot(t["centre"], t["nearest"], "-s", ms=3, label="nearest sample")
         ax.plot(t["centre"], t["composites"], "-^", ms=3, label="declustered composites")
@@ -154,6 +161,7 @@ def swath_figure(tables: dict[str, object], path: Path, grade: str, unit: str, t
         ax.grid(alpha=0.3)
     np.atleast_1d(axes)[0].legend(fontsize=7)
     fig.suptitle(title, fontsize=10)
+    fig.tight_layout(w_pad=2.5)
     save_png(fig, path)
 
 
@@ -232,4 +240,59 @@ def neighbourhood_figure(rows, labels: dict, path: Path, title: str, note: str) 
     flat[-1].text(0.0, 1.0, note, va="top", ha="left", fontsize=9, wrap=True)
     fig.suptitle(title, fontsize=11)
     fig.tight_layout()
+    save_png(fig, path)
+
+
+def composites_figure(
+    values: np.ndarray,
+    weights: np.ndarray,
+    cap,
+    path: Path,
+    title: str,
+    unit: str,
+) -> None:
+    """Histogram (log grade axis, declustering-weighted) and log-probability plot of one
+    domain's composite grades before capping, with the cap and the metal it removes.
+
+    Parameters
+    ----------
+    values : (n,) float64, grade units, uncapped
+    weights : (n,) float64, declustering weights
+    cap : CappingSummary or None
+    """
+    from scipy.stats import norm
+
+    plt = pyplot()
+    ok = np.isfinite(values) & (values > 0)
+    v, w = values[ok], weights[ok]
+    fig, (left, right) = plt.subplots(1, 2, figsize=(12, 4.2))
+    bins = np.logspace(np.log10(v.min()), np.log10(v.max()), 40) if len(v) > 1 else 10
+    left.hist(v, bins=bins, weights=w / w.sum() * 100, color="#2c7fb8", alpha=0.8)
+    left.set_xscale("log")
+    left.set_xlabel(f"grade ({unit}, log scale)")
+    left.set_ylabel("share of composites, declustered (%)")
+    order = np.argsort(v)
+    cdf = (np.cumsum(w[order]) - 0.5 * w[order]) / w.sum()
+    right.plot(v[order], norm.ppf(cdf), ".", ms=3, color="#2c7fb8")
+    right.set_xscale("log")
+    probs = np.array([0.001, 0.01, 0.1, 0.5, 0.9, 0.99, 0.999])
+    right.set_yticks(norm.ppf(probs))
+    right.set_yticklabels([f"{100 * p:g}" for p in probs])
+    right.set_xlabel(f"grade ({unit}, log scale)")
+    right.set_ylabel("cumulative probability (%), declustered")
+    for ax in (left, right):
+        ax.grid(alpha=0.3, which="both")
+        if cap is not None:
+            ax.axvline(cap.limit, color="#d95f0e", lw=1.5)
+    if cap is not None:
+        right.annotate(
+            f"cap {cap.limit:.3g} {unit}: {cap.capped} of {cap.composites} composites cut, "
+            f"{cap.metal_removed_percent:.1f} % of the metal removed",
+            (0.02, 0.95),
+            xycoords="axes fraction",
+            fontsize=8,
+            va="top",
+            color="#d95f0e",
+        )
+    fig.suptitle(title, fontsize=10)
     save_png(fig, path)

@@ -28,6 +28,7 @@ def render_run(results: RunResults, folder: Path, steps) -> HtmlReport:
         report.warn(message)
     render_statement(project, results.statements, report)
     _data_sections(project, comps, report)
+    _evidence(results, folder, report)
     with steps("declustering and variogram plots"):
         render_variography(project, results.declustering, results.variography, folder, report)
     render_neighbourhood(results.neighbourhood, folder, report, figures=False)
@@ -98,6 +99,35 @@ def _data_sections(project: Project, comps, report: HtmlReport) -> None:
     for g in project.grades:  # counts are whole numbers
         stats[f"{g} count"] = stats[f"{g} count"].astype(int)
     report.table(stats)
+
+
+def _evidence(results: RunResults, folder: Path, report: HtmlReport) -> None:
+    """The drilling in plan with the drill spacing, and each domain's composite grades
+    (histogram and log-probability) with the cap and the metal it removes."""
+    from blockmodel.report import maps, plots
+
+    project, comps = results.project, results.composites
+    spacing = {name: d.spacing for name, d in results.neighbourhood.by_domain.items()}
+    p = folder / "collar_plan.png"
+    maps.collar_plan_figure(comps.holes.collars, comps.table, spacing, p)
+    report.image(p, "Collars and hole traces in plan, with each domain's drill spacing")
+    g = project.grades[0]
+    caps = {(c.domain, c.grade): c for c in comps.capping}
+    column = f"{g}_uncapped" if f"{g}_uncapped" in comps.table else g
+    for d in project.domains:
+        rows = ((comps.table["domain"] == d.name) & comps.table[g].notna()).to_numpy()
+        if not rows.any():
+            continue
+        p = folder / f"composites_{safe_stem(d.name)}_{safe_stem(g)}.png"
+        plots.composites_figure(
+            comps.table.loc[rows, column].to_numpy(float),
+            results.declustering.weights[rows],
+            caps.get((d.name, g)),
+            p,
+            f"Composite grades, {d.name} {g} (before capping)",
+            project.data.grades[g],
+        )
+        report.image(p, f"Histogram and log-probability plot of composites, {d.name}")
 
 
 def _estimation_section(results: RunResults, report: HtmlReport) -> None:

@@ -9,6 +9,7 @@ import pandas as pd
 
 from blockmodel.config.project import Project
 from blockmodel.model.grid import BlockGrid
+from blockmodel.report.files import safe_stem
 from blockmodel.report.html import HtmlReport
 
 __all__ = ["render_views"]
@@ -44,6 +45,19 @@ def render_views(
     p = folder / "plan.png"
     maps.plan_figure(blocks, grid, primary, float(centre[2]), p, unit, composites=composites)
     report.image(p, f"Plan through the centre of the {main} domain")
+    from blockmodel.report.maps import column_unit
+
+    for what, words in (
+        ("variance", "kriging variance"),
+        ("slope", "slope of regression"),
+        ("pass", "search pass"),
+    ):
+        column = f"{primary}_{what}"
+        p = folder / f"plan_{safe_stem(what)}.png"
+        maps.plan_figure(
+            blocks, grid, column, float(centre[2]), p, column_unit(column, project.data.grades)
+        )
+        report.image(p, f"Plan of the {words} through the centre of the {main} domain")
     # across strike: a right angle to the major axis of the main domain's model
     model = models.get(f"{main}.{primary}")
     strike_normal = (

@@ -51,6 +51,7 @@ class Variography:
     scan: dict | None = None
     orientation_fit: OrientationFit | None = None  # when the orientation was found from data
     fit: FittedModel | None = None  # when the model was fitted
+    downhole_direction: np.ndarray | None = None  # (3,) mean direction of the holes
 
     def warnings(self) -> list[str]:
         """What a reader must know about how far to trust this model."""
@@ -194,9 +195,9 @@ def _one(
             **common,
         )
     fit = None
+    along = _mean_hole_direction(sub)
     if model is None:
         fitted_to = [(e, a) for a, e in enumerate(directional)]
-        along = _mean_hole_direction(sub)
         if along is not None:  # the short lags down the holes fix the nugget
             fitted_to.append((downhole, along))
         try:
@@ -226,6 +227,7 @@ def _one(
         scan=scan,
         orientation_fit=orientation_fit,
         fit=fit,
+        downhole_direction=along,
     )
 
 
