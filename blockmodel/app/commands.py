@@ -259,7 +259,7 @@ def report_again(
         cutoffs = cutoffs or project.report.cutoffs
         report = HtmlReport(f"{project.name}: grade–tonnage re-report of {Path(block_model).name}")
         tables = grade_tonnage_tables(project, blocks, cutoffs)
-        statements = statement_tables(project, tables)
+        statements = statement_tables(project, tables, cutoffs)
         render_statement(project, statements, report)
         render_grade_tonnage(project, tables, staged.path, report)
         write_grade_tonnage(project, tables, statements, staged.path)

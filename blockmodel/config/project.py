@@ -72,12 +72,13 @@ class Project:
         """The search passes of a domain: its own, or the project's."""
         return self.domain(domain).search or self.search
 
-    def statement_cutoff(self, domain: str) -> float:
-        """The statement's reporting cut-off of ``domain``: its own, or the lowest report
-        cut-off above zero (zero when there is none)."""
+    def statement_cutoff(self, domain: str, cutoffs=None) -> float:
+        """The statement's reporting cut-off of ``domain``: its own, or the lowest of the
+        report cut-offs (``cutoffs``, default the project's) above zero (zero when none)."""
         if domain in self.report.statement_cutoffs:
             return self.report.statement_cutoffs[domain]
-        return min((c for c in self.report.cutoffs if c > 0), default=0.0)
+        cutoffs = self.report.cutoffs if cutoffs is None else cutoffs
+        return min((c for c in cutoffs if c > 0), default=0.0)
 
     def domain(self, name: str) -> Domain:
         """The domain called ``name``."""

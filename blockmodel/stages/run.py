@@ -140,7 +140,7 @@ def run_stages(
         warn(message)
     with steps("grade-tonnage"):
         tables = grade_tonnage_tables(project, blocks, project.report.cutoffs)
-        statements = statement_tables(project, tables)
+        statements = statement_tables(project, tables, project.report.cutoffs)
         truth = truth_check(project, domains.grid, blocks)
     if truth is not None and truth.problem:
         warn(truth.problem)

@@ -28,9 +28,12 @@ def class_order(project: Project) -> list[str]:
     return list(dict.fromkeys(names))
 
 
-def statement_cutoffs(project: Project) -> dict[str, float]:
-    """Reporting cut-off of every estimated domain (:meth:`Project.statement_cutoff`)."""
-    return {d.name: project.statement_cutoff(d.name) for d in project.domains if d.estimate}
+def statement_cutoffs(project: Project, cutoffs: Sequence[float]) -> dict[str, float]:
+    """Reporting cut-off of every estimated domain (:meth:`Project.statement_cutoff`) when
+    reporting at ``cutoffs``."""
+    return {
+        d.name: project.statement_cutoff(d.name, cutoffs) for d in project.domains if d.estimate
+    }
 
 
 def grade_tonnage_tables(
@@ -39,7 +42,7 @@ def grade_tonnage_tables(
     """Per grade (project order), tonnes, grade and metal at or above each cut-off and at
     each domain's reporting cut-off, per domain and class with totals
     (:func:`blockmodel.report.tables.grade_tonnage`)."""
-    every = sorted({*cutoffs, *statement_cutoffs(project).values()})
+    every = sorted({*cutoffs, *statement_cutoffs(project, cutoffs).values()})
     order = class_order(project)
     return {
         g: grade_tonnage(blocks, g, project.data.grades[g], every, class_order=order)
@@ -47,9 +50,12 @@ def grade_tonnage_tables(
     }
 
 
-def statement_tables(project: Project, tables: dict[str, pd.DataFrame]) -> dict[str, pd.DataFrame]:
-    """Per grade, the statement table at each domain's reporting cut-off (unrounded)."""
-    cut = statement_cutoffs(project)
+def statement_tables(
+    project: Project, tables: dict[str, pd.DataFrame], cutoffs: Sequence[float]
+) -> dict[str, pd.DataFrame]:
+    """Per grade, the statement table at each domain's reporting cut-off (unrounded) when
+    reporting at ``cutoffs``."""
+    cut = statement_cutoffs(project, cutoffs)
     order = class_order(project)
     return {
         g: statement(
