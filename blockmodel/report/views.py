@@ -117,91 +117,144 @@ def render_view(
 
 
 def _render(pv, grid, blocks, column, path, unit, slices, cutoff, composites, solids, window_size):
-    """The body of :func:`render_view`."""
+    """The body of :func:`render_view`: each slice is the one layer of blocks it cuts,
+    drawn as blocks with the drillholes near it and the solids' outlines in its plane;
+    the camera frames the blocks shown, looking across a single slice."""
     categorical = blocks[column].dtype.kind in "OUS"
     image = block_image(grid, blocks, [column])
     plotter = pv.Plotter(off_screen=path is not None, window_size=list(window_size))
     plotter.set_background("white")
+    bar_common = {
+        "color": "black",
+        "vertical": True,
+        "position_x": 0.89,
+        "position_y": 0.15,
+        "height": 0.7,
+        "width": 0.05,
+        "title_font_size": 16,
+        "label_font_size": 14,
+    }
     if categorical:
         from matplotlib.colors import ListedColormap
 
         cmap = ListedColormap(list(CLASS_COLOURS.values()))
         clim = [-0.5, len(CLASS_COLOURS) - 0.5]  # each label in the middle of its colour
-        bar = {"title": "class", "n_labels": 0, "color": "black", "width": 0.7, "position_x": 0.15}
+        bar = {**bar_common, "title": "class\n", "n_labels": 0}
         annotations = {float(n): name for n, name in enumerate(CLASS_COLOURS)}
     else:
         cmap = GRADE_CMAP
         v = image.cell_data[column]
         clim = [float(np.nanpercentile(v, 1)), float(np.nanpercentile(v, 99))]
-        bar = {"title": f"{column} ({unit})" if unit else column, "color": "black"}
+        bar = {
+            **bar_common,
+            "title": (f"{column} ({unit})" if unit else column) + "\n",
+            "fmt": "%.3g",
+        }
         annotations = None
+    shown = []
     if cutoff is not None and not categorical:
-        shown = image.threshold(value=cutoff, scalars=column)
-        plotter.add_mesh(
-            shown, scalars=column, cmap=cmap, clim=clim, scalar_bar_args=bar, show_edges=False
-        )
+        mesh = image.threshold(value=cutoff, scalars=column)
+        if mesh.n_cells:
+            shown.append(mesh)
     else:
         centre = np.asarray(grid.origin) + np.asarray(grid.shape) * np.asarray(grid.block_size) / 2
         pos = slices or tuple(centre)
-        for axis, p in zip("xyz", pos, strict=True):
+        for n, p in enumerate(pos):
             if p is None:
                 continue
-            normal = {"x": (1, 0, 0), "y": (0, 1, 0), "z": (0, 0, 1)}[axis]
-            origin = centre.copy()
-            origin["xyz".index(axis)] = p
-            sl = image.slice(normal=normal, origin=origin)
-            sl = (
-                sl.threshold(value=(-1e300, 1e300), scalars=column) if sl.n_cells else sl
-            )  # drop empty blocks
-            if sl.n_cells:
-                plotter.add_mesh(
-                    sl,
-                    scalars=column,
-                    cmap=cmap,
-                    clim=clim,
-                    scalar_bar_args=bar,
-                    annotations=annotations,
-                    nan_opacity=0.0,
-                )
+            layer = int(np.floor((p - grid.origin[n]) / grid.block_size[n]))
+            if not 0 <= layer < grid.shape[n]:
+                continue
+            voi = [0, grid.shape[0], 0, grid.shape[1], 0, grid.shape[2]]
+            voi[2 * n], voi[2 * n + 1] = layer, layer + 1  # point indices bounding one layer
+            slab = image.extract_subset(voi).threshold(value=(-1e300, 1e300), scalars=column)
+            if slab.n_cells:
+                shown.append(slab)
+    for mesh in shown:
+        plotter.add_mesh(
+            mesh,
+            scalars=column,
+            cmap=cmap,
+            clim=clim,
+            scalar_bar_args=bar,
+            annotations=annotations,
+            show_edges=False,
+        )
+    planes = (
+        []
+        if cutoff is not None or slices is None
+        else [(n, p) for n, p in enumerate(slices) if p is not None]
+    )
     if composites is not None and len(composites):
-        if cutoff is None and slices is not None:
+        if planes:
             # only the drilling near the slice planes, so it does not hide them
             near = np.zeros(len(composites), dtype=bool)
-            for axis, p in zip("xyz", slices, strict=True):
-                if p is not None:
-                    near |= (
-                        np.abs(composites[axis].to_numpy(float) - p)
-                        <= 2 * grid.block_size["xyz".index(axis)]
-                    )
+            for n, p in planes:
+                near |= np.abs(composites["xyz"[n]].to_numpy(float) - p) <= 2 * grid.block_size[n]
             composites = composites[near]
-        traces = _traces(composites, column if column in composites and not categorical else None)
-        if "grade" in traces.point_data:
-            plotter.add_mesh(
-                traces,
-                scalars="grade",
-                cmap=cmap,
-                clim=clim,
-                line_width=5,
-                render_lines_as_tubes=True,
-                show_scalar_bar=False,
+        if len(composites):
+            traces = _traces(
+                composites, column if column in composites and not categorical else None
             )
-        else:
-            plotter.add_mesh(traces, color="black", line_width=2)
+            if "grade" in traces.point_data:
+                plotter.add_mesh(
+                    traces,
+                    scalars="grade",
+                    cmap=cmap,
+                    clim=clim,
+                    line_width=5,
+                    render_lines_as_tubes=True,
+                    show_scalar_bar=False,
+                )
+            else:
+                plotter.add_mesh(traces, color="black", line_width=2)
     for s in solids or []:
         faces = np.column_stack([np.full(len(s.triangles), 3), s.triangles]).ravel()
-        plotter.add_mesh(pv.PolyData(s.vertices, faces), color="grey", opacity=0.15)
-    plotter.show_bounds(
+        surface = pv.PolyData(s.vertices, faces)
+        if planes:  # the solid's outline in each slice plane
+            for n, p in planes:
+                normal = np.eye(3)[n]
+                cut = surface.slice(
+                    normal=normal, origin=normal * p + (1 - normal) * s.vertices.mean(axis=0)
+                )
+                if cut.n_points:
+                    plotter.add_mesh(cut, color="black", line_width=2)
+        else:
+            plotter.add_mesh(surface, color="grey", opacity=0.15)
+    bounds = _bounds(shown) if shown else image.bounds
+    # orientation arrows and the slice positions in words read better at report size
+    # than VTK's 3D axis labels
+    plotter.add_axes(xlabel="E", ylabel="N", zlabel="Up", color="black", line_width=3)
+    where = "; ".join(f"{'xyz'[n]} = {p:,.1f} m" for n, p in planes)
+    size = " x ".join(f"{b:g}" for b in grid.block_size)
+    plotter.add_text(
+        (f"slice {where}; " if where else "") + f"blocks {size} m",
+        position="upper_left",
+        font_size=11,
         color="black",
-        font_size=8,
-        xtitle="east (m)",
-        ytitle="north (m)",
-        ztitle="elevation (m)",
-        fmt="%.0f",
     )
-    plotter.view_isometric()
+    if len(planes) == 1:  # look across the single slice, a little from above
+        n = planes[0][0]
+        view = {0: (1.0, 0.25, 0.35), 1: (0.25, -1.0, 0.35), 2: (0.0, 0.0, 1.0)}[n]
+        up = (0.0, 1.0, 0.0) if n == 2 else (0.0, 0.0, 1.0)
+        plotter.view_vector(view, viewup=up)
+    else:
+        plotter.view_isometric()
+    plotter.reset_camera(bounds=bounds)
+    plotter.camera.zoom(0.9)
     if path is None:
         plotter.show()
     else:
         image = plotter.screenshot(None, return_img=True)
         plotter.close()
         _write_png(image, path)
+
+
+def _bounds(meshes) -> tuple[float, ...]:
+    """Bounds (xmin, xmax, ymin, ymax, zmin, zmax) holding every mesh."""
+    b = np.array([m.bounds for m in meshes], dtype=np.float64)
+    return tuple(
+        float(v)
+        for pair in zip(b[:, 0::2].min(axis=0), b[:, 1::2].max(axis=0), strict=True)
+        for v in pair
+    )
