@@ -44,6 +44,7 @@ FILES = [
     "plan_slope.png",
     "plan_pass.png",
     "grade_tonnage_au_lode.png",
+    "swath_by_class_lode.png",
 ]
 
 

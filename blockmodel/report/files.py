@@ -15,7 +15,7 @@ block_model.parquet           the block model (``block_model.csv`` on request)
 block_model.vti               the block model as a VTK image (x fastest)
 neighbourhood.csv             neighbourhood analysis: per test block and sweep point
 cross_validation.csv          per composite left out: true, estimate, error, variance
-swaths.csv                    per domain, axis and slice: kriged, nearest, composites
+swaths.csv                    per domain, class (all: every block), axis and slice
 change_of_support.csv         discrete Gaussian grade–tonnage curve per domain
 grade_tonnage.csv             kriged blocks at each cut-off, per domain and class
 statement.csv                 the statement table (unrounded), per grade, domain and class
@@ -201,9 +201,14 @@ def cross_validation_table(validation) -> pd.DataFrame:
 def swaths_table(validation) -> pd.DataFrame:
     """Every swath slice, per domain and axis."""
     frames = [
-        t.assign(domain=name, axis=axis)
+        t.assign(domain=name, **{"class": "all"}, axis=axis)
         for name, v in validation.by_domain.items()
         for axis, t in v.swaths.items()
+    ] + [
+        t.assign(domain=name, **{"class": cls}, axis=axis)
+        for name, v in validation.by_domain.items()
+        for cls, tables in v.class_swaths.items()
+        for axis, t in tables.items()
     ]
     return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
 

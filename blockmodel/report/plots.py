@@ -16,6 +16,7 @@ __all__ = [
     "direction_map_figure",
     "grade_tonnage_figure",
     "neighbourhood_figure",
+    "swath_by_class_figure",
     "swath_figure",
     "variogram_figure",
 ]
@@ -295,4 +296,47 @@ def composites_figure(
             color="#d95f0e",
         )
     fig.suptitle(title, fontsize=10)
+    save_png(fig, path)
+
+
+def swath_by_class_figure(
+    by_class: dict[str, dict], path: Path, grade: str, unit: str, title: str
+) -> None:
+    """Swaths of the kriged blocks of each class (in the class colours) against the
+    declustered composites, one panel per axis."""
+    from matplotlib.ticker import MaxNLocator
+
+    from blockmodel.report.figures import CLASS_COLOURS
+
+    plt = pyplot()
+    axes_names = list(next(iter(by_class.values())))
+    fig, axes = plt.subplots(1, len(axes_names), figsize=(5.6 * len(axes_names), 4.2))
+    for ax, axis in zip(np.atleast_1d(axes), axes_names, strict=True):
+        ax.xaxis.set_major_locator(MaxNLocator(nbins=4))
+        first = None
+        for cls, tables in by_class.items():
+            t = tables[axis]
+            first = t if first is None else first
+            ax.plot(
+                t["centre"],
+                t["kriged"],
+                "-o",
+                ms=3,
+                label=f"kriged, {cls}",
+                color=CLASS_COLOURS.get(cls, "#555555"),
+            )
+        ax.plot(
+            first["centre"],
+            first["composites"],
+            "--",
+            color="black",
+            lw=1,
+            label="declustered composites",
+        )
+        ax.set_xlabel(f"{axis} (m)")
+        ax.set_ylabel(f"{grade} ({unit})")
+        ax.grid(alpha=0.3)
+    np.atleast_1d(axes)[0].legend(fontsize=7)
+    fig.suptitle(title, fontsize=10)
+    fig.tight_layout(w_pad=2.5)
     save_png(fig, path)

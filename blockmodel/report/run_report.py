@@ -172,6 +172,12 @@ def _validation_section(results: RunResults, folder: Path, report: HtmlReport) -
         p = folder / f"swath_{safe_stem(name)}.png"
         plots.swath_figure(dv.swaths, p, v.grade, unit, f"Swaths, {name}")
         report.image(p, f"Swath plots, {name}")
+        if dv.class_swaths:
+            p = folder / f"swath_by_class_{safe_stem(name)}.png"
+            plots.swath_by_class_figure(
+                dv.class_swaths, p, v.grade, unit, f"Swaths by proposed class, {name}"
+            )
+            report.image(p, f"Swath plots by proposed class, {name}")
     report.paragraph(f"Cross-validation, leave one {v.leave_out} out (error = estimate − true):")
     report.table(v.summary())
     report.paragraph("Global bias, kriged against nearest-sample model (tonnage-weighted):")

@@ -6,6 +6,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numpy as np
 import pandas as pd
 
 from blockmodel.assess.validation import CrossValidation, cross_validate, global_bias, swath
@@ -13,6 +14,7 @@ from blockmodel.config.project import Project
 from blockmodel.estimation.engine import passes_from
 from blockmodel.model.grid import BlockGrid
 from blockmodel.stages.declustering import Declustering
+from blockmodel.stages.tables import class_order
 
 __all__ = ["MIN_VALIDATION_CORRELATION", "DomainValidation", "Validation", "validate"]
 
@@ -22,11 +24,12 @@ MIN_VALIDATION_CORRELATION = 0.3  # below it the model does not predict (common 
 @dataclass(frozen=True)
 class DomainValidation:
     """One domain: cross-validation of its first grade and swaths along x, y and z (bins
-    four blocks wide)."""
+    four blocks wide), for all its blocks and for the blocks of each class."""
 
     domain: str
     cross_validation: CrossValidation
     swaths: dict[str, pd.DataFrame]
+    class_swaths: dict[str, dict[str, pd.DataFrame]]
 
 
 @dataclass(frozen=True)
@@ -116,7 +119,16 @@ def validate(
             a: swath(b, sub, primary, a, 4 * grid.block_size[n], weights)
             for n, a in enumerate("xyz")
         }
-        out[d.name] = DomainValidation(d.name, cv, swaths)
+        by_class = {}
+        present = set(b["class"]) if "class" in b else set()
+        for cls in [c for c in class_order(project) if c in present]:
+            part = b[b["class"] == cls]
+            if np.isfinite(part[primary]).any():
+                by_class[cls] = {
+                    a: swath(part, sub, primary, a, 4 * grid.block_size[n], weights)
+                    for n, a in enumerate("xyz")
+                }
+        out[d.name] = DomainValidation(d.name, cv, swaths, by_class)
     return Validation(
         primary, method, project.validation.leave_out, out, global_bias(blocks, primary)
     )
