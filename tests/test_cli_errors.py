@@ -50,6 +50,16 @@ def test_unwritable_output_folder(small_project, tmp_path, capsys):
 
 
 def test_help_on_every_command():
-    for cmd in ("check", "run", "variography", "report", "view", "bench", "make-demo"):
+    for cmd in (
+        "check",
+        "run",
+        "variography",
+        "neighbourhood",
+        "report",
+        "export",
+        "view",
+        "bench",
+        "make-demo",
+    ):
         r = _run(cmd, "--help")
         assert r.returncode == 0 and "usage" in r.stdout

@@ -86,6 +86,13 @@ def _parser() -> argparse.ArgumentParser:
     )
     a.add_argument("--replace", action="store_true", help=_REPLACE)
 
+    x = sub.add_parser(
+        "export", help="write the holes, composites, solids and block model as an OMF file"
+    )
+    x.add_argument("project", type=Path)
+    x.add_argument("block_model", type=Path, help="block_model.parquet from a run")
+    x.add_argument("--omf", type=Path, required=True, help="the Open Mining Format file to write")
+
     w = sub.add_parser(
         "view", help="render a view of a block model to PNG, or open it interactively"
     )
@@ -205,6 +212,9 @@ def _dispatch(args) -> None:
             project, args.out, blocks=_points(args.blocks), replace=args.replace
         )
         print(f"neighbourhood analysis written to {out}")
+    elif args.command == "export":
+        out = commands.export(project, args.block_model, args.omf)
+        print(f"Open Mining Format file written to {out}")
     elif args.command == "variography":
         out = commands.run_variography(project, args.out, replace=args.replace)
         print(f"variography written to {out}")

@@ -21,6 +21,7 @@ from blockmodel.stages.run import EngineOptions, Steps
 
 __all__ = [
     "check",
+    "export",
     "input_files",
     "make_demo",
     "neighbourhood",
@@ -398,6 +399,62 @@ def _check_png_target(png: Path, inputs: list[Path]) -> None:
                     )
                 ]
             )
+
+
+def export(project: Project, block_model: Path, omf_path: Path) -> Path:
+    """The drillholes, composites, domain solids and block model as one Open Mining Format
+    file; replaces only an OMF file this tool wrote (its mark), never another file."""
+    from blockmodel.data.compositing import hole_positions
+    from blockmodel.model.solids import read_surface
+    from blockmodel.report.exchange import is_tool_omf, write_omf
+    from blockmodel.stages.composites import load_and_composite
+    from blockmodel.stages.domain_model import block_model_grid
+
+    need_file(block_model)
+    omf_path = Path(omf_path)
+    if any(omf_path.resolve() == Path(p).resolve() for p in [*input_files(project), block_model]):
+        raise InputError(
+            [Problem(str(omf_path), None, None, "--omf", "is an input file; not overwritten")]
+        )
+    if omf_path.exists() and not is_tool_omf(omf_path):
+        raise InputError(
+            [
+                Problem(
+                    str(omf_path),
+                    None,
+                    None,
+                    "--omf",
+                    "exists and was not written by blockmodel; not overwritten (choose another "
+                    "file name)",
+                )
+            ]
+        )
+    comps = load_and_composite(project)
+    table = comps.table.sort_values(["hole", "from"], kind="stable")
+    holes = table["hole"].to_numpy()
+    starts = hole_positions(comps.holes, holes, table["from"].to_numpy(float))
+    ends = hole_positions(comps.holes, holes, table["to"].to_numpy(float))
+    solids = {d.name: read_surface(d.solid) for d in project.domains if d.solid is not None}
+    blocks = pd.read_parquet(block_model)
+    omf_path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = atomic_path(omf_path)
+    try:
+        write_omf(
+            project.name,
+            table,
+            starts,
+            ends,
+            table,
+            project.grades,
+            solids,
+            blocks,
+            block_model_grid(project),
+            tmp,
+        )
+        os.replace(tmp, omf_path)
+    finally:
+        tmp.unlink(missing_ok=True)
+    return omf_path
 
 
 def make_demo(folder: Path) -> None:
