@@ -10,7 +10,7 @@ import pandas as pd
 
 from blockmodel.report.files import safe_stem
 from blockmodel.report.html import HtmlReport
-from blockmodel.stages.neighbourhood import SWEEPS, Neighbourhood
+from blockmodel.stages.neighbourhood import FIGURES, SWEEPS, Neighbourhood
 
 __all__ = ["render_neighbourhood"]
 
@@ -56,21 +56,7 @@ def render_neighbourhood(
         now = table[table["current"] & (table["sweep"] == "max_samples")]
         report.paragraph("At the project's settings:")
         report.table(
-            now[
-                [
-                    "domain",
-                    "block",
-                    "pass",
-                    "samples",
-                    "holes",
-                    "slope",
-                    "efficiency",
-                    "variance",
-                    "negative_sum",
-                    "negative_count",
-                    "weight_of_mean",
-                ]
-            ],
+            now[["domain", "block", *FIGURES]],
             digits=3,
         )
     report.paragraph(

@@ -260,15 +260,7 @@ def render_grade_tonnage(
             "three significant figures (tonnes to no finer than 1,000 t); the CSV keeps full "
             f"precision. Metal in {first_unit} (also {', '.join(gt['metal_unit'].unique()[1:]) or 'no other unit'} in the CSV)."
         )
-        totals = main[main["class"] == "all"]
-        curves = {
-            ("all domains" if dom == "all" else dom): (
-                part["cutoff"].to_numpy(),
-                part["tonnes"].to_numpy(),
-                part["grade"].to_numpy(),
-            )
-            for dom, part in totals.groupby("domain", sort=False)
-        }
+        curves = _curves(main[main["class"] == "all"], "domain", "all domains")
         p = folder / f"grade_tonnage_{safe_stem(g)}.png"
         plots.grade_tonnage_figure(curves, p, unit, f"Grade–tonnage by domain, {g} (kriged blocks)")
         report.image(p, f"Grade–tonnage curves by domain, {g}")
@@ -276,18 +268,23 @@ def render_grade_tonnage(
             label = "all domains" if dom == "all" else dom
             report.paragraph(f"{label}:")
             report.table(grade_tonnage_pivot(main[main["domain"] == dom], unit, first_unit))
-            part = main[main["domain"] == dom]
-            curves = {
-                ("all classes" if cls == "all" else cls): (
-                    rows["cutoff"].to_numpy(),
-                    rows["tonnes"].to_numpy(),
-                    rows["grade"].to_numpy(),
-                )
-                for cls, rows in part.groupby("class", sort=False)
-            }
+            curves = _curves(main[main["domain"] == dom], "class", "all classes")
             p = folder / f"grade_tonnage_{safe_stem(g)}_{safe_stem(label.replace(' ', '_'))}.png"
             plots.grade_tonnage_figure(curves, p, unit, f"Grade–tonnage by class, {label}, {g}")
             report.image(p, f"Grade–tonnage curves by class, {label}, {g}")
+
+
+def _curves(rows: pd.DataFrame, by: str, all_label: str) -> dict:
+    """Grade–tonnage curves (cut-offs, tonnes, grades) of ``rows`` for each value of
+    column ``by``, its ``all`` rows labelled ``all_label``."""
+    return {
+        (all_label if key == "all" else key): (
+            part["cutoff"].to_numpy(),
+            part["tonnes"].to_numpy(),
+            part["grade"].to_numpy(),
+        )
+        for key, part in rows.groupby(by, sort=False)
+    }
 
 
 def _truth_section(results: RunResults, report: HtmlReport) -> None:

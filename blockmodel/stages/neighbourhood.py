@@ -26,7 +26,7 @@ from blockmodel.estimation.orientation import Orientation
 from blockmodel.stages.declustering import Declustering
 from blockmodel.stages.domain_model import DomainModel
 
-__all__ = ["SWEEPS", "DomainNeighbourhood", "Neighbourhood", "neighbourhood_analysis"]
+__all__ = ["FIGURES", "SWEEPS", "DomainNeighbourhood", "Neighbourhood", "neighbourhood_analysis"]
 
 # sweep name -> (axis label, settings tried); each sweep also holds the project's value
 SWEEPS = {
