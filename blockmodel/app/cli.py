@@ -183,7 +183,9 @@ def _dispatch(args) -> None:
     if args.command == "check":
         print(commands.check(project))
     elif args.command == "view":
-        commands.view(
+        from blockmodel.app.view_and_export import view
+
+        view(
             project,
             args.block_model,
             kind=args.kind,
@@ -213,7 +215,9 @@ def _dispatch(args) -> None:
         )
         print(f"neighbourhood analysis written to {out}")
     elif args.command == "export":
-        out = commands.export(project, args.block_model, args.omf)
+        from blockmodel.app.view_and_export import export
+
+        out = export(project, args.block_model, args.omf)
         print(f"Open Mining Format file written to {out}")
     elif args.command == "variography":
         out = commands.run_variography(project, args.out, replace=args.replace)
