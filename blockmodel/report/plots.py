@@ -117,13 +117,16 @@ def declustering_figure(sizes, means, chosen, naive, path: Path, label: str, uni
 def grade_tonnage_figure(
     curves: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]], path: Path, unit: str, title: str
 ) -> None:
-    """Tonnes (left axis, solid) and grade (right axis, dashed) against cut-off per curve."""
+    """Tonnes (left axis, solid) and grade (right axis, dashed) against cut-off per curve;
+    curves named after a class take the class's colour."""
+    from blockmodel.report.figures import CLASS_COLOURS
+
     plt = pyplot()
     fig, ax = plt.subplots(figsize=(7, 4.5))
     ax2 = ax.twinx()
-    colours = plt.get_cmap("tab10").colors
+    others = plt.get_cmap("tab10").colors
     for n, (name, (cut, tonnes, grade)) in enumerate(curves.items()):
-        c = colours[n % 10]
+        c = "black" if name.startswith("all") else CLASS_COLOURS.get(name, others[n % 10])
         ax.plot(cut, np.asarray(tonnes) / 1e6, "-", color=c, label=f"{name} tonnes")
         ax2.plot(cut, grade, "--", color=c, label=f"{name} grade")
     ax.set_xlabel(f"cut-off ({unit})")
@@ -131,7 +134,13 @@ def grade_tonnage_figure(
     ax2.set_ylabel(f"mean grade above cut-off ({unit})")
     lines = ax.get_legend_handles_labels()
     lines2 = ax2.get_legend_handles_labels()
-    ax.legend(lines[0] + lines2[0], lines[1] + lines2[1], fontsize=7, loc="upper right")
+    ax.legend(
+        lines[0] + lines2[0],
+        lines[1] + lines2[1],
+        fontsize=7,
+        loc="upper left",
+        bbox_to_anchor=(1.12, 1.0),
+    )
     ax.grid(alpha=0.3)
     ax.set_title(title)
     save_png(fig, path)
