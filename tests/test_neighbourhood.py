@@ -173,3 +173,15 @@ def test_neighbourhood_command(box_project, capsys):
     code = main(["neighbourhood", str(box_project), "--out", str(out) + "2", "--blocks", "1,2"])
     err = capsys.readouterr().err
     assert code == 2 and "--blocks" in err and "Traceback" not in err
+
+
+def test_domain_without_search_is_named(box_project, capsys):
+    """A project may leave out its search for check and variography; kriging and the
+    neighbourhood analysis stop with a message naming the domain, not a traceback."""
+    text = box_project.read_text()
+    start = text.index("[[search]]")
+    box_project.write_text(text[:start] + text[text.index("[grid]") :])
+    for command in ("neighbourhood", "run"):
+        code = main([command, str(box_project), "--out", str(box_project.parent / command)])
+        err = capsys.readouterr().err
+        assert code == 2 and "domain 'ore' has no search" in err and "Traceback" not in err

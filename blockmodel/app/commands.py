@@ -32,7 +32,8 @@ def _say(message: str) -> None:
     print(message, file=sys.stderr, flush=True)
 
 
-def _steps() -> Steps:
+def step_reporter() -> Steps:
+    """Steps announced and warnings printed on the terminal (stderr)."""
     return Steps(_say, lambda message: _say(f"  warning: {message}"))
 
 
@@ -117,7 +118,7 @@ def run_variography(project: Project, out: Path | None = None, *, replace: bool 
 
     folder = project.report.folder
     out = Path(out) if out is not None else folder.with_name(f"{folder.name}_variography")
-    steps = _steps()
+    steps = step_reporter()
     with OutputFolder(out, input_files(project), replace=replace) as staged:
         comps = load_and_composite(project)
         domains = None
@@ -161,7 +162,7 @@ def neighbourhood(
 
     folder = project.report.folder
     out = Path(out) if out is not None else folder.with_name(f"{folder.name}_neighbourhood")
-    steps = _steps()
+    steps = step_reporter()
     with OutputFolder(out, input_files(project), replace=replace) as staged:
         report = HtmlReport(f"{project.name}: kriging neighbourhood analysis")
         with steps("load, check and composite"):
@@ -206,7 +207,7 @@ def run(
     from blockmodel.stages.run import run_stages
 
     engine = engine or EngineOptions()
-    steps = _steps()
+    steps = step_reporter()
     staged = OutputFolder(out or project.report.folder, input_files(project), replace=replace)
     with staged:
         results = run_stages(project, steps, engine)

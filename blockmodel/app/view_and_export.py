@@ -169,7 +169,11 @@ def export(project: Project, block_model: Path, omf_path: Path) -> Path:
                 )
             ]
         )
-    comps = load_and_composite(project)
+    from blockmodel.app.commands import step_reporter
+
+    steps = step_reporter()
+    with steps("load, check and composite"):
+        comps = load_and_composite(project)
     table = comps.table.sort_values(["hole", "from"], kind="stable")
     holes = table["hole"].to_numpy()
     starts = hole_positions(comps.holes, holes, table["from"].to_numpy(float))
@@ -179,18 +183,19 @@ def export(project: Project, block_model: Path, omf_path: Path) -> Path:
     omf_path.parent.mkdir(parents=True, exist_ok=True)
     tmp = atomic_path(omf_path)
     try:
-        write_omf(
-            project.name,
-            table,
-            starts,
-            ends,
-            table,
-            project.grades,
-            solids,
-            blocks,
-            block_model_grid(project),
-            tmp,
-        )
+        with steps("writing the Open Mining Format file"):
+            write_omf(
+                project.name,
+                table,
+                starts,
+                ends,
+                table,
+                project.grades,
+                solids,
+                blocks,
+                block_model_grid(project),
+                tmp,
+            )
         os.replace(tmp, omf_path)
     finally:
         tmp.unlink(missing_ok=True)

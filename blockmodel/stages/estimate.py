@@ -14,7 +14,7 @@ from blockmodel.estimation.orientation import Orientation
 from blockmodel.model.grid import BlockGrid
 from blockmodel.variography.models import VariogramModel
 
-__all__ = ["classify", "estimate_block_model"]
+__all__ = ["classify", "estimate_block_model", "require_search"]
 
 
 def _estimated_density(project, table, domain, centres, grid, e, orientation) -> np.ndarray:
@@ -126,6 +126,16 @@ def _estimate_grade(
     )
 
 
+def require_search(project: Project) -> None:
+    """Stop, naming the domain, when an estimated domain has no search pass (the project
+    file may leave them out for ``check`` and ``variography``, not for kriging)."""
+    for d in project.domains:
+        if d.estimate and not project.passes_for(d.name):
+            raise setting_error(
+                project.source, "search", f"domain '{d.name}' has no search: add [[search]] passes"
+            )
+
+
 def estimate_block_model(
     project: Project,
     table: pd.DataFrame,
@@ -152,11 +162,7 @@ def estimate_block_model(
     workers = e.workers if workers is None else workers
     chunk_size = chunk_size or e.chunk_size
     cluster = cluster if cluster is not None else e.cluster
-    for d in project.domains:
-        if d.estimate and not project.passes_for(d.name):
-            raise setting_error(
-                project.source, "search", f"domain '{d.name}' has no search: add [[search]] passes"
-            )
+    require_search(project)
     frames = []
     for d_index, d in enumerate(project.domains):
         if not d.estimate:

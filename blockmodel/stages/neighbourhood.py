@@ -25,6 +25,7 @@ from blockmodel.estimation.kriging import estimate
 from blockmodel.estimation.orientation import Orientation
 from blockmodel.stages.declustering import Declustering
 from blockmodel.stages.domain_model import DomainModel
+from blockmodel.stages.estimate import require_search
 
 __all__ = ["FIGURES", "SWEEPS", "DomainNeighbourhood", "Neighbourhood", "neighbourhood_analysis"]
 
@@ -185,6 +186,7 @@ def neighbourhood_analysis(
         Test blocks given by the user: the block holding each point, analysed in the
         domain with the largest share of it.
     """
+    require_search(project)
     grade = project.grades[0]
     e = project.estimation
     grid = domains.grid
