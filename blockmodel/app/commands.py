@@ -50,19 +50,24 @@ def check(project: Project) -> str:
         f"Holes: {len(holes.collars)}",
         f"Metres drilled: {holes.collars['depth'].sum():,.1f}",
         f"Metres sampled: {sampled:,.1f}",
-        f"Intervals: {len(iv)}; composites: {len(comps.table)} "
+        f"Intervals: {len(iv)}; composites: {comps.compositing.composites} "
         f"({comps.compositing.dropped_low_coverage} dropped for low coverage)",
     ]
+    counts = [holes]
+    if comps.points is not None:
+        pts = comps.points.table
+        lines.append(f"Point samples: {len(pts)} on {pts['hole'].nunique()} line(s)")
+        counts.append(comps.points)
     for g in project.grades:
-        lines.append(
-            f"Below-detection values of {g} replaced: {holes.below_detection[g]}; "
-            f"missing: {holes.missing[g]}"
-        )
+        below = sum(c.below_detection[g] for c in counts)
+        missing = sum(c.missing[g] for c in counts)
+        lines.append(f"Below-detection values of {g} replaced: {below}; missing: {missing}")
     stats = comps.table.groupby("domain")[project.grades].describe(percentiles=[0.5]).round(3)
-    lines += ["", "Composite grades per domain:", stats.to_string()]
-    if holes.warnings:
-        lines += ["", f"{len(holes.warnings)} warning(s):"]
-        lines += ["  " + "  ".join(x for x in w.row() if x) for w in holes.warnings[:100]]
+    lines += ["", "Composite and point-sample grades per domain:", stats.to_string()]
+    warnings = comps.warnings
+    if warnings:
+        lines += ["", f"{len(warnings)} warning(s):"]
+        lines += ["  " + "  ".join(x for x in w.row() if x) for w in warnings[:100]]
     return "\n".join(lines)
 
 

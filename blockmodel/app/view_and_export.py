@@ -174,7 +174,7 @@ def export(project: Project, block_model: Path, omf_path: Path) -> Path:
     steps = step_reporter()
     with steps("load, check and composite"):
         comps = load_and_composite(project)
-    table = comps.table.sort_values(["hole", "from"], kind="stable")
+    table = comps.drillholes().sort_values(["hole", "from"], kind="stable")
     holes = table["hole"].to_numpy()
     starts = hole_positions(comps.holes, holes, table["from"].to_numpy(float))
     ends = hole_positions(comps.holes, holes, table["to"].to_numpy(float))
@@ -189,7 +189,7 @@ def export(project: Project, block_model: Path, omf_path: Path) -> Path:
                 table,
                 starts,
                 ends,
-                table,
+                comps.table,
                 project.grades,
                 solids,
                 blocks,

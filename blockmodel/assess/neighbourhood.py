@@ -44,7 +44,7 @@ def drill_spacing(points: np.ndarray, holes: np.ndarray, orientation: Orientatio
 
     Returns
     -------
-    float, metres; NaN with fewer than two holes.
+    float, metres; NaN with fewer than two holes at different places.
     """
     codes, inverse = np.unique(holes, return_inverse=True)
     if len(codes) < 2:
@@ -55,8 +55,11 @@ def drill_spacing(points: np.ndarray, holes: np.ndarray, orientation: Orientatio
         [np.bincount(inverse, weights=points[:, a]) / counts for a in range(3)]
     )
     in_plane = centre @ orientation.axes()[:2].T
-    dist, _ = cKDTree(in_plane).query(in_plane, k=2)
-    return float(np.median(dist[:, 1]))
+    dist, _ = cKDTree(in_plane).query(in_plane, k=min(len(codes), 8))
+    dist[dist <= 1e-6] = np.inf  # holes at one place (exact twins) are one station
+    nearest = dist.min(axis=1)
+    nearest = nearest[np.isfinite(nearest)]
+    return float(np.median(nearest)) if len(nearest) else float("nan")
 
 
 @dataclass(frozen=True)

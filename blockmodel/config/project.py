@@ -105,6 +105,23 @@ def _check_values(p: Project, r: Reader) -> None:
     checked as it is read, from its declaration)."""
     if not p.data.grades:
         r.fail("data.grades", 'name at least one grade column, e.g. grades = { au = "g/t" }')
+    tables = {"collars": p.data.collars, "surveys": p.data.surveys, "intervals": p.data.intervals}
+    given = [k for k, v in tables.items() if v is not None]
+    if given and len(given) < 3:
+        absent = [k for k in tables if k not in given]
+        r.fail(
+            f"data.{absent[0]}",
+            "drillholes need all three tables (collars, surveys and intervals); "
+            f"missing: {', '.join('data.' + k for k in absent)}",
+        )
+    if not given and p.data.points is None:
+        r.fail(
+            "data",
+            "give the drillhole tables (data.collars, data.surveys, data.intervals), "
+            "point samples (data.points), or both",
+        )
+    if p.data.density and not given:
+        r.fail("data.density", "data.density is a column of the intervals table; give them")
     tol = p.variography.lag_tolerance
     if tol is not None and not tol <= p.variography.lag / 2:
         r.fail("variography.lag_tolerance", "'variography.lag_tolerance' must lie in (0, lag / 2]")
@@ -240,6 +257,7 @@ def load_project(path: str | Path) -> Project:
             ("data.collars", project.data.collars),
             ("data.surveys", project.data.surveys),
             ("data.intervals", project.data.intervals),
+            ("data.points", project.data.points),
             ("grid.topography", project.grid.topography),
             ("truth", project.truth),
         ]

@@ -24,6 +24,7 @@ __all__ = [
     "Estimation",
     "Grid",
     "ModelSpec",
+    "PointColumns",
     "Report",
     "SearchPass",
     "StructureSpec",
@@ -59,16 +60,44 @@ class Columns:
 
 
 @dataclass(frozen=True)
-class DataFiles:
-    """The input tables and how to read them."""
+class PointColumns:
+    """Names of the columns in the point-sample table, mapped to what they mean."""
 
-    collars: Path = setting(doc="collars table (CSV)")
-    surveys: Path = setting(doc="downhole surveys table (CSV)")
-    intervals: Path = setting(doc="sample intervals table with grades and codes (CSV)")
+    sample: str = setting("sample_id", doc="sample identifier, unique in the table")
+    line: str = setting(
+        "",
+        doc="channel, trench or line of each sample: samples of one line count as one hole "
+        "in the search's per-hole limit and in cross-validation; none: each sample alone",
+    )
+    x: str = setting("x", doc="sample easting, metres")
+    y: str = setting("y", doc="sample northing, metres")
+    z: str = setting("z", doc="sample elevation, metres")
+    domain: str = setting("domain", doc="geology code of a sample")
+    length: str = setting(
+        "", doc="sample length, metres (weighs metal in capping); none: the composite length"
+    )
+
+
+@dataclass(frozen=True)
+class DataFiles:
+    """The input tables and how to read them: drillholes (collars, surveys and intervals
+    together), point samples, or both."""
+
     grades: dict[str, str] = setting(
         doc='grade columns and their units, e.g. { au = "g/t" }', choices=UNITS
     )
+    collars: Path | None = setting(None, doc="collars table (CSV)")
+    surveys: Path | None = setting(None, doc="downhole surveys table (CSV)")
+    intervals: Path | None = setting(None, doc="sample intervals table with grades and codes (CSV)")
+    points: Path | None = setting(
+        None,
+        doc="point samples (CSV) beside or instead of drillholes: channel, trench, surface "
+        "or blast-hole samples with x, y, z, a domain code and the grade columns",
+    )
     columns: Columns = setting(doc="your column names", factory=Columns)
+    point_columns: PointColumns = setting(
+        doc="your column names in the point-sample table", factory=PointColumns
+    )
     below_detection_factor: float = setting(
         0.5,
         doc="a value below detection (written negative) becomes this share of the limit",
@@ -80,6 +109,17 @@ class DataFiles:
         (-99.0, -999.0), doc="numbers that mean 'not sampled'"
     )
     density: str = setting("", doc="column of measured density (t/m3) in the intervals, if any")
+
+    @property
+    def has_drillholes(self) -> bool:
+        """Whether the project has drillhole tables."""
+        return self.intervals is not None
+
+    @property
+    def samples(self) -> Path:
+        """The table that holds the sample codes and grades: the intervals, else the points
+        (named in messages about codes and grades)."""
+        return self.intervals if self.intervals is not None else self.points
 
 
 @dataclass(frozen=True)

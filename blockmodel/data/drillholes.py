@@ -48,6 +48,24 @@ class DrillholeSet:
     below_detection: dict[str, int] = field(default_factory=dict)
     missing: dict[str, int] = field(default_factory=dict)
 
+    @classmethod
+    def empty(cls, grades: list[str]) -> DrillholeSet:
+        """No drillholes (a project of point samples only)."""
+        return cls(
+            collars=pd.DataFrame({k: pd.Series(dtype=t) for k, t in _COLLARS.items()}),
+            surveys=pd.DataFrame({k: pd.Series(dtype=t) for k, t in _SURVEYS.items()}),
+            intervals=pd.DataFrame(
+                {k: pd.Series(dtype=t) for k, t in _INTERVALS.items()}
+                | {g: pd.Series(dtype=float) for g in grades}
+            ),
+            grades=list(grades),
+        )
+
+
+_COLLARS = {"hole": object, "x": float, "y": float, "z": float, "depth": float}
+_SURVEYS = {"hole": object, "depth": float, "azimuth": float, "dip": float}
+_INTERVALS = {"hole": object, "from": float, "to": float, "domain": object}
+
 
 def load_drillholes(data: DataFiles) -> DrillholeSet:
     """Load, check and standardise the three drillhole tables.

@@ -342,13 +342,15 @@ def collar_plan_figure(collars, composites, spacing: dict[str, float], path: Pat
     Parameters
     ----------
     collars : DataFrame ``hole, x, y``
-    composites : DataFrame ``hole, from, x, y, domain``
+    composites : DataFrame ``hole, from, x, y, domain`` (and ``source``: point samples are
+        marked, not joined into traces)
     spacing : dict of domain to drill spacing, metres
     """
     plt = pyplot()
     fig, ax = plt.subplots(figsize=(7.5, 7.5))
     ordered = composites.sort_values(["hole", "from"], kind="stable")
-    for _, part in ordered.groupby("hole", sort=False):
+    points = ordered["source"] == "points" if "source" in ordered else False
+    for _, part in ordered[~points].groupby("hole", sort=False):
         ax.plot(part["x"], part["y"], "-", color="#999999", lw=0.6, zorder=1)
     palette = ["#0072B2", "#E69F00", "#009E73", "#CC79A7", "#56B4E9", "#D55E00"]
     for n, (name, part) in enumerate(ordered.groupby("domain", sort=False)):
@@ -357,7 +359,10 @@ def collar_plan_figure(collars, composites, spacing: dict[str, float], path: Pat
         gap = spacing[name]
         label = f"{name} (drill spacing {gap:.0f} m)" if np.isfinite(gap) else name
         ax.plot(part["x"], part["y"], ".", ms=2, color=palette[n % len(palette)], label=label)
-    ax.plot(collars["x"], collars["y"], "k+", ms=5, label="collars")
+    if len(collars):
+        ax.plot(collars["x"], collars["y"], "k+", ms=5, label="collars")
+    if np.any(points):
+        ax.plot(*ordered.loc[points, ["x", "y"]].to_numpy().T, "kx", ms=3, label="point samples")
     ax.set_aspect("equal")
     ax.set_xlabel("east (m)")
     ax.set_ylabel("north (m)")

@@ -65,22 +65,33 @@ def render_run(results: RunResults, folder: Path, steps) -> HtmlReport:
 
 
 def _data_sections(project: Project, comps, report: HtmlReport) -> None:
-    holes = comps.holes
+    holes, warnings = comps.holes, comps.warnings
     report.heading("Data")
+    counts, points = [holes], ""
+    if comps.points is not None:
+        pts = comps.points.table
+        counts.append(comps.points)
+        points = (
+            f" and {len(pts)} point samples on {pts['hole'].nunique()} line(s), each used at "
+            "its own position and support (not composited)"
+        )
     report.paragraph(
         f"{len(holes.collars)} holes, {holes.collars['depth'].sum():,.0f} m drilled, "
-        f"{len(holes.intervals)} sample intervals; {len(holes.warnings)} warning(s) listed below."
+        f"{len(holes.intervals)} sample intervals{points}; {len(warnings)} warning(s) "
+        "listed below."
     )
     for g in project.grades:
+        below = sum(c.below_detection[g] for c in counts)
+        missing = sum(c.missing[g] for c in counts)
         report.paragraph(
-            f"{g}: {holes.below_detection[g]} below-detection values set to "
-            f"{project.data.below_detection_factor} x the limit; {holes.missing[g]} missing."
+            f"{g}: {below} below-detection values set to "
+            f"{project.data.below_detection_factor} x the limit; {missing} missing."
         )
-    if holes.warnings:
+    if warnings:
         from blockmodel.config.project import relative
 
         table = pd.DataFrame(
-            [w.row() for w in holes.warnings],
+            [w.row() for w in warnings],
             columns=["file", "line", "hole", "field", "warning"],
         )
         table["file"] = [relative(f, project) if f else "" for f in table["file"]]

@@ -222,9 +222,10 @@ def _render(pv, grid, blocks, column, path, unit, slices, cutoff, composites, so
         else:
             plotter.add_mesh(surface, color="grey", opacity=0.15)
     bounds = _bounds(shown) if shown else image.bounds
-    # orientation arrows and the slice positions in words read better at report size
-    # than VTK's 3D axis labels
+    # orientation arrows, a scale bar and the slice positions in words read better at
+    # report size than VTK's 3D axis labels
     plotter.add_axes(xlabel="E", ylabel="N", zlabel="Up", color="black", line_width=3)
+    _scale_bar(plotter, bounds, planes[0][0] if len(planes) == 1 else None)
     where = "; ".join(f"{'xyz'[n]} = {p:,.1f} m" for n, p in planes)
     size = " x ".join(f"{b:g}" for b in grid.block_size)
     plotter.add_text(
@@ -241,13 +242,50 @@ def _render(pv, grid, blocks, column, path, unit, slices, cutoff, composites, so
     else:
         plotter.view_isometric()
     plotter.reset_camera(bounds=bounds)
-    plotter.camera.zoom(0.9)
+    plotter.camera.zoom(1.25)
     if path is None:
         plotter.show()
     else:
         image = plotter.screenshot(None, return_img=True)
         plotter.close()
         _write_png(image, path)
+
+
+def _scale_bar(plotter, bounds, view: int | None) -> None:
+    """A scale bar of a round length (1, 2 or 5 times a power of ten, at most half the
+    extent of ``bounds``) along the edge of the blocks shown nearest the camera: for a view
+    across the slice normal to axis ``view`` (0, 1, 2), or the isometric view (None)."""
+    low, high = np.array(bounds[0::2], dtype=float), np.array(bounds[1::2], dtype=float)
+    # axis the bar runs along, and the corner of the box it starts from (1 = high side)
+    along, corner = {
+        None: (0, (0, 1, 0)),
+        0: (1, (1, 0, 0)),
+        1: (0, (0, 0, 0)),
+        2: (0, (0, 0, 1)),
+    }[view]
+    extent = float(high[along] - low[along])
+    if extent <= 0:
+        return
+    power = 10.0 ** np.floor(np.log10(extent / 2))
+    length = max(m * power for m in (1.0, 2.0, 5.0) if m * power <= extent / 2)
+    start = np.where(np.array(corner) == 1, high, low)
+    end = start.copy()
+    end[along] += length
+    ruler = plotter.add_ruler(
+        start,
+        end,
+        title=f"{length:g} m",
+        number_labels=2,
+        show_labels=False,
+        tick_length=8,
+        label_color="black",
+        tick_color="black",
+    )
+    ruler.GetProperty().SetLineWidth(3)
+    text = ruler.GetTitleTextProperty()
+    text.SetItalic(False)
+    text.SetShadow(False)
+    text.SetBold(True)
 
 
 def _bounds(meshes) -> tuple[float, ...]:

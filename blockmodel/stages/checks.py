@@ -116,12 +116,16 @@ def estimate_warnings(
             )
     estimated = blocks[np.isfinite(blocks[primary])]
     if project.grid.topography is None:
-        top = float(comps.holes.collars["z"].max())
+        tops = [comps.holes.collars["z"]]
+        if comps.points is not None:
+            tops.append(comps.points.table["z"])
+        top = float(pd.concat(tops).max())
         above = estimated[estimated["z"] - grid.block_size[2] / 2 > top]
         if len(above):
             out.append(
                 f"{len(above)} estimated block(s), {above['tonnes'].sum():,.0f} t, lie wholly above "
-                f"the highest collar (z {top:.1f} m) and no topography is given: they may be air"
+                f"the highest collar or sample (z {top:.1f} m) and no topography is given: they "
+                "may be air"
             )
     for g in project.grades:
         low = blocks[blocks[g] < 0]

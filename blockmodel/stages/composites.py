@@ -10,6 +10,7 @@ import pandas as pd
 from blockmodel.config.project import Project
 from blockmodel.data.compositing import CappingSummary, CompositingSummary, cap_grades, composite
 from blockmodel.data.drillholes import DrillholeSet, load_drillholes
+from blockmodel.data.points import PointSamples, load_points
 from blockmodel.errors import InputError, Problem
 
 __all__ = ["Composites", "load_and_composite"]
@@ -22,18 +23,32 @@ class Composites:
     Attributes
     ----------
     holes : DrillholeSet
-        The checked tables, with their warnings.
+        The checked drillhole tables (empty when the project has none), with warnings.
     table : DataFrame
-        One row per composite: ``hole, from, to, x, y, z, domain, length, coverage`` and
-        the grades; ordered by position (``x, y, z, hole``).
+        One row per composite: ``hole, from, to, x, y, z, domain, length, coverage,
+        source`` and the grades; ordered by position (``x, y, z, hole``).  Point samples
+        are rows of their own, with ``source`` "points", their line as ``hole`` and no
+        ``from`` or ``to``; composites have ``source`` "drillhole".
     compositing : CompositingSummary
     capping : tuple of CappingSummary
+    points : PointSamples or None
+        The checked point samples, when the project has them.
     """
 
     holes: DrillholeSet
     table: pd.DataFrame
     compositing: CompositingSummary
     capping: tuple[CappingSummary, ...]
+    points: PointSamples | None = None
+
+    @property
+    def warnings(self) -> list[Problem]:
+        """Warnings from reading the drillholes and the point samples."""
+        return self.holes.warnings + (self.points.warnings if self.points else [])
+
+    def drillholes(self) -> pd.DataFrame:
+        """The composites from drillholes (no point samples)."""
+        return self.table[self.table["source"] == "drillhole"]
 
     def of_domain(self, name: str, grade: str | None = None) -> pd.DataFrame:
         """The composites of domain ``name`` (with a value of ``grade`` when given)."""
@@ -42,11 +57,24 @@ class Composites:
 
 
 def load_and_composite(project: Project) -> Composites:
-    """Load and check drillholes, composite, cap; domain names replace interval codes."""
-    holes = load_drillholes(project.data)
-    _check_codes(project, holes)
+    """Load and check drillholes and point samples, composite the drillholes, cap; domain
+    names replace codes."""
+    data = project.data
+    holes = load_drillholes(data) if data.has_drillholes else DrillholeSet.empty(project.grades)
+    points = None
+    if data.points is not None:
+        names = frozenset(holes.collars["hole"])
+        points = load_points(data, project.compositing.length, names)
+    _check_codes(project, holes, points)
     code_to_name = {d.code: d.name for d in project.domains}
     comps, summary = composite(holes, project.compositing)
+    comps["source"] = "drillhole"
+    if points is not None:
+        nan = float("nan")
+        rows = points.table.drop(columns="sample")
+        rows = rows.assign(**{"from": nan, "to": nan}, coverage=1.0, source="points")
+        parts = [comps, rows] if len(comps) else [rows]
+        comps = pd.concat(parts, ignore_index=True)[[*comps.columns]]
     comps["domain"] = comps["domain"].map(lambda c: code_to_name.get(c, c))
     comps, capping = cap_grades(comps, project.capping)
     # Order by position, not by hole name: results must not depend on what holes are called
@@ -57,36 +85,48 @@ def load_and_composite(project: Project) -> Composites:
             raise InputError(
                 [
                     Problem(
-                        str(project.data.intervals),
+                        str(data.samples),
                         None,
                         None,
-                        project.data.columns.domain,
+                        _code_column(project),
                         f"domain '{d.name}' (code '{d.code}') has no composites",
                     )
                 ]
             )
-    return Composites(holes, comps, summary, tuple(capping))
+    return Composites(holes, comps, summary, tuple(capping), points)
 
 
-def _check_codes(project: Project, holes: DrillholeSet) -> None:
-    """Interval codes that name no domain: an error where the code differs from a declared
-    one only in case or spaces (a typing slip), otherwise a warning with the count."""
+def _code_column(project: Project) -> str:
+    data = project.data
+    return data.columns.domain if data.has_drillholes else data.point_columns.domain
+
+
+def _check_codes(project: Project, holes: DrillholeSet, points: PointSamples | None) -> None:
+    """Codes of intervals and point samples that name no domain: an error where the code
+    differs from a declared one only in case or spaces (a typing slip), otherwise a
+    warning with the count."""
     declared = {d.code for d in project.domains}
-    counts = holes.intervals["domain"].value_counts()
-    slips = []
-    for code, count in counts.items():
-        if code in declared or code == "":
-            continue
-        same = [d for d in declared if d.strip().lower() == str(code).strip().lower()]
-        close = same or difflib.get_close_matches(str(code), sorted(declared), n=1, cutoff=0.75)
-        hint = f"; did you mean '{close[0]}'?" if close else " (not estimated)"
-        problem = Problem(
-            str(project.data.intervals),
-            None,
-            None,
-            project.data.columns.domain,
-            f"code '{code}' in {count} interval(s) matches no domain{hint}",
+    data = project.data
+    tables = [(holes.intervals, data.intervals, data.columns.domain, "interval", holes.warnings)]
+    if points is not None:
+        tables.append(
+            (points.table, data.points, data.point_columns.domain, "sample", points.warnings)
         )
-        (slips if same else holes.warnings).append(problem)
+    slips = []
+    for table, file, column, what, warnings in tables:
+        for code, count in table["domain"].value_counts().items():
+            if code in declared or code == "":
+                continue
+            same = [d for d in declared if d.strip().lower() == str(code).strip().lower()]
+            close = same or difflib.get_close_matches(str(code), sorted(declared), n=1, cutoff=0.75)
+            hint = f"; did you mean '{close[0]}'?" if close else " (not estimated)"
+            problem = Problem(
+                str(file),
+                None,
+                None,
+                column,
+                f"code '{code}' in {count} {what}(s) matches no domain{hint}",
+            )
+            (slips if same else warnings).append(problem)
     if slips:
         raise InputError(slips)

@@ -104,7 +104,7 @@ def run_stages(
 
     with steps("load, check and composite"):
         composites = load_and_composite(project)
-    steps.data_warnings(composites.holes.warnings)
+    steps.data_warnings(composites.warnings)
     with steps("domain proportions"):
         domains = build_domain_model(project, composites.table)
     with steps("declustering"):

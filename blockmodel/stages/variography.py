@@ -146,7 +146,7 @@ def _one(
     if not given and (len(grades) < 2 or np.ptp(grades) == 0):
         shown = f" ({grades[0]:g})" if len(grades) else ""
         raise setting_error(
-            project.data.intervals,
+            project.data.samples,
             grade,
             f"{key}: {len(grades)} composite(s), all grades "
             f"equal{shown}: no variogram can be fitted; give a model in [variogram.{key}]",
@@ -173,14 +173,17 @@ def _one(
         model, orient = None, orientation_fit.orientation
     common = {"estimator": v.estimator, "weights": decl if v.use_declustering_weights else None}
     directional = _directional(v, pts, values, orient, common)
+    # pairs down one hole; point samples (own support, no hole) take no part
+    drilled = (sub["source"] == "drillhole").to_numpy() if "source" in sub else slice(None)
     downhole = experimental_variogram(
-        pts,
-        values,
+        pts[drilled],
+        values[drilled],
         lag=project.compositing.length,
         n_lags=v.lags,
-        holes=sub["hole"].to_numpy(),
+        holes=sub["hole"].to_numpy()[drilled],
         label="downhole",
-        **common,
+        estimator=v.estimator,
+        weights=None if common["weights"] is None else common["weights"][drilled],
     )
     scan = None
     if len(values) > 1:
@@ -195,7 +198,7 @@ def _one(
             **common,
         )
     fit = None
-    along = _mean_hole_direction(sub)
+    along = _mean_hole_direction(sub[drilled])
     if model is None:
         fitted_to = [(e, a) for a, e in enumerate(directional)]
         if along is not None:  # the short lags down the holes fix the nugget

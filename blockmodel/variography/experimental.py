@@ -49,8 +49,10 @@ def direction_vector(azimuth: float, plunge: float) -> np.ndarray:
 def _pairs(points, max_distance, pair_budget, same_group=None):
     """Yield index arrays (i, j), i < j, of pairs closer than ``max_distance``, in chunks of
     samples sized so each chunk holds about ``pair_budget`` pairs (memory stays bounded)."""
-    tree = cKDTree(points)
     n = len(points)
+    if n < 2:
+        return
+    tree = cKDTree(points)
     # pairs per sample, from a sample of up to 2,000 points, sets the chunk size
     probe = np.linspace(0, n - 1, min(n, 2000)).astype(np.int64)
     per_point = float(
@@ -127,7 +129,7 @@ def experimental_variogram(
     if lag <= 0 or n_lags < 1:
         raise ValueError("lag must be positive and n_lags at least 1")
     points = np.asarray(points, dtype=np.float64)
-    points = points - points.min(axis=0)
+    points = points - points.min(axis=0) if len(points) else points.reshape(0, 3)
     values = np.asarray(values, dtype=np.float64)
     w = np.ones(len(values)) if weights is None else np.asarray(weights, dtype=np.float64)
     if lag_tolerance is not None and not 0 < lag_tolerance <= lag / 2:
