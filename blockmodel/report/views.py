@@ -242,7 +242,7 @@ def _render(pv, grid, blocks, column, path, unit, slices, cutoff, composites, so
     else:
         plotter.view_isometric()
     plotter.reset_camera(bounds=bounds)
-    plotter.camera.zoom(1.25)
+    plotter.camera.zoom(1.0)
     if path is None:
         plotter.show()
     else:
