@@ -74,6 +74,18 @@ def _parser() -> argparse.ArgumentParser:
     n.add_argument("--out", type=Path, help="output folder (default: beside the report folder)")
     n.add_argument("--replace", action="store_true", help=_REPLACE)
 
+    s = sub.add_parser(
+        "simulate",
+        help="conditional simulation of grades: per-block uncertainty and grade-tonnage bands",
+    )
+    s.add_argument("project", type=Path)
+    s.add_argument("--realisations", type=int, help="realisations per domain and grade")
+    s.add_argument("--seed", type=int, help="seed (each realisation reproducible alone)")
+    s.add_argument("--workers", type=int, help="threads on this machine (0 = all cores)")
+    s.add_argument("--cluster", help="address of a running dask.distributed scheduler")
+    s.add_argument("--out", type=Path, help="output folder (default: beside the report folder)")
+    s.add_argument("--replace", action="store_true", help=_REPLACE)
+
     a = sub.add_parser(
         "report", help="re-report an existing block model at new cut-offs or class rules"
     )
@@ -137,6 +149,17 @@ def _check_cutoffs(cut: list[float] | None) -> None:
                 )
             ]
         )
+
+
+def _check_counts(args) -> None:
+    """The simulation's counts from the command line: realisations >= 2, seed and
+    workers >= 0."""
+    for name, low in (("realisations", 2), ("seed", 0), ("workers", 0)):
+        value = getattr(args, name)
+        if value is not None and value < low:
+            raise InputError(
+                [Problem("command line", None, None, f"--{name}", f"must be {low} or more")]
+            )
 
 
 def _points(texts: list[str]) -> list[tuple[float, float, float]]:
@@ -209,6 +232,18 @@ def _dispatch(args) -> None:
             project, args.out, engine=engine, write_csv=args.csv or None, replace=args.replace
         )
         print(f"report written to {out}")
+    elif args.command == "simulate":
+        _check_counts(args)
+        out = commands.simulate(
+            project,
+            args.out,
+            realisations=args.realisations,
+            seed=args.seed,
+            workers=args.workers,
+            cluster=args.cluster or "",
+            replace=args.replace,
+        )
+        print(f"simulation written to {out}")
     elif args.command == "neighbourhood":
         out = commands.neighbourhood(
             project, args.out, blocks=_points(args.blocks), replace=args.replace

@@ -32,9 +32,16 @@ def _say(message: str) -> None:
     print(message, file=sys.stderr, flush=True)
 
 
+def _progress(message: str) -> None:
+    """One line rewritten in place on a terminal; nothing when stderr is a file or pipe."""
+    if sys.stderr.isatty():
+        end = "\n" if message.endswith("\n") else ""
+        print(f"\r{message.rstrip()}\033[K", end=end, file=sys.stderr, flush=True)
+
+
 def step_reporter() -> Steps:
-    """Steps announced and warnings printed on the terminal (stderr)."""
-    return Steps(_say, lambda message: _say(f"  warning: {message}"))
+    """Steps announced, warnings and progress printed on the terminal (stderr)."""
+    return Steps(_say, lambda message: _say(f"  warning: {message}"), _progress)
 
 
 def check(project: Project) -> str:
@@ -220,6 +227,10 @@ def run(
         with steps("result files"):
             csv = write_csv if write_csv is not None else project.report.write_csv
             write_run_files(results, staged.path, csv=csv)
+            if results.simulation is not None:
+                from blockmodel.report.simulation_section import write_simulation_files
+
+                write_simulation_files(project, results.simulation, results.blocks, staged.path)
         report.paragraph(f"Timings (s): {steps.timings}")
         report.write(staged.path / "report.html")
         staged.commit(
@@ -233,6 +244,72 @@ def run(
                     "workers": engine.workers,
                     "chunk_size": engine.chunk_size,
                 },
+            )
+        )
+    return staged.target
+
+
+def simulate(
+    project: Project,
+    out: Path | None = None,
+    *,
+    realisations: int | None = None,
+    seed: int | None = None,
+    workers: int | None = None,
+    cluster: str = "",
+    replace: bool = False,
+) -> Path:
+    """The run's stages (estimate and classification, for the classes and the kriged
+    curves), then the conditional simulation; writes its page, figures and files to
+    ``out`` (default: the report folder's name + ``_simulation``)."""
+    from blockmodel.report.simulation_section import render_simulation, write_simulation_files
+    from blockmodel.stages.run import run_stages
+    from blockmodel.stages.simulation import simulate as simulate_stage
+
+    folder = project.report.folder
+    out = Path(out) if out is not None else folder.with_name(f"{folder.name}_simulation")
+    steps = step_reporter()
+    with OutputFolder(out, input_files(project), replace=replace) as staged:
+        results = run_stages(project, steps)
+        with steps("conditional simulation"):
+            grid = results.domains.grid
+            sim = simulate_stage(
+                project,
+                results.composites.table,
+                results.declustering,
+                results.variography,
+                grid.origin,
+                grid.block_size,
+                results.blocks,
+                realisations=realisations,
+                seed=seed,
+                workers=workers,
+                cluster=cluster,
+                progress=steps.counter("realisations"),
+            )
+        report = HtmlReport(f"{project.name}: conditional simulation")
+        for message in results.warnings:
+            report.warn(message)
+        with steps("figures and files"):
+            render_simulation(
+                project,
+                sim,
+                results.blocks,
+                staged.path,
+                report,
+                kriged=results.tables,
+                support=results.support,
+            )
+            write_simulation_files(project, sim, results.blocks, staged.path)
+        report.paragraph(f"Timings (s): {steps.timings}")
+        report.write(staged.path / "simulation.html")
+        staged.commit(
+            _manifest(
+                "simulate",
+                project,
+                realisations=sim.realisations,
+                seed=sim.seed,
+                timings_s=steps.timings,
             )
         )
     return staged.target

@@ -30,6 +30,7 @@ from blockmodel.config.sections import (
     ModelSpec,
     Report,
     SearchPass,
+    Simulation,
     Validation,
     Variography,
 )
@@ -60,6 +61,7 @@ class Project:
     estimation: Estimation = setting(doc="estimation", factory=Estimation)
     validation: Validation = setting(doc="validation", factory=Validation)
     classification: Classification = setting(doc="classification", factory=Classification)
+    simulation: Simulation = setting(doc="conditional simulation", factory=Simulation)
     truth: Path | None = setting(None, doc="true block grades (invented deposits only)")
     source: Path = Path("project.toml")
 
@@ -190,6 +192,14 @@ def _check_values(p: Project, r: Reader) -> None:
             r.fail(
                 f"report.statement_cutoffs.{name}",
                 f"unknown domain '{name}'; domains are {', '.join(names)}",
+            )
+    for key in p.simulation.maximum:
+        domain, _, grade = key.partition(".")
+        if domain not in names or grade not in p.data.grades:
+            r.fail(
+                f"simulation.maximum.{key}",
+                f"'{key}' names no domain and grade; use DOMAIN.GRADE, e.g. "
+                f"'{names[0]}.{next(iter(p.data.grades), 'au')}'",
             )
     sweep = p.declustering.cell_sizes
     if not sweep.smallest < sweep.largest:

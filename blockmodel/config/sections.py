@@ -27,6 +27,7 @@ __all__ = [
     "PointColumns",
     "Report",
     "SearchPass",
+    "Simulation",
     "StructureSpec",
     "Validation",
     "Variography",
@@ -366,6 +367,48 @@ class Validation:
 
     leave_out: str = setting(
         "hole", doc="what each re-estimate leaves out", choices=("hole", "sample")
+    )
+
+
+@dataclass(frozen=True)
+class Simulation:
+    """Conditional simulation of grades: normal scores, spectral fields conditioned by
+    simple kriging, back to grades on the block discretisation, averaged to blocks."""
+
+    realisations: int = setting(50, doc="realisations per domain and grade", low=2)
+    seed: int = setting(1, doc="seed of the realisations (each reproducible alone)", low=0)
+    in_run: bool = setting(False, doc="blockmodel run simulates too")
+    discretisation: tuple[int, int, int] | None = setting(
+        None, doc="nodes per block along x, y, z; none: estimation.discretisation", low=1, high=20
+    )
+    neighbours: int = setting(24, doc="data per node in the conditioning kriging", low=1)
+    model: str = setting(
+        "fit",
+        doc="the normal scores' variogram (sill 1): fit: the grade model's structures and "
+        "ranges with the nugget and sills fitted to the normal scores' experimental "
+        "variograms along its axes; standardised: the grade model scaled to sill 1",
+        choices=("fit", "standardised"),
+    )
+    minimum: float = setting(0.0, doc="lowest grade of the back-transform (lower tail)", low=0.0)
+    maximum: dict[str, float] = setting(
+        doc="highest grade of the back-transform per domain and grade, e.g. "
+        '{ "lode.au" = 60.0 }; none: the largest composite',
+        entry="DOMAIN.GRADE",
+        low=0.0,
+        strict_low=True,
+        factory=dict,
+    )
+    upper_tail: str = setting(
+        "hyperbolic",
+        doc="upper tail between the largest composite and the maximum",
+        choices=("hyperbolic", "linear"),
+    )
+    omega: float = setting(
+        1.5, doc="exponent of the hyperbolic tail (larger: thinner)", low=1.0, strict_low=True
+    )
+    workers: int = setting(1, doc="threads over realisations; 0: all cores", low=0)
+    keep_realisations: bool = setting(
+        False, doc="also write every realisation's block grades (long Parquet table)"
     )
 
 

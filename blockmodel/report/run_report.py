@@ -58,6 +58,19 @@ def render_run(results: RunResults, folder: Path, steps) -> HtmlReport:
             folder,
             report,
         )
+    if results.simulation is not None:
+        from blockmodel.report.simulation_section import render_simulation
+
+        with steps("simulation figures"):
+            render_simulation(
+                project,
+                results.simulation,
+                results.blocks,
+                folder,
+                report,
+                kriged=results.tables,
+                support=results.support,
+            )
     if results.truth is not None:
         _truth_section(results, report)
     report.heading("Run")

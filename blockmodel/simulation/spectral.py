@@ -2,7 +2,8 @@
 
 The covariance is sampled on a periodic grid padded beyond the correlation ranges; its
 discrete Fourier transform is the spectral density (negative values from truncation are set
-to zero); white noise filtered by its square root has that covariance.
+to zero); white noise filtered by its square root has that covariance.  The spectral
+amplitude is computed once (:class:`SpectralSimulator`) and reused for every realisation.
 
 References
 ----------
@@ -16,7 +17,106 @@ import numpy as np
 
 from blockmodel.variography.models import VariogramModel
 
-__all__ = ["simulate_gaussian"]
+__all__ = ["SpectralSimulator", "simulate_gaussian"]
+
+# largest share of the spectrum that may be negative (and clipped) in an automatic embedding
+NEGATIVE_TOLERANCE = 1e-4
+
+
+def _reach(model: VariogramModel) -> np.ndarray:
+    """Half-extent (3,) along x, y, z of the largest range ellipsoid of the model, metres."""
+    out = np.zeros(3)
+    for s in model.structures:
+        axes = s.orientation.axes()  # rows: major, semi, minor as unit vectors
+        out = np.maximum(out, np.sqrt(((np.asarray(s.ranges)[:, None] * axes) ** 2).sum(0)))
+    return out
+
+
+class SpectralSimulator:
+    """Zero-mean Gaussian fields with a model's covariance on one regular grid.
+
+    Parameters
+    ----------
+    shape : (nx, ny, nz)
+        Nodes along x, y, z.
+    spacing : (3,) float, metres between nodes
+    model : VariogramModel
+        Its covariance (nugget included as white noise at the nodes).
+    padding : (3,) int, optional
+        Extra nodes per axis for the periodic embedding; default: the model's reach along
+        each axis, grown (x1.5, x2, x3) while more than 0.01 % of the spectrum is negative.
+    workers : int
+        Threads for the Fourier transforms (results do not depend on it).
+    """
+
+    def __init__(
+        self,
+        shape: tuple[int, int, int],
+        spacing: tuple[float, float, float],
+        model: VariogramModel,
+        *,
+        padding: tuple[int, int, int] | None = None,
+        workers: int = 1,
+    ):
+
+        spacing = np.asarray(spacing, dtype=np.float64)
+        self.shape = tuple(int(a) for a in shape)
+        self.workers = int(workers)
+        if padding is not None:
+            self._embed(tuple(int(p) for p in padding), spacing, model)
+            return
+        # padding by the model's reach along each axis, grown until the embedded covariance
+        # is positive definite (no negative spectrum to clip; Dietrich & Newsam 1997)
+        reach = _reach(model)
+        for factor in (1.0, 1.5, 2.0, 3.0):
+            self._embed(
+                tuple(int(np.ceil(factor * reach[a] / spacing[a])) for a in range(3)),
+                spacing,
+                model,
+            )
+            if self.negative_share <= NEGATIVE_TOLERANCE:
+                break
+
+    def _embed(self, padding, spacing, model) -> None:
+        from scipy import fft
+
+        # even lengths keep the real transforms' sizes simple; the padding only grows
+        self.padded = tuple(
+            int(a + b + (a + b) % 2) for a, b in zip(self.shape, padding, strict=True)
+        )
+        n = self.padded
+        # signed, wrapped lags: anisotropy needs the sign
+        lags = [
+            np.where(np.arange(m) <= m // 2, np.arange(m), np.arange(m) - m) * d
+            for m, d in zip(n, spacing, strict=True)
+        ]
+        cov = np.empty(n)
+        gy, gz = np.meshgrid(lags[1], lags[2], indexing="ij")
+        plane = np.column_stack([np.zeros(gy.size), gy.ravel(), gz.ravel()])
+        for i, hx in enumerate(lags[0]):
+            plane[:, 0] = hx
+            cov[i] = model.structured_covariance(plane).reshape(n[1], n[2])
+        cov[0, 0, 0] += model.nugget
+        spectrum = fft.rfftn(cov, workers=self.workers).real
+        del cov
+        # share of the spectrum lost where it is negative and clipped (0 when exact)
+        self.negative_share = float(-spectrum[spectrum < 0].sum() / np.abs(spectrum).sum())
+        self.amplitude = np.sqrt(np.clip(spectrum, 0.0, None))
+
+    @property
+    def cells(self) -> int:
+        """Nodes of the padded grid (the size of each transform)."""
+        return int(np.prod(self.padded))
+
+    def draw(self, rng: np.random.Generator) -> np.ndarray:
+        """One realisation, (nx, ny, nz) float64 indexed [i, j, k] (x, y, z)."""
+        from scipy import fft
+
+        noise = fft.rfftn(rng.standard_normal(self.padded), workers=self.workers)
+        noise *= self.amplitude
+        field = fft.irfftn(noise, s=self.padded, axes=(0, 1, 2), workers=self.workers)
+        nx, ny, nz = self.shape
+        return np.ascontiguousarray(field[:nx, :ny, :nz])
 
 
 def simulate_gaussian(
@@ -43,27 +143,4 @@ def simulate_gaussian(
     -------
     (nx, ny, nz) float64, indexed [i, j, k] (x, y, z)
     """
-    spacing = np.asarray(spacing, dtype=np.float64)
-    if padding is None:
-        reach = max(max(s.ranges) for s in model.structures) if model.structures else 0.0
-        padding = tuple(int(np.ceil(reach / d)) for d in spacing)
-    n = tuple(int(a + b) for a, b in zip(shape, padding, strict=True))
-    # signed, wrapped lags: anisotropy needs the sign
-    lags = [
-        np.where(np.arange(m) <= m // 2, np.arange(m), np.arange(m) - m) * d
-        for m, d in zip(n, spacing, strict=True)
-    ]
-    cov = np.empty(n)
-    gy, gz = np.meshgrid(lags[1], lags[2], indexing="ij")
-    plane = np.column_stack([np.zeros(gy.size), gy.ravel(), gz.ravel()])
-    for i, hx in enumerate(lags[0]):
-        plane[:, 0] = hx
-        cov[i] = model.structured_covariance(plane).reshape(n[1], n[2])
-    cov[0, 0, 0] += model.nugget
-    spectrum = np.fft.rfftn(cov)
-    del cov
-    amplitude = np.sqrt(np.clip(spectrum.real, 0.0, None))
-    del spectrum
-    noise = np.fft.rfftn(rng.standard_normal(n))
-    field = np.fft.irfftn(amplitude * noise, s=n, axes=(0, 1, 2))
-    return np.ascontiguousarray(field[: shape[0], : shape[1], : shape[2]])
+    return SpectralSimulator(shape, spacing, model, padding=padding).draw(rng)

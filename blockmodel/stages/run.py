@@ -16,6 +16,7 @@ from blockmodel.stages.declustering import Declustering, decluster
 from blockmodel.stages.domain_model import DomainModel, build_domain_model
 from blockmodel.stages.estimate import classify, estimate_block_model
 from blockmodel.stages.neighbourhood import Neighbourhood, neighbourhood_analysis
+from blockmodel.stages.simulation import Simulation, simulate
 from blockmodel.stages.support import Support, support_curves
 from blockmodel.stages.tables import (
     TruthCheck,
@@ -41,11 +42,30 @@ class EngineOptions:
 
 class Steps:
     """Announces each step on ``say`` as it starts, keeps its duration in ``timings``
-    (seconds) and passes every warning to ``warn`` as it arises."""
+    (seconds), passes every warning to ``warn`` as it arises, and progress within a long
+    step to ``progress``."""
 
-    def __init__(self, say: Callable[[str], None], warn: Callable[[str], None]):
+    def __init__(
+        self,
+        say: Callable[[str], None],
+        warn: Callable[[str], None],
+        progress: Callable[[str], None] | None = None,
+    ):
         self.say, self.warn = say, warn
+        self.progress = progress or (lambda message: None)
         self.timings: dict[str, float] = {}
+
+    def counter(self, name: str) -> Callable[[str, int, int], None]:
+        """A progress callback ``(key, done, total)`` for step ``name``: shows the count
+        and the rate on :attr:`progress` (a terminal line; nothing in logs)."""
+        start = time.perf_counter()
+
+        def report(key: str, done: int, total: int) -> None:
+            rate = done / max(time.perf_counter() - start, 1e-9)
+            end = "\n" if done == total else ""  # a finished count keeps its line
+            self.progress(f"  {name} {key}: {done}/{total} ({rate:.2f}/s){end}")
+
+        return report
 
     def data_warnings(self, problems) -> None:
         """The first 20 warnings about the data tables (all are in the report)."""
@@ -82,6 +102,7 @@ class RunResults:
     truth: TruthCheck | None
     warnings: tuple[str, ...]
     timings: dict[str, float] = field(default_factory=dict)
+    simulation: Simulation | None = None
 
     @property
     def models(self) -> dict:
@@ -144,6 +165,21 @@ def run_stages(
         truth = truth_check(project, domains.grid, blocks)
     if truth is not None and truth.problem:
         warn(truth.problem)
+    sim = None
+    if project.simulation.in_run:
+        with steps("conditional simulation"):
+            grid = domains.grid
+            sim = simulate(
+                project,
+                composites.table,
+                decl,
+                vario,
+                grid.origin,
+                grid.block_size,
+                blocks,
+                cluster=engine.cluster or "",
+                progress=steps.counter("realisations"),
+            )
     return RunResults(
         project,
         composites,
@@ -159,4 +195,5 @@ def run_stages(
         truth,
         tuple(warnings),
         dict(steps.timings),
+        sim,
     )

@@ -27,7 +27,7 @@ from blockmodel.variography.fitting import (
 )
 from blockmodel.variography.models import Structure, VariogramModel
 
-__all__ = ["Variography", "variography"]
+__all__ = ["Variography", "domain_variography", "scaled_model", "variography"]
 
 
 @dataclass(frozen=True)
@@ -101,7 +101,8 @@ def _model_from_spec(spec) -> VariogramModel:
     )
 
 
-def _scaled(model: VariogramModel, factor: float) -> VariogramModel:
+def scaled_model(model: VariogramModel, factor: float) -> VariogramModel:
+    """``model`` with its nugget and sills multiplied by ``factor`` (ranges unchanged)."""
     return VariogramModel(
         model.nugget * factor,
         [Structure(s.kind, s.sill * factor, s.ranges, s.orientation) for s in model.structures],
@@ -129,15 +130,22 @@ def variography(
         in_domain = (table["domain"] == d.name).to_numpy()
         for g in project.grades:
             ok = in_domain & table[g].notna().to_numpy()
-            out[f"{d.name}.{g}"] = _one(project, d.name, g, table[ok], weights[ok])
+            out[f"{d.name}.{g}"] = domain_variography(project, d.name, g, table[ok], weights[ok])
     return out
 
 
-def _one(
-    project: Project, domain: str, grade: str, sub: pd.DataFrame, decl: np.ndarray
+def domain_variography(
+    project: Project,
+    domain: str,
+    grade: str,
+    sub: pd.DataFrame,
+    decl: np.ndarray,
+    *,
+    scan: bool = True,
 ) -> Variography:
     """Variography of one domain and grade from its composites ``sub`` (grade present)
-    and their declustering weights."""
+    and their declustering weights; ``scan=False`` leaves out the fan of directions (a
+    figure only)."""
     v = project.variography
     key = f"{domain}.{grade}"
     pts = sub[["x", "y", "z"]].to_numpy(float)
@@ -185,9 +193,9 @@ def _one(
         estimator=v.estimator,
         weights=None if common["weights"] is None else common["weights"][drilled],
     )
-    scan = None
-    if len(values) > 1:
-        scan = scan_directions(
+    fan = None
+    if scan and len(values) > 1:
+        fan = scan_directions(
             pts,
             values,
             np.arange(0.0, 180.0, 15.0),
@@ -216,7 +224,7 @@ def _one(
                 project.source, "variography", f"cannot fit a variogram for {key}: {exc}"
             ) from None
         # standardised variograms: sills scaled to the declustered variance (common practice)
-        model = _scaled(fit.model, scale)
+        model = scaled_model(fit.model, scale)
     return Variography(
         domain,
         grade,
@@ -227,7 +235,7 @@ def _one(
         "fitted" if fit is not None else "project file",
         scale=scale,
         scores=scores,
-        scan=scan,
+        scan=fan,
         orientation_fit=orientation_fit,
         fit=fit,
         downhole_direction=along,

@@ -1,0 +1,240 @@
+"""The conditional simulation rendered: its files (per-block summary, grade-tonnage bands,
+realisations on request), its figures (every realisation's grade-tonnage curve with the
+P10-P90 band over the kriged and change-of-support curves) and its report section."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from blockmodel.assess.uncertainty import quantile_bands
+from blockmodel.config.project import Project
+from blockmodel.report.figures import CLASS_COLOURS, pyplot, save_png
+from blockmodel.report.files import safe_stem, write_table
+from blockmodel.report.html import HtmlReport
+from blockmodel.report.tables import metal_units, round_significant
+from blockmodel.stages.simulation import Simulation
+
+__all__ = ["render_simulation", "simulation_grade_tonnage", "write_simulation_files"]
+
+CAUTION = (
+    "The bands are the spread of the realisations under the stated model: one stationary "
+    "Gaussian field per domain, this variogram of the normal scores, these tails and these "
+    "domain boundaries. They leave out the uncertainty of the geological interpretation, "
+    "the density, the variogram itself and the sampling and assaying, so the real "
+    "uncertainty is wider. They are evidence for the qualified person's judgement of "
+    "relative accuracy and confidence under the applicable reporting code, not a "
+    "substitute for it."
+)
+
+
+def simulation_grade_tonnage(project: Project, sim: Simulation, blocks: pd.DataFrame):
+    """The bands of every grade in one table: ``grade_name`` and ``metal_unit`` columns
+    added, metal in the grade's first metal unit (troy oz for g/t, t for %)."""
+    frames = []
+    for g in project.grades:
+        unit, factor = metal_units(project.data.grades[g])[0]
+        table = sim.grade_tonnage(blocks, g)
+        metal = [c for c in table if c.startswith("metal_") and c != "metal_cv"]
+        table[metal] = table[metal] * factor
+        frames.append(table.assign(grade_name=g, metal_unit=unit))
+    return pd.concat(frames, ignore_index=True)
+
+
+def write_simulation_files(project: Project, sim: Simulation, blocks, folder: Path) -> None:
+    """``simulation_summary.parquet`` (per block), ``simulation_grade_tonnage.csv`` and,
+    when the project asks, ``simulation_realisations.parquet`` (long: one row per block,
+    grade and realisation)."""
+    summary = sim.block_table(blocks)
+    summary.to_parquet(folder / "simulation_summary.parquet", index=False)
+    write_table(
+        simulation_grade_tonnage(project, sim, blocks), folder / "simulation_grade_tonnage.csv"
+    )
+    if project.simulation.keep_realisations:
+        sim.realisation_table(blocks).to_parquet(
+            folder / "simulation_realisations.parquet", index=False
+        )
+
+
+def render_simulation(
+    project: Project,
+    sim: Simulation,
+    blocks: pd.DataFrame,
+    folder: Path,
+    report: HtmlReport,
+    *,
+    kriged: dict[str, pd.DataFrame] | None = None,
+    support=None,
+) -> None:
+    """The report section: method, models, a band figure per domain and grade, and the
+    band tables (all classes at every cut-off; each class at the statement cut-off).
+
+    Parameters
+    ----------
+    kriged : dict of grade to grade-tonnage table, optional
+        The kriged curves drawn under the bands.
+    support : Support, optional
+        The change-of-support curves (first grade) drawn under the bands.
+    """
+    s = project.simulation
+    report.heading("Uncertainty: conditional simulation")
+    disc = s.discretisation or project.estimation.discretisation
+    spacing = " x ".join(f"{b / d:g}" for b, d in zip(project.grid.block_size, disc, strict=True))
+    tail = f"hyperbolic (omega {s.omega:g})" if s.upper_tail == "hyperbolic" else "linear"
+    report.paragraph(
+        f"{sim.realisations} realisations (seed {sim.seed}) per domain and grade. Normal "
+        "scores of the declustered composites; an unconditional Gaussian field on nodes "
+        f"{spacing} m apart (the block discretisation), made by the spectral (FFT) method, "
+        f"conditioned by simple kriging of its residuals from the {s.neighbours} nearest "
+        "composites of the domain (hard boundaries; each composite moved to the node it "
+        "falls in); back-transformed to grades (lower tail linear to "
+        f"{s.minimum:g}, upper tail {tail} up to the maximum below) and averaged over each "
+        "block's nodes. Each block is a selective mining unit here; its tonnes are the "
+        "block model's. Grades are simulated independently of each other."
+    )
+    report.box("caution")
+    report.paragraph(CAUTION)
+    report.end_box()
+    rows = []
+    for key, d in sim.by_key.items():
+        m = d.model
+        structures = "; ".join(
+            f"{st.kind} {st.sill:.2f} to ({', '.join(f'{r:.0f}' for r in st.ranges)}) m"
+            for st in m.structures
+        )
+        rows.append(
+            {
+                "domain.grade": key,
+                "normal-score model": f"nugget {m.nugget:.2f}; {structures}",
+                "source": d.model_source,
+                "maximum": d.transform.maximum,
+                "composites": d.data,
+                "sharing a node (dropped)": d.data_dropped,
+                "nodes": d.nodes,
+                "FFT grid nodes": d.fft_cells,
+                "preparation (s)": d.timings["preparation"],
+                "realisations (s)": d.timings["realisations"],
+            }
+        )
+    report.table(pd.DataFrame(rows))
+    table = simulation_grade_tonnage(project, sim, blocks)
+    for g in project.grades:
+        unit = project.data.grades[g]
+        metal_unit, factor = metal_units(unit)[0]
+        curves = sim.curves(blocks, g)
+        present = {k[0] for k in curves}
+        for domain in [d.name for d in project.domains if d.name in present] + ["all"]:
+            p = folder / f"simulation_grade_tonnage_{safe_stem(domain)}_{safe_stem(g)}.png"
+            cos = None
+            if support is not None and support.grade == g and domain in support.by_domain:
+                cos = support.by_domain[domain].curve
+            _bands_figure(
+                sim.cutoffs,
+                {c: v for (d, c), v in curves.items() if d == domain},
+                None if kriged is None else kriged[g][kriged[g]["domain"] == domain],
+                cos,
+                (g, unit, metal_unit, factor, domain),
+                p,
+            )
+            report.image(
+                p,
+                f"{domain}, {g}: grade-tonnage curves of the {sim.realisations} realisations "
+                "(grey), their P10-P90 band and P50, over the kriged blocks and the "
+                "change-of-support curve",
+            )
+        rows = table[(table["grade_name"] == g) & (table["class"] == "all")]
+        report.paragraph(
+            f"{g}: P10, P50 and P90 over the realisations at each cut-off, all classes "
+            f"(tonnes and metal to 3 significant figures; metal in {metal_unit})."
+        )
+        report.table(_shown(rows, unit, metal_unit))
+        cut = {d.name: project.statement_cutoff(d.name) for d in project.domains if d.estimate}
+        by_class = table[
+            (table["grade_name"] == g)
+            & (table["domain"] != "all")
+            & (table["cutoff"] == table["domain"].map(cut))
+        ]
+        if len(by_class):
+            report.paragraph(f"{g}: by class at each domain's statement cut-off.")
+            report.table(_shown(by_class, unit, metal_unit))
+
+
+def _shown(rows: pd.DataFrame, unit: str, metal_unit: str) -> pd.DataFrame:
+    """Band rows as a reader sees them: tonnes and metal to 3 significant figures."""
+    out = rows[["domain", "class", "cutoff"]].copy()
+    for q in ("p10", "p50", "p90"):
+        out[f"Mt {q.upper()}"] = round_significant(rows[f"tonnes_{q}"] / 1e6, 3)
+    for q in ("p10", "p50", "p90"):
+        out[f"grade {q.upper()} ({unit})"] = rows[f"grade_{q}"].round(3)
+    for q in ("p10", "p50", "p90"):
+        out[f"metal {q.upper()} ({metal_unit})"] = round_significant(rows[f"metal_{q}"], 3)
+    out["metal CV"] = rows["metal_cv"].round(3)
+    return out.reset_index(drop=True)
+
+
+def _bands_figure(cutoffs, by_class: dict, kriged, cos, labels, path: Path) -> None:
+    """Tonnes, grade and metal against cut-off: one row for all classes, one per class;
+    grey lines for the realisations, the P10-P90 band and P50 in the class's colour, the
+    kriged curve dashed and the change-of-support curve dotted (all classes)."""
+    grade, unit, metal_unit, factor, domain = labels
+    plt = pyplot()
+    classes = list(by_class)
+    fig, axes = plt.subplots(
+        len(classes), 3, figsize=(11, 2.6 * len(classes) + 0.6), squeeze=False, sharex=True
+    )
+    for row, cls in enumerate(classes):
+        t, m = by_class[cls]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            g = np.where(t > 0, m / t, np.nan)
+        colour = CLASS_COLOURS.get(cls, "#000000")
+        k = None
+        if kriged is not None:
+            k = kriged[(kriged["class"] == cls)].drop_duplicates("cutoff").set_index("cutoff")
+            k = k.reindex(cutoffs)
+        panels = (
+            ("tonnes (Mt)", t / 1e6, None if k is None else k["tonnes"] / 1e6),
+            (f"grade ({unit})", g, None if k is None else k["grade"]),
+            (
+                f"metal ({metal_unit})",
+                m * factor,
+                None if k is None else k["tonnes"] * k["grade"] * factor,
+            ),
+        )
+        for col, (label, values, krig) in enumerate(panels):
+            ax = axes[row, col]
+            ax.plot(cutoffs, values.T, color="#BBBBBB", lw=0.5)
+            bands = quantile_bands(values)
+            lo, mid, hi = bands["p10"], bands["p50"], bands["p90"]
+            ax.fill_between(cutoffs, lo, hi, color=colour, alpha=0.3, label="P10-P90")
+            ax.plot(cutoffs, mid, color=colour, lw=2, label="P50")
+            if krig is not None:
+                ax.plot(cutoffs, np.asarray(krig, dtype=float), "k--", lw=1.2, label="kriged")
+            if cos is not None and cls == "all":
+                cos_values = {
+                    0: cos.tonnes / 1e6,
+                    1: cos.grade,
+                    2: cos.tonnes * np.nan_to_num(cos.grade) * factor,
+                }[col]
+                ax.plot(cutoffs, cos_values, "k:", lw=1.5, label="change of support")
+            ax.set_ylabel(label)
+            ax.grid(alpha=0.3)
+            if col == 0:
+                ax.set_title(f"{cls}", loc="left", fontsize=10)
+        for ax in axes[-1]:
+            ax.set_xlabel(f"cut-off ({unit})")
+    handles, names = axes[0, 0].get_legend_handles_labels()
+    top = 1.0 - 0.7 / fig.get_figheight()  # room for the title and the legend, in inches
+    fig.suptitle(f"{domain}, {grade}: realisations and bands", y=1.0 - 0.15 / fig.get_figheight())
+    fig.legend(
+        handles,
+        names,
+        loc="upper center",
+        bbox_to_anchor=(0.5, top + 0.4 / fig.get_figheight()),
+        ncol=4,
+        fontsize=9,
+        frameon=False,
+    )
+    fig.tight_layout(rect=(0, 0, 1, top))
+    save_png(fig, path)

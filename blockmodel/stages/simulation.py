@@ -1,0 +1,358 @@
+"""Conditional simulation as a stage: per estimated domain and grade, a Gaussian
+framework (declustered normal scores, their variogram), realisations of block grades
+conditioned to the domain's composites (hard boundaries, as in estimation), and what the
+realisations say per block and per domain and class."""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+import time
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from blockmodel.assess.uncertainty import block_summary, quantile_bands, realisation_curves
+from blockmodel.config.project import Project
+from blockmodel.errors import setting_error
+from blockmodel.simulation.conditional import plan_simulation, simulate_blocks
+from blockmodel.simulation.transform import GaussianTransform, gaussian_transform
+from blockmodel.stages.declustering import Declustering
+from blockmodel.stages.tables import class_order
+from blockmodel.stages.variography import Variography, domain_variography, scaled_model
+from blockmodel.variography.models import VariogramModel
+
+__all__ = ["DomainSimulation", "Simulation", "simulate"]
+
+
+@dataclass(frozen=True)
+class DomainSimulation:
+    """The realisations of one domain and grade.
+
+    Attributes
+    ----------
+    domain, grade : str
+    model : VariogramModel
+        Of the normal scores (total sill 1).
+    model_source : str
+        ``fitted to the normal scores`` or ``grade model standardised``.
+    transform : GaussianTransform
+    rows : (b,) int64
+        Rows of the block model simulated (the domain's estimated blocks).
+    grades : (b, r) float64
+        Block grades of every realisation.
+    nodes : int
+        Simulated nodes inside the domain's blocks.
+    fft_cells : int
+        Nodes of the padded grid of the unconditional simulation.
+    data : int
+        Conditioning composites; ``data_dropped`` of them shared a node with a nearer one.
+    data_dropped : int
+    timings : dict
+        Seconds: ``preparation`` (transform, variogram, kriging weights, spectrum),
+        ``realisations`` (unconditional fields, conditioning, back-transform, block averages).
+    """
+
+    domain: str
+    grade: str
+    model: VariogramModel
+    model_source: str
+    transform: GaussianTransform
+    rows: np.ndarray
+    grades: np.ndarray
+    nodes: int
+    fft_cells: int
+    data: int
+    data_dropped: int
+    timings: dict[str, float]
+
+
+@dataclass(frozen=True)
+class Simulation:
+    """Every domain and grade simulated, with the cut-offs to report at.
+
+    Attributes
+    ----------
+    realisations, seed : int
+    cutoffs : (k,) float64
+    by_key : dict of ``domain.grade`` to DomainSimulation
+    classes : list of str, confidence order
+    """
+
+    realisations: int
+    seed: int
+    cutoffs: np.ndarray
+    by_key: dict[str, DomainSimulation]
+    classes: list[str]
+
+    def block_table(self, blocks: pd.DataFrame) -> pd.DataFrame:
+        """Per simulated block row: position, domain, tonnes, class and, per grade,
+        ``<g>_etype, <g>_sim_variance, <g>_p10, <g>_p50, <g>_p90`` and
+        ``<g>_above_<cutoff>`` (probability at or above)."""
+        keep = ["x", "y", "z", "i", "j", "k", "domain", "tonnes", "class"]
+        frames = []
+        for d in dict.fromkeys(s.domain for s in self.by_key.values()):
+            sims = [s for s in self.by_key.values() if s.domain == d]
+            rows = sims[0].rows
+            frame = blocks.iloc[rows][[c for c in keep if c in blocks]].reset_index(drop=True)
+            for s in sims:
+                for name, values in block_summary(s.grades, self.cutoffs).items():
+                    label = {"mean": "etype", "variance": "sim_variance"}.get(name, name)
+                    frame[f"{s.grade}_{label}"] = values
+            frames.append(frame)
+        return pd.concat(frames, ignore_index=True)
+
+    def realisation_table(self, blocks: pd.DataFrame) -> pd.DataFrame:
+        """Every realisation's block grades, long: ``domain, i, j, k, realisation`` and one
+        column per grade."""
+        frames = []
+        for s in self.by_key.values():
+            b = blocks.iloc[s.rows]
+            n, r = s.grades.shape
+            frames.append(
+                pd.DataFrame(
+                    {
+                        "domain": s.domain,
+                        "grade_name": s.grade,
+                        "i": np.repeat(b["i"].to_numpy(), r),
+                        "j": np.repeat(b["j"].to_numpy(), r),
+                        "k": np.repeat(b["k"].to_numpy(), r),
+                        "realisation": np.tile(np.arange(r), n),
+                        "value": s.grades.ravel(),
+                    }
+                )
+            )
+        return pd.concat(frames, ignore_index=True)
+
+    def curves(self, blocks: pd.DataFrame, grade: str) -> dict[tuple[str, str], tuple]:
+        """Tonnes and metal (tonnes x grade units) above each cut-off in every realisation,
+        (r, k) each, per (domain, class) with ``all`` totals; realisation r of every
+        domain adds up to realisation r of the total."""
+        out: dict[tuple[str, str], list] = {}
+        for s in self.by_key.values():
+            if s.grade != grade:
+                continue
+            b = blocks.iloc[s.rows]
+            tonnes = b["tonnes"].to_numpy(float)
+            classes = b["class"].to_numpy() if "class" in b else np.full(len(b), "all")
+            groups = [("all", np.ones(len(b), dtype=bool))]
+            groups += [(c, classes == c) for c in self.classes if (classes == c).any()]
+            for cls, mask in groups:
+                t, m = realisation_curves(tonnes[mask], s.grades[mask], self.cutoffs)
+                for key in ((s.domain, cls), ("all", cls)):
+                    if key in out:
+                        out[key][0] = out[key][0] + t
+                        out[key][1] = out[key][1] + m
+                    else:
+                        out[key] = [t, m]
+        return {k: tuple(v) for k, v in out.items()}
+
+    def grade_tonnage(self, blocks: pd.DataFrame, grade: str) -> pd.DataFrame:
+        """Per domain, class and cut-off: P10, P50, P90, mean and coefficient of variation
+        of the tonnes, grade and metal (tonnes x grade units) over the realisations."""
+        rows = []
+        order = {c: n for n, c in enumerate(["all", *self.classes])}
+        keys = sorted(
+            self.curves(blocks, grade).items(),
+            key=lambda kv: (kv[0][0] != "all", kv[0][0], order.get(kv[0][1], 99)),
+        )
+        for (domain, cls), (t, m) in keys:
+            with np.errstate(invalid="ignore", divide="ignore"):
+                g = np.where(t > 0, m / t, np.nan)
+            bands = {
+                "tonnes": quantile_bands(t),
+                "grade": quantile_bands(g),
+                "metal": quantile_bands(m),
+            }
+            for n, c in enumerate(self.cutoffs):
+                row = {"domain": domain, "class": cls, "cutoff": float(c)}
+                for quantity, b in bands.items():
+                    for stat, values in b.items():
+                        row[f"{quantity}_{stat}"] = float(values[n])
+                rows.append(row)
+        return pd.DataFrame(rows)
+
+
+def simulate(
+    project: Project,
+    composites: pd.DataFrame,
+    declustering: Declustering,
+    variography: dict[str, Variography],
+    grid_origin,
+    block_size,
+    blocks: pd.DataFrame,
+    *,
+    realisations: int | None = None,
+    seed: int | None = None,
+    workers: int | None = None,
+    cluster: str = "",
+    progress: Callable[[str, int, int], None] | None = None,
+) -> Simulation:
+    """Simulate every estimated domain and grade.
+
+    Parameters
+    ----------
+    project : Project
+        ``[simulation]`` settings; ``realisations``, ``seed`` and ``workers`` override them.
+    composites : DataFrame
+        The composites (their domain, position and grades).
+    declustering : Declustering
+        Weights of the composites, for the normal-score transform.
+    variography : dict
+        The grade variography per ``domain.grade`` (its orientation and model).
+    grid_origin, block_size : (3,) float, metres
+    blocks : DataFrame
+        The estimated (and classified) block model: ``i, j, k, domain, tonnes`` and the
+        grades; blocks whose grade was estimated are simulated.
+    cluster : str
+        Address of a running ``dask.distributed`` scheduler; empty: this machine.
+    progress : callable(key, done, total), optional
+        Called after each batch of realisations.
+
+    Returns
+    -------
+    Simulation
+    """
+    s = project.simulation
+    realisations = s.realisations if realisations is None else int(realisations)
+    seed = s.seed if seed is None else int(seed)
+    workers = s.workers if workers is None else int(workers)
+    threads = workers or os.cpu_count() or 1
+    disc = s.discretisation or project.estimation.discretisation
+    out = {}
+    keys = [(d, g) for d in project.domains if d.estimate for g in project.grades]
+    for stream, (d, g) in enumerate(keys):
+        key = f"{d.name}.{g}"
+        start = time.perf_counter()
+        rows = np.flatnonzero(
+            (blocks["domain"] == d.name).to_numpy() & np.isfinite(blocks[g].to_numpy(float))
+        )
+        if len(rows) == 0:
+            continue
+        own = ((composites["domain"] == d.name) & composites[g].notna()).to_numpy()
+        values = composites.loc[own, g].to_numpy(float)
+        maximum = s.maximum.get(key)
+        if maximum is not None and maximum < values.max():
+            raise setting_error(
+                project.source,
+                f"simulation.maximum.{key}",
+                f"the maximum {maximum:g} is below the largest composite ({values.max():g})",
+            )
+        scores, transform = gaussian_transform(
+            values,
+            declustering.weights[own],
+            minimum=min(s.minimum, float(values.min())),
+            maximum=maximum,
+            upper_tail=s.upper_tail,
+            omega=s.omega,
+        )
+        model, source = _score_model(
+            project, key, composites[own], declustering.weights[own], variography[key]
+        )
+        plan = plan_simulation(
+            blocks.iloc[rows][["i", "j", "k"]].to_numpy(np.int64),
+            np.asarray(grid_origin, dtype=float),
+            np.asarray(block_size, dtype=float),
+            tuple(disc),
+            composites.loc[own, ["x", "y", "z"]].to_numpy(float),
+            scores,
+            model,
+            transform,
+            (seed, stream),
+            neighbours=s.neighbours,
+            workers=1,
+        )
+        prepared = time.perf_counter()
+        grades = _run(plan, realisations, threads, key, progress, cluster)
+        out[key] = DomainSimulation(
+            d.name,
+            g,
+            model,
+            source,
+            transform,
+            rows,
+            grades,
+            len(plan.targets),
+            plan.simulator.cells,
+            len(values),
+            plan.relocated_dropped,
+            {
+                "preparation": round(prepared - start, 3),
+                "realisations": round(time.perf_counter() - prepared, 3),
+            },
+        )
+    cutoffs = np.asarray(project.report.cutoffs, dtype=float)
+    return Simulation(realisations, seed, cutoffs, out, class_order(project))
+
+
+def _run(plan, realisations: int, threads: int, key: str, progress, cluster: str) -> np.ndarray:
+    """The realisations in batches, progress after each: threads within a batch on this
+    machine, or one task per batch on a ``dask.distributed`` cluster (the plan sent to
+    every worker once)."""
+    size = max(threads, min(10, realisations))
+    batches = [(f, min(size, realisations - f)) for f in range(0, realisations, size)]
+    parts: dict[int, np.ndarray] = {}
+    if cluster:
+        try:
+            from distributed import Client, as_completed
+        except ImportError:
+            raise RuntimeError(
+                "a cluster needs the 'cluster' extra: pip install 'blockmodel[cluster]'"
+            ) from None
+        with Client(cluster) as client:
+            remote = client.scatter(plan, broadcast=True)
+            tasks = {client.submit(simulate_blocks, remote, n, first=f): f for f, n in batches}
+            for task in as_completed(tasks):
+                parts[tasks[task]] = task.result()
+                if progress is not None:
+                    progress(key, sum(p.shape[1] for p in parts.values()), realisations)
+    else:
+        for f, n in batches:
+            parts[f] = simulate_blocks(plan, n, threads=threads, first=f)
+            if progress is not None:
+                progress(key, f + n, realisations)
+    return np.concatenate([parts[f] for f, _ in batches], axis=1)
+
+
+def _score_model(
+    project: Project, key: str, composites: pd.DataFrame, weights: np.ndarray, grade: Variography
+) -> tuple[VariogramModel, str]:
+    """The normal scores' variogram model (total sill 1) and where it came from: with
+    ``fit``, the structures' kinds, ranges and orientation of the grade model, and the
+    nugget and sills fitted to the normal scores' experimental variograms along its axes."""
+    m = grade.model
+    if project.simulation.model == "standardised" or not m.structures:
+        return scaled_model(m, 1.0 / m.total_sill), "grade model standardised to sill 1"
+    o = m.structures[0].orientation
+    ranges = {
+        f"range{k + 1}_{axis}": r
+        for k, st in enumerate(m.structures)
+        for axis, r in zip(("major", "semi", "minor"), st.ranges, strict=True)
+    }
+    v = dataclasses.replace(
+        project.variography,
+        transform="normal_scores",
+        estimator="semivariogram",
+        orientation=(o.azimuth, o.plunge, o.tilt),
+        structures=len(m.structures),
+        kinds=tuple(st.kind for st in m.structures),
+        fixed=ranges,
+    )
+    scores_project = dataclasses.replace(project, variography=v, variogram={})
+    fitted = domain_variography(
+        scores_project, grade.domain, grade.grade, composites, weights, scan=False
+    )
+    model = fitted.fit.model
+    # the grade model's orientation per structure (the fit takes the first's for all)
+    model = VariogramModel(
+        model.nugget,
+        [
+            dataclasses.replace(st, orientation=g.orientation)
+            for st, g in zip(model.structures, m.structures, strict=True)
+        ],
+    )
+    return scaled_model(
+        model, 1.0 / model.total_sill
+    ), "nugget and sills fitted to the normal scores"
