@@ -16,6 +16,9 @@ experimental_variogram, fit_variogram
     Directional, omnidirectional and downhole variograms; weighted least-squares fits.
 cell_declustering, change_of_support, grade_tonnage
     Declustering weights; discrete Gaussian change of support; grade–tonnage tables.
+simulate_gaussian, gaussian_transform, plan_simulation, simulate_blocks
+    Unconditional spectral fields; normal scores with stated tails; conditional
+    simulation of block grades (prepared once, realisations reproducible one by one).
 
 A project, stage by stage (each returns a frozen result; none changes its inputs)
 ----------------------------------------------------------------------------------
@@ -23,7 +26,7 @@ load_project
     Read and check a project file.
 load_and_composite, build_domain_model, decluster, variograms,
 neighbourhood_analysis, estimate_block_model, classify, validate, support_curves,
-grade_tonnage_tables, statement_tables
+grade_tonnage_tables, statement_tables, simulate
     The stages of a run, in order (``variograms`` is the variography stage; the name
     ``variography`` is the subpackage).
 run_stages
@@ -49,6 +52,10 @@ _WHERE = {
     "cell_declustering": "blockmodel.assess.declustering",
     "change_of_support": "blockmodel.assess.support",
     "grade_tonnage": "blockmodel.report.tables",
+    "simulate_gaussian": "blockmodel.simulation.spectral",
+    "gaussian_transform": "blockmodel.simulation.transform",
+    "plan_simulation": "blockmodel.simulation.conditional",
+    "simulate_blocks": "blockmodel.simulation.conditional",
     "load_project": "blockmodel.config.project",
     "load_and_composite": "blockmodel.stages.composites",
     "build_domain_model": "blockmodel.stages.domain_model",
@@ -61,6 +68,7 @@ _WHERE = {
     "support_curves": "blockmodel.stages.support",
     "grade_tonnage_tables": "blockmodel.stages.tables",
     "statement_tables": "blockmodel.stages.tables",
+    "simulate": "blockmodel.stages.simulation",
     "run_stages": "blockmodel.stages.run",
     "write_run_files": "blockmodel.report.files",
     "read_run": "blockmodel.report.files",
