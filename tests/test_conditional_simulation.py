@@ -203,3 +203,52 @@ def test_a_run_can_include_the_simulation(tmp_path):
     assert (out / "simulation_summary.parquet").is_file()
     assert (out / "simulation_grade_tonnage_ore_cu.png").is_file()
     assert "Uncertainty: conditional simulation" in (out / "report.html").read_text()
+
+
+@pytest.mark.slow
+def test_demo_truth_lies_in_the_bands(tmp_path):
+    """On the invented demo, whose true blocks are known: per domain, the true block
+    tonnes and metal above each report cut-off inside the realisations' P10-P90 band at
+    80 % or more of the cut-offs with true tonnes, and the true metal above the middle
+    report cut-off (1.5 g/t) inside the P5-P95 band (acceptance bar of the simulation,
+    100 realisations)."""
+    from blockmodel.assess.uncertainty import realisation_curves
+    from blockmodel.config.project import load_project
+    from blockmodel.demo.deposit import write_demo
+    from blockmodel.stages.run import run_stages
+    from blockmodel.stages.simulation import simulate
+
+    write_demo(tmp_path / "demo")
+    project = load_project(tmp_path / "demo" / "project.toml")
+    results = run_stages(project)
+    grid = results.domains.grid
+    sim = simulate(
+        project,
+        results.composites.table,
+        results.declustering,
+        results.variography,
+        grid.origin,
+        grid.block_size,
+        results.blocks,
+        realisations=100,
+        workers=0,
+    )
+    truth = pd.read_parquet(project.truth)
+    cutoffs = np.asarray(project.report.cutoffs)
+    middle = cutoffs[len(cutoffs) // 2]
+    for key, s in sim.by_key.items():
+        b = results.blocks.iloc[s.rows].merge(
+            truth, on=["x", "y", "z", "domain"], how="left", validate="one_to_one"
+        )
+        known = b["au_true"].notna().to_numpy()
+        tonnes, true = b["tonnes"].to_numpy()[known], b["au_true"].to_numpy()[known]
+        t_true, m_true = realisation_curves(tonnes, true[:, None], cutoffs)
+        t_sim, m_sim = realisation_curves(tonnes, s.grades[known], cutoffs)
+        inside = []
+        for values, real in ((t_sim, t_true[0]), (m_sim, m_true[0])):
+            lo, hi = np.percentile(values, [10, 90], axis=0)
+            inside += list(((real >= lo) & (real <= hi))[t_true[0] > 0])
+        assert np.mean(inside) >= 0.8, (key, np.mean(inside))
+        k = int(np.flatnonzero(cutoffs == middle)[0])
+        lo, hi = np.percentile(m_sim[:, k], [5, 95])
+        assert lo <= m_true[0, k] <= hi, (key, lo, m_true[0, k], hi)

@@ -222,6 +222,31 @@ def scale_model(n_blocks: int, folder: str) -> dict:
     )
 
 
+def simulation_demo(realisations: int, discretisation: tuple[int, int, int]) -> dict:
+    """Conditional simulation of the demo lode (child process, for its peak memory):
+    seconds of preparation and of the realisations, split into unconditional fields,
+    conditioning and back to blocks (summed over threads)."""
+    return _child_peak(
+        "import dataclasses, tempfile, time\nfrom pathlib import Path\n"
+        "from blockmodel.demo.deposit import write_demo\n"
+        "from blockmodel.config.project import load_project\n"
+        "from blockmodel.stages.run import run_stages\n"
+        "from blockmodel.stages.simulation import simulate\n"
+        "folder = Path(tempfile.mkdtemp()) / 'demo'\nwrite_demo(folder)\n"
+        "p = load_project(folder / 'project.toml')\n"
+        "lode = [dataclasses.replace(d, estimate=d.name == 'lode') for d in p.domains]\n"
+        "p = dataclasses.replace(p, domains=tuple(lode))\n"
+        f"p = dataclasses.replace(p, simulation=dataclasses.replace(p.simulation, "
+        f"discretisation={tuple(discretisation)!r}))\n"
+        "r = run_stages(p)\ng = r.domains.grid\nt = time.perf_counter()\n"
+        "s = simulate(p, r.composites.table, r.declustering, r.variography, g.origin, "
+        f"g.block_size, r.blocks, realisations={realisations}, workers=0)\n"
+        "d = s.by_key['lode.au']\n"
+        "res = {'seconds': time.perf_counter() - t, 'nodes': d.nodes, 'fft': d.fft_cells, "
+        "'realisations': s.realisations, **d.timings}\n"
+    )
+
+
 def main(*, blocks: int = 200_000, quick: bool = False, scale: bool = False) -> None:
     """Print the benchmark figures."""
     import numba
@@ -256,6 +281,18 @@ def main(*, blocks: int = 200_000, quick: bool = False, scale: bool = False) -> 
         f"directional variogram of {v['composites']:,} composites ({v['pairs']:,} pairs): peak "
         f"{v['peak_mb']:,.0f} MB in {v['seconds']:.1f} s"
     )
+    sims = [(25, (4, 4, 2)), (100, (4, 4, 2)), (100, (2, 2, 1))]
+    for n, disc in sims[:1] if quick else sims:
+        s = simulation_demo(n, disc)
+        print(
+            f"conditional simulation, demo lode, {s['count']} realisations, "
+            f"{'x'.join(map(str, disc))} nodes per block ({s['nodes']:,} nodes, FFT grid "
+            f"{s['fft']:,}): {s['seconds']:.1f} s (target 100 in 600 s), peak "
+            f"{s['peak_mb']:,.0f} MB (target 4,096); preparation {s['preparation']:.1f} s, "
+            f"realisations {s['realisations']:.1f} s wall; "
+            f"CPU-s unconditional {s.get('unconditional', 0):.1f}, conditioning "
+            f"{s.get('conditioning', 0):.1f}, back to blocks {s.get('to_blocks', 0):.1f}"
+        )
     if scale:
         import tempfile
 

@@ -11,6 +11,7 @@ the same whatever the order, batching, threads or machines that compute it.
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass
 
 import numpy as np
@@ -80,19 +81,32 @@ class SimulationPlan:
     seed: tuple[int, ...]
     relocated_dropped: int
 
-    def realisation_scores(self, r: int) -> np.ndarray:
-        """Conditioned normal scores at the targets in realisation ``r``: (b * d,)."""
+    def realisation_scores(self, r: int, clock: dict | None = None) -> np.ndarray:
+        """Conditioned normal scores at the targets in realisation ``r``: (b * d,).
+        ``clock`` (optional) gathers the seconds of the unconditional field and of the
+        conditioning."""
+        start = time.perf_counter()
         field = self.simulator.draw(np.random.default_rng([*self.seed, r])).ravel()
+        drawn = time.perf_counter()
         residual = self.data_scores - field[self.data_nodes]
-        return field[self.targets] + self.weights.apply(residual)
+        out = field[self.targets] + self.weights.apply(residual)
+        if clock is not None:
+            clock["unconditional"] = clock.get("unconditional", 0.0) + drawn - start
+            clock["conditioning"] = clock.get("conditioning", 0.0) + time.perf_counter() - drawn
+        return out
 
-    def realisations(self, which) -> np.ndarray:
+    def realisations(self, which, clock: dict | None = None) -> np.ndarray:
         """Block grades (b, len(which)) of the realisations numbered ``which``: back-
-        transformed node grades averaged over each block's nodes."""
+        transformed node grades averaged over each block's nodes.  ``clock`` (optional)
+        gathers seconds per part (``unconditional``, ``conditioning``, ``to_blocks``)."""
         out = np.empty((len(self.targets) // self.per_block, len(which)))
         for n, r in enumerate(which):
-            z = self.transform.back(self.realisation_scores(int(r)))
+            y = self.realisation_scores(int(r), clock)
+            start = time.perf_counter()
+            z = self.transform.back(y)
             out[:, n] = z.reshape(-1, self.per_block).mean(axis=1)
+            if clock is not None:
+                clock["to_blocks"] = clock.get("to_blocks", 0.0) + time.perf_counter() - start
         return out
 
 
@@ -179,16 +193,27 @@ def plan_simulation(
 
 
 def simulate_blocks(
-    plan: SimulationPlan, realisations: int, *, threads: int = 1, first: int = 0
+    plan: SimulationPlan,
+    realisations: int,
+    *,
+    threads: int = 1,
+    first: int = 0,
+    clock: dict | None = None,
 ) -> np.ndarray:
     """Block grades of realisations ``first .. first + realisations - 1``:
-    (b, realisations) float64, the same for any number of ``threads``."""
+    (b, realisations) float64, the same for any number of ``threads``; ``clock`` as
+    :meth:`SimulationPlan.realisations` (seconds summed over threads)."""
     which = np.arange(first, first + realisations)
     if threads <= 1 or realisations < 2:
-        return plan.realisations(which)
+        return plan.realisations(which, clock)
     from concurrent.futures import ThreadPoolExecutor
 
     batches = np.array_split(which, min(threads, realisations))
+    clocks = [{} for _ in batches]
     with ThreadPoolExecutor(threads) as pool:
-        parts = list(pool.map(plan.realisations, batches))
+        parts = list(pool.map(plan.realisations, batches, clocks))
+    if clock is not None:
+        for c in clocks:
+            for k, v in c.items():
+                clock[k] = clock.get(k, 0.0) + v
     return np.concatenate(parts, axis=1)

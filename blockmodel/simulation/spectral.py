@@ -84,21 +84,10 @@ class SpectralSimulator:
         self.padded = tuple(
             int(a + b + (a + b) % 2) for a, b in zip(self.shape, padding, strict=True)
         )
-        n = self.padded
-        # signed, wrapped lags: anisotropy needs the sign
-        lags = [
-            np.where(np.arange(m) <= m // 2, np.arange(m), np.arange(m) - m) * d
-            for m, d in zip(n, spacing, strict=True)
-        ]
-        cov = np.empty(n)
-        gy, gz = np.meshgrid(lags[1], lags[2], indexing="ij")
-        plane = np.column_stack([np.zeros(gy.size), gy.ravel(), gz.ravel()])
-        for i, hx in enumerate(lags[0]):
-            plane[:, 0] = hx
-            cov[i] = model.structured_covariance(plane).reshape(n[1], n[2])
-        cov[0, 0, 0] += model.nugget
-        spectrum = fft.rfftn(cov, workers=self.workers).real
-        del cov
+        spectrum = fft.rfftn(
+            _periodic_covariance(self.padded, spacing, model), workers=self.workers
+        )
+        spectrum = spectrum.real
         # share of the spectrum lost where it is negative and clipped (0 when exact)
         self.negative_share = float(-spectrum[spectrum < 0].sum() / np.abs(spectrum).sum())
         self.amplitude = np.sqrt(np.clip(spectrum, 0.0, None))
@@ -119,6 +108,23 @@ class SpectralSimulator:
         return np.ascontiguousarray(field[:nx, :ny, :nz])
 
 
+def _periodic_covariance(n, spacing, model: VariogramModel) -> np.ndarray:
+    """The model's covariance on a periodic grid of ``n`` nodes (signed, wrapped lags:
+    anisotropy needs the sign); the nugget at lag zero."""
+    lags = [
+        np.where(np.arange(m) <= m // 2, np.arange(m), np.arange(m) - m) * d
+        for m, d in zip(n, spacing, strict=True)
+    ]
+    cov = np.empty(n)
+    gy, gz = np.meshgrid(lags[1], lags[2], indexing="ij")
+    plane = np.column_stack([np.zeros(gy.size), gy.ravel(), gz.ravel()])
+    for i, hx in enumerate(lags[0]):
+        plane[:, 0] = hx
+        cov[i] = model.structured_covariance(plane).reshape(n[1], n[2])
+    cov[0, 0, 0] += model.nugget
+    return cov
+
+
 def simulate_gaussian(
     shape: tuple[int, int, int],
     spacing: tuple[float, float, float],
@@ -128,6 +134,9 @@ def simulate_gaussian(
     padding: tuple[int, int, int] | None = None,
 ) -> np.ndarray:
     """One realisation of a zero-mean Gaussian field with the model's covariance.
+
+    The invented deposits are made with it, so it stays as it is: padding by the largest
+    range, a negative spectrum clipped (:class:`SpectralSimulator` pads until there is none).
 
     Parameters
     ----------
@@ -143,4 +152,14 @@ def simulate_gaussian(
     -------
     (nx, ny, nz) float64, indexed [i, j, k] (x, y, z)
     """
-    return SpectralSimulator(shape, spacing, model, padding=padding).draw(rng)
+    spacing = np.asarray(spacing, dtype=np.float64)
+    if padding is None:
+        reach = max(max(s.ranges) for s in model.structures) if model.structures else 0.0
+        padding = tuple(int(np.ceil(reach / d)) for d in spacing)
+    n = tuple(int(a + b) for a, b in zip(shape, padding, strict=True))
+    spectrum = np.fft.rfftn(_periodic_covariance(n, spacing, model))
+    amplitude = np.sqrt(np.clip(spectrum.real, 0.0, None))
+    del spectrum
+    noise = np.fft.rfftn(rng.standard_normal(n))
+    field = np.fft.irfftn(amplitude * noise, s=n, axes=(0, 1, 2))
+    return np.ascontiguousarray(field[: shape[0], : shape[1], : shape[2]])
