@@ -29,8 +29,9 @@ neighbourhood_analysis, estimate_block_model, classify, validate, support_curves
 grade_tonnage_tables, statement_tables, simulate
     The stages of a run, in order (``variograms`` is the variography stage; the name
     ``variography`` is the subpackage).
-run_stages
-    All of them; returns a RunResults.
+run_stages, simulate_results
+    All of them; returns a RunResults (with the simulation when ``[simulation] in_run``);
+    the conditional simulation of a run's results.
 write_run_files, read_run
     The result files of a run, written and read back.
 render_view
@@ -70,6 +71,7 @@ _WHERE = {
     "statement_tables": "blockmodel.stages.tables",
     "simulate": "blockmodel.stages.simulation",
     "run_stages": "blockmodel.stages.run",
+    "simulate_results": "blockmodel.stages.run",
     "write_run_files": "blockmodel.report.files",
     "read_run": "blockmodel.report.files",
     "render_view": "blockmodel.report.views",

@@ -215,24 +215,12 @@ def test_demo_truth_lies_in_the_bands(tmp_path):
     from blockmodel.assess.uncertainty import realisation_curves
     from blockmodel.config.project import load_project
     from blockmodel.demo.deposit import write_demo
-    from blockmodel.stages.run import run_stages
-    from blockmodel.stages.simulation import simulate
+    from blockmodel.stages.run import run_stages, simulate_results
 
     write_demo(tmp_path / "demo")
     project = load_project(tmp_path / "demo" / "project.toml")
     results = run_stages(project)
-    grid = results.domains.grid
-    sim = simulate(
-        project,
-        results.composites.table,
-        results.declustering,
-        results.variography,
-        grid.origin,
-        grid.block_size,
-        results.blocks,
-        realisations=100,
-        workers=0,
-    )
+    sim = simulate_results(results, realisations=100, workers=0)
     truth = pd.read_parquet(project.truth)
     cutoffs = np.asarray(project.report.cutoffs)
     middle = cutoffs[len(cutoffs) // 2]

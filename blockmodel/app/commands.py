@@ -60,14 +60,11 @@ def check(project: Project) -> str:
         f"Intervals: {len(iv)}; composites: {comps.compositing.composites} "
         f"({comps.compositing.dropped_low_coverage} dropped for low coverage)",
     ]
-    counts = [holes]
     if comps.points is not None:
         pts = comps.points.table
         lines.append(f"Point samples: {len(pts)} on {pts['hole'].nunique()} line(s)")
-        counts.append(comps.points)
     for g in project.grades:
-        below = sum(c.below_detection[g] for c in counts)
-        missing = sum(c.missing[g] for c in counts)
+        below, missing = comps.value_counts(g)
         lines.append(f"Below-detection values of {g} replaced: {below}; missing: {missing}")
     stats = comps.table.groupby("domain")[project.grades].describe(percentiles=[0.5]).round(3)
     lines += ["", "Composite and point-sample grades per domain:", stats.to_string()]
@@ -263,8 +260,7 @@ def simulate(
     curves), then the conditional simulation; writes its page, figures and files to
     ``out`` (default: the report folder's name + ``_simulation``)."""
     from blockmodel.report.simulation_section import render_simulation, write_simulation_files
-    from blockmodel.stages.run import run_stages
-    from blockmodel.stages.simulation import simulate as simulate_stage
+    from blockmodel.stages.run import run_stages, simulate_results
 
     folder = project.report.folder
     out = Path(out) if out is not None else folder.with_name(f"{folder.name}_simulation")
@@ -272,15 +268,8 @@ def simulate(
     with OutputFolder(out, input_files(project), replace=replace) as staged:
         results = run_stages(project, steps)
         with steps("conditional simulation"):
-            grid = results.domains.grid
-            sim = simulate_stage(
-                project,
-                results.composites.table,
-                results.declustering,
-                results.variography,
-                grid.origin,
-                grid.block_size,
-                results.blocks,
+            sim = simulate_results(
+                results,
                 realisations=realisations,
                 seed=seed,
                 workers=workers,

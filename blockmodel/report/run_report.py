@@ -80,10 +80,9 @@ def render_run(results: RunResults, folder: Path, steps) -> HtmlReport:
 def _data_sections(project: Project, comps, report: HtmlReport) -> None:
     holes, warnings = comps.holes, comps.warnings
     report.heading("Data")
-    counts, points = [holes], ""
+    points = ""
     if comps.points is not None:
         pts = comps.points.table
-        counts.append(comps.points)
         points = (
             f" and {len(pts)} point samples on {pts['hole'].nunique()} line(s), each used at "
             "its own position and support (not composited)"
@@ -94,8 +93,7 @@ def _data_sections(project: Project, comps, report: HtmlReport) -> None:
         "listed below."
     )
     for g in project.grades:
-        below = sum(c.below_detection[g] for c in counts)
-        missing = sum(c.missing[g] for c in counts)
+        below, missing = comps.value_counts(g)
         report.paragraph(
             f"{g}: {below} below-detection values set to "
             f"{project.data.below_detection_factor} x the limit; {missing} missing."

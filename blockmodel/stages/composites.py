@@ -46,6 +46,15 @@ class Composites:
         """Warnings from reading the drillholes and the point samples."""
         return self.holes.warnings + (self.points.warnings if self.points else [])
 
+    def value_counts(self, grade: str) -> tuple[int, int]:
+        """Values of ``grade`` below detection (replaced) and missing, over the intervals
+        and the point samples."""
+        sources = [self.holes] + ([self.points] if self.points else [])
+        return (
+            sum(s.below_detection[grade] for s in sources),
+            sum(s.missing[grade] for s in sources),
+        )
+
     def drillholes(self) -> pd.DataFrame:
         """The composites from drillholes (no point samples)."""
         return self.table[self.table["source"] == "drillhole"]

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import time
 from collections.abc import Callable
 from contextlib import contextmanager
@@ -27,7 +28,7 @@ from blockmodel.stages.tables import (
 from blockmodel.stages.validation import Validation, validate
 from blockmodel.stages.variography import Variography, variography
 
-__all__ = ["EngineOptions", "RunResults", "Steps", "run_stages"]
+__all__ = ["EngineOptions", "RunResults", "Steps", "run_stages", "simulate_results"]
 
 
 @dataclass(frozen=True)
@@ -165,22 +166,7 @@ def run_stages(
         truth = truth_check(project, domains.grid, blocks)
     if truth is not None and truth.problem:
         warn(truth.problem)
-    sim = None
-    if project.simulation.in_run:
-        with steps("conditional simulation"):
-            grid = domains.grid
-            sim = simulate(
-                project,
-                composites.table,
-                decl,
-                vario,
-                grid.origin,
-                grid.block_size,
-                blocks,
-                cluster=engine.cluster or "",
-                progress=steps.counter("realisations"),
-            )
-    return RunResults(
+    results = RunResults(
         project,
         composites,
         domains,
@@ -195,5 +181,39 @@ def run_stages(
         truth,
         tuple(warnings),
         dict(steps.timings),
-        sim,
+    )
+    if project.simulation.in_run:
+        with steps("conditional simulation"):
+            sim = simulate_results(
+                results, cluster=engine.cluster or "", progress=steps.counter("realisations")
+            )
+        results = dataclasses.replace(results, simulation=sim, timings=dict(steps.timings))
+    return results
+
+
+def simulate_results(
+    results: RunResults,
+    *,
+    realisations: int | None = None,
+    seed: int | None = None,
+    workers: int | None = None,
+    cluster: str = "",
+    progress: Callable[[str, int, int], None] | None = None,
+) -> Simulation:
+    """The conditional simulation (:func:`blockmodel.stages.simulation.simulate`) of a
+    run's estimated and classified blocks; the arguments override ``[simulation]``."""
+    grid = results.domains.grid
+    return simulate(
+        results.project,
+        results.composites.table,
+        results.declustering,
+        results.variography,
+        grid.origin,
+        grid.block_size,
+        results.blocks,
+        realisations=realisations,
+        seed=seed,
+        workers=workers,
+        cluster=cluster,
+        progress=progress,
     )

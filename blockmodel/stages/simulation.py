@@ -94,17 +94,17 @@ class Simulation:
         ``<g>_etype, <g>_sim_variance, <g>_p10, <g>_p50, <g>_p90`` and
         ``<g>_above_<cutoff>`` (probability at or above)."""
         keep = ["x", "y", "z", "i", "j", "k", "domain", "tonnes", "class"]
-        frames = []
-        for d in dict.fromkeys(s.domain for s in self.by_key.values()):
-            sims = [s for s in self.by_key.values() if s.domain == d]
-            rows = sims[0].rows
-            frame = blocks.iloc[rows][[c for c in keep if c in blocks]].reset_index(drop=True)
-            for s in sims:
-                for name, values in block_summary(s.grades, self.cutoffs).items():
-                    label = {"mean": "etype", "variance": "sim_variance"}.get(name, name)
-                    frame[f"{s.grade}_{label}"] = values
-            frames.append(frame)
-        return pd.concat(frames, ignore_index=True)
+        rows = np.unique(np.concatenate([s.rows for s in self.by_key.values()]))
+        frame = blocks.iloc[rows][[c for c in keep if c in blocks]].reset_index(drop=True)
+        for s in self.by_key.values():  # a grade not simulated in a block stays empty
+            at = np.searchsorted(rows, s.rows)
+            for name, values in block_summary(s.grades, self.cutoffs).items():
+                label = {"mean": "etype", "variance": "sim_variance"}.get(name, name)
+                column = f"{s.grade}_{label}"
+                if column not in frame:
+                    frame[column] = np.nan
+                frame.loc[at, column] = values
+        return frame
 
     def realisation_table(self, blocks: pd.DataFrame) -> pd.DataFrame:
         """Every realisation's block grades, long: ``domain, i, j, k, realisation`` and one
@@ -251,7 +251,7 @@ def simulate(
             omega=s.omega,
         )
         model, source = _score_model(
-            project, key, composites[own], declustering.weights[own], variography[key]
+            project, composites[own], declustering.weights[own], variography[key]
         )
         plan = plan_simulation(
             blocks.iloc[rows][["i", "j", "k"]].to_numpy(np.int64),
@@ -323,7 +323,7 @@ def _run(
 
 
 def _score_model(
-    project: Project, key: str, composites: pd.DataFrame, weights: np.ndarray, grade: Variography
+    project: Project, composites: pd.DataFrame, weights: np.ndarray, grade: Variography
 ) -> tuple[VariogramModel, str]:
     """The normal scores' variogram model (total sill 1) and where it came from: with
     ``fit``, the structures' kinds, ranges and orientation of the grade model, and the
