@@ -15,7 +15,7 @@ from blockmodel.model.solids import (
     surface_elevation,
 )
 
-__all__ = ["block_proportions"]
+__all__ = ["block_proportions", "inside_domain"]
 
 
 def block_proportions(
@@ -71,3 +71,38 @@ def block_proportions(
                 counts[:, d] += np.bincount(block_xy, weights=inside, minlength=nx * ny)
         out[k * nx * ny : (k + 1) * nx * ny] = counts / per_block
     return out
+
+
+def inside_domain(
+    lattice: Lattice,
+    columns: np.ndarray,
+    z: np.ndarray,
+    solids: Sequence[Surface],
+    which: int,
+    topography: Surface | None = None,
+) -> np.ndarray:
+    """Whether points lie in solid ``which`` and in no solid listed before it (first
+    listed wins, as in :func:`block_proportions`), below the topography.
+
+    Parameters
+    ----------
+    lattice : Lattice
+        The (x, y) columns the points stand on.
+    columns : (n,) int64
+        Flat lattice column of each point.
+    z : (n,) float64, metres
+    solids : sequence of Surface, priority order
+    which : int
+    topography : Surface, optional
+
+    Returns
+    -------
+    (n,) bool
+    """
+    inside = points_inside(column_crossings(solids[which], lattice), columns, z)
+    for earlier in solids[:which]:
+        inside &= ~points_inside(column_crossings(earlier, lattice), columns, z)
+    if topography is not None:
+        top = surface_elevation(topography, lattice)[columns]
+        inside &= ~(np.isfinite(top) & (z > top))
+    return inside

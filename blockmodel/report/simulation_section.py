@@ -113,6 +113,7 @@ def render_simulation(
                 "composites": d.data,
                 "sharing a node (dropped)": d.data_dropped,
                 "nodes": d.nodes,
+                "blocks with no node inside the solid": d.blocks_without_inside_nodes,
                 "FFT grid nodes": d.fft_cells,
                 "preparation (s)": d.timings["preparation"],
                 "realisations (s)": d.timings["realisations"],

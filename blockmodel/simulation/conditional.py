@@ -12,6 +12,7 @@ the same whatever the order, batching, threads or machines that compute it.
 from __future__ import annotations
 
 import time
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -53,10 +54,12 @@ class SimulationPlan:
     ----------
     nodes : NodeGrid
     simulator : SpectralSimulator
-    targets : (b * d,) int64
-        Flat node indices, block by block (``d`` nodes per block).
-    per_block : int
-        Nodes per block, ``d``.
+    targets : (m,) int64
+        Flat indices of the nodes simulated, block by block.
+    target_block : (m,) int64
+        The block (0 .. b - 1) of each target.
+    block_nodes : (b,) int64
+        Targets per block.
     data_nodes : (n,) int64
         The node of each conditioning datum kept.
     data_scores : (n,) float64
@@ -68,21 +71,25 @@ class SimulationPlan:
         The realisations' seed and stream: realisation r uses ``default_rng([*seed, r])``.
     relocated_dropped : int
         Data dropped because another datum was nearer the centre of their node.
+    blocks_without_inside_nodes : int
+        Blocks none of whose nodes passed ``inside`` (simulated on all their nodes).
     """
 
     nodes: NodeGrid
     simulator: SpectralSimulator
     targets: np.ndarray
-    per_block: int
+    target_block: np.ndarray
+    block_nodes: np.ndarray
     data_nodes: np.ndarray
     data_scores: np.ndarray
     weights: KrigingWeights
     transform: GaussianTransform
     seed: tuple[int, ...]
     relocated_dropped: int
+    blocks_without_inside_nodes: int = 0
 
     def realisation_scores(self, r: int, clock: dict | None = None) -> np.ndarray:
-        """Conditioned normal scores at the targets in realisation ``r``: (b * d,).
+        """Conditioned normal scores at the targets in realisation ``r``: (m,).
         ``clock`` (optional) gathers the seconds of the unconditional field and of the
         conditioning."""
         start = time.perf_counter()
@@ -97,14 +104,15 @@ class SimulationPlan:
 
     def realisations(self, which, clock: dict | None = None) -> np.ndarray:
         """Block grades (b, len(which)) of the realisations numbered ``which``: back-
-        transformed node grades averaged over each block's nodes.  ``clock`` (optional)
+        transformed node grades averaged over each block's targets.  ``clock`` (optional)
         gathers seconds per part (``unconditional``, ``conditioning``, ``to_blocks``)."""
-        out = np.empty((len(self.targets) // self.per_block, len(which)))
+        nb = len(self.block_nodes)
+        out = np.empty((nb, len(which)))
         for n, r in enumerate(which):
             y = self.realisation_scores(int(r), clock)
             start = time.perf_counter()
             z = self.transform.back(y)
-            out[:, n] = z.reshape(-1, self.per_block).mean(axis=1)
+            out[:, n] = np.bincount(self.target_block, weights=z, minlength=nb) / self.block_nodes
             if clock is not None:
                 clock["to_blocks"] = clock.get("to_blocks", 0.0) + time.perf_counter() - start
         return out
@@ -123,6 +131,7 @@ def plan_simulation(
     *,
     neighbours: int = 24,
     workers: int = 1,
+    inside: Callable[[NodeGrid, np.ndarray], np.ndarray] | None = None,
 ) -> SimulationPlan:
     """Prepare the conditional simulation of one domain and grade.
 
@@ -147,6 +156,9 @@ def plan_simulation(
         Data per node in the simple kriging.
     workers : int
         Threads for the Fourier transforms.
+    inside : callable(nodes, flat) -> (m,) bool, optional
+        Which nodes of the blocks lie in the domain (its solid); a block none of whose
+        nodes lies in it keeps them all.  None: every node of every block.
 
     Returns
     -------
@@ -174,6 +186,14 @@ def plan_simulation(
     local = np.stack(np.meshgrid(*[np.arange(d) for d in disc], indexing="ij"), -1).reshape(-1, 3)
     node_abc = ((blocks - low) * disc)[:, None, :] + local[None, :, :]
     targets = np.ravel_multi_index(node_abc.reshape(-1, 3).T, shape)
+    target_block = np.repeat(np.arange(len(blocks)), len(local))
+    empty = 0
+    if inside is not None:
+        keep_node = np.asarray(inside(nodes, targets), dtype=bool)
+        per_block = np.bincount(target_block, weights=keep_node, minlength=len(blocks))
+        keep_node |= (per_block == 0)[target_block]
+        empty = int((per_block == 0).sum())
+        targets, target_block = targets[keep_node], target_block[keep_node]
     weights = simple_kriging_weights(
         nodes.centres(flat[keep]), nodes.centres(targets), model, neighbours=neighbours
     )
@@ -182,13 +202,15 @@ def plan_simulation(
         nodes,
         simulator,
         targets,
-        len(local),
+        target_block,
+        np.bincount(target_block, minlength=len(blocks)),
         flat[keep],
         np.asarray(scores, dtype=np.float64)[keep],
         weights,
         transform,
         tuple(int(s) for s in seed),
         len(data) - len(keep),
+        empty,
     )
 
 

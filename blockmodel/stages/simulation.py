@@ -44,12 +44,15 @@ class DomainSimulation:
     grades : (b, r) float64
         Block grades of every realisation.
     nodes : int
-        Simulated nodes inside the domain's blocks.
+        Simulated nodes: those of the domain's blocks inside its solid (every node of a
+        block for a domain placed by codes, or when none of a block's nodes is inside).
     fft_cells : int
         Nodes of the padded grid of the unconditional simulation.
     data : int
         Conditioning composites; ``data_dropped`` of them shared a node with a nearer one.
     data_dropped : int
+    blocks_without_inside_nodes : int
+        Blocks of the domain none of whose nodes lies inside its solid.
     timings : dict
         Seconds: ``preparation`` (transform, variogram, kriging weights, spectrum),
         ``realisations`` (wall clock of all realisations) and, summed over threads (not on
@@ -68,6 +71,7 @@ class DomainSimulation:
     fft_cells: int
     data: int
     data_dropped: int
+    blocks_without_inside_nodes: int
     timings: dict[str, float]
 
 
@@ -224,6 +228,7 @@ def simulate(
     threads = workers or os.cpu_count() or 1
     disc = s.discretisation or project.estimation.discretisation
     out = {}
+    solids = _solids(project)
     keys = [(d, g) for d in project.domains if d.estimate for g in project.grades]
     for stream, (d, g) in enumerate(keys):
         key = f"{d.name}.{g}"
@@ -265,6 +270,7 @@ def simulate(
             (seed, stream),
             neighbours=s.neighbours,
             workers=1,
+            inside=_inside(project, d.name, solids),
         )
         prepared = time.perf_counter()
         clock: dict[str, float] = {}
@@ -281,6 +287,7 @@ def simulate(
             plan.simulator.cells,
             len(values),
             plan.relocated_dropped,
+            plan.blocks_without_inside_nodes,
             {
                 "preparation": round(prepared - start, 3),
                 "realisations": round(time.perf_counter() - prepared, 3),
@@ -289,6 +296,37 @@ def simulate(
         )
     cutoffs = np.asarray(project.report.cutoffs, dtype=float)
     return Simulation(realisations, seed, cutoffs, out, class_order(project))
+
+
+def _solids(project: Project) -> dict:
+    """The solids (read once) and the topography, for the nodes' domain test."""
+    from blockmodel.model.solids import read_solid, read_surface
+
+    out = {d.name: read_solid(d.solid) for d in project.domains if d.solid is not None}
+    topo = project.grid.topography
+    return {"solids": out, "topography": read_surface(topo) if topo else None}
+
+
+def _inside(project: Project, name: str, solids: dict):
+    """The test of nodes in domain ``name`` (inside its solid, in no solid listed before,
+    below the topography), or None for a domain placed by codes."""
+    from blockmodel.model.domains import inside_domain
+    from blockmodel.model.solids import Lattice
+
+    if project.domain(name).solid is None:
+        return None
+    order = [d.name for d in project.domains if d.name in solids["solids"]]
+    surfaces = [solids["solids"][n] for n in order]
+
+    def test(nodes, flat: np.ndarray) -> np.ndarray:
+        (ox, oy, oz), (dx, dy, dz), (nx, ny, _) = nodes.origin, nodes.spacing, nodes.shape
+        a, b, c = np.unravel_index(flat, nodes.shape)
+        lattice = Lattice(ox, dx, nx, oy, dy, ny)
+        return inside_domain(
+            lattice, a + nx * b, oz + c * dz, surfaces, order.index(name), solids["topography"]
+        )
+
+    return test
 
 
 def _run(

@@ -16,6 +16,7 @@ from blockmodel.variography.experimental import (
     ExperimentalVariogram,
     NormalScores,
     experimental_variogram,
+    experimental_variograms,
     normal_scores,
     scan_directions,
 )
@@ -261,23 +262,21 @@ def _values_and_scale(v, grades: np.ndarray, decl: np.ndarray):
 
 def _directional(v, pts, values, orient: Orientation, common: dict) -> list:
     """Experimental variograms along the major, semi and minor axes of ``orient`` (the
-    minor with its own lag)."""
+    minor with its own lag; the major and semi from one search for pairs)."""
+    axes = principal_directions(orient)
     out = []
-    for axis, (az, pl) in enumerate(principal_directions(orient)):
-        lag = v.lag if axis < 2 else v.minor_lag
-        out.append(
-            experimental_variogram(
-                pts,
-                values,
-                lag=lag,
-                n_lags=v.lags,
-                lag_tolerance=None if v.lag_tolerance is None else v.lag_tolerance * (lag / v.lag),
-                direction=(az, pl),
-                angular_tolerance=v.angular_tolerance,
-                side_band=v.side_band,
-                updown_band=v.updown_band,
-                label=("major", "semi", "minor")[axis],
-                **common,
-            )
+    for lag, which in ((v.lag, (0, 1)), (v.minor_lag, (2,))):
+        out += experimental_variograms(
+            pts,
+            values,
+            [tuple(axes[a]) for a in which],
+            lag=lag,
+            n_lags=v.lags,
+            lag_tolerance=None if v.lag_tolerance is None else v.lag_tolerance * (lag / v.lag),
+            angular_tolerance=v.angular_tolerance,
+            side_band=v.side_band,
+            updown_band=v.updown_band,
+            labels=[("major", "semi", "minor")[a] for a in which],
+            **common,
         )
     return out

@@ -18,6 +18,7 @@ __all__ = [
     "NormalScores",
     "direction_vector",
     "experimental_variogram",
+    "experimental_variograms",
     "normal_scores",
     "scan_directions",
 ]
@@ -124,6 +125,59 @@ def experimental_variogram(
     -------
     ExperimentalVariogram
     """
+    return experimental_variograms(
+        points,
+        values,
+        [direction],
+        lag=lag,
+        n_lags=n_lags,
+        edges=edges,
+        lag_tolerance=lag_tolerance,
+        angular_tolerance=angular_tolerance,
+        side_band=side_band,
+        updown_band=updown_band,
+        estimator=estimator,
+        weights=weights,
+        holes=holes,
+        pair_budget=pair_budget,
+        labels=[label],
+    )[0]
+
+
+def experimental_variograms(
+    points: np.ndarray,
+    values: np.ndarray,
+    directions,
+    *,
+    lag: float,
+    n_lags: int,
+    edges: np.ndarray | None = None,
+    lag_tolerance: float | None = None,
+    angular_tolerance: float = 22.5,
+    side_band: float = np.inf,
+    updown_band: float = np.inf,
+    estimator: str = "semivariogram",
+    weights: np.ndarray | None = None,
+    holes: np.ndarray | None = None,
+    pair_budget: int = 2_000_000,
+    labels=None,
+) -> list[ExperimentalVariogram]:
+    """Experimental variograms in several directions from one search for pairs.
+
+    Parameters
+    ----------
+    points, values, lag, n_lags, edges, lag_tolerance, angular_tolerance, side_band,
+    updown_band, estimator, weights, holes, pair_budget
+        As :func:`experimental_variogram`.
+    directions : sequence of (azimuth, plunge) degrees, or None (omnidirectional)
+    labels : sequence of str, optional
+        One per direction.
+
+    Returns
+    -------
+    list of ExperimentalVariogram, one per direction, each equal to
+    :func:`experimental_variogram` in that direction.
+    """
     if estimator not in ESTIMATORS:
         raise ValueError(f"estimator must be one of {', '.join(ESTIMATORS)}; got {estimator!r}")
     if lag <= 0 or n_lags < 1:
@@ -141,29 +195,41 @@ def experimental_variogram(
     else:
         edges = np.asarray(edges, dtype=np.float64)
     nb = len(edges) - 1
+    m = len(directions)
+    labels = list(labels) if labels is not None else [""] * m
     group = None if holes is None else np.unique(np.asarray(holes), return_inverse=True)[1].ravel()
-    if direction is not None:
-        u = direction_vector(*direction)
-        e_h = np.array([np.cos(np.radians(direction[0])), -np.sin(np.radians(direction[0])), 0.0])
-        e_v = np.cross(e_h, u)
-        cos_tol = np.cos(np.radians(angular_tolerance))
-    sums = {k: np.zeros(nb) for k in ("w", "d", "g", "h", "t", "hh", "tt", "ht", "n")}
-    for i, j in _pairs(points, edges[-1], pair_budget, group):
+    # per direction: its unit vector and the horizontal and vertical axes across it (both
+    # at right angles to it, so a pair's offsets along them are its offsets from the line);
+    # an omnidirectional entry takes every pair
+    free = np.array([d is None for d in directions])
+    u, e_h, e_v = np.zeros((3, m)), np.zeros((3, m)), np.zeros((3, m))
+    for k, dk in enumerate(directions):
+        if dk is not None:
+            u[:, k] = direction_vector(*dk)
+            e_h[:, k] = [np.cos(np.radians(dk[0])), -np.sin(np.radians(dk[0])), 0.0]
+            e_v[:, k] = np.cross(e_h[:, k], u[:, k])
+    cos_tol = np.cos(np.radians(angular_tolerance))
+    keys = ("w", "d", "g", "h", "t", "hh", "tt", "ht", "n")
+    sums = {k: np.zeros(m * nb) for k in keys}
+    for i, j in _pairs(points, edges[-1], max(pair_budget // max(m, 1), 10_000), group):
         h = points[j] - points[i]
         d = np.linalg.norm(h, axis=1)
-        ok = d > 0
-        if direction is not None:
-            along = h @ u
-            perp = h - along[:, None] * u
-            ok &= (np.abs(along) >= cos_tol * d) & (np.abs(perp @ e_h) <= side_band)
-            ok &= np.abs(perp @ e_v) <= updown_band
         if lag_tolerance is None:
             b = np.searchsorted(edges, d, side="left") - 1
+            ok = d > 0
         else:
             b = np.rint(d / lag).astype(np.int64) - 1
-            ok &= np.abs(d - (b + 1) * lag) <= lag_tolerance
+            ok = (d > 0) & (np.abs(d - (b + 1) * lag) <= lag_tolerance)
         ok &= (b >= 0) & (b < nb)
-        i, j, d, b = i[ok], j[ok], d[ok], b[ok]
+        i, j, h, d, b = i[ok], j[ok], h[ok], d[ok], b[ok]
+        inside = (np.abs(h @ u) >= cos_tol * d[:, None]) | free
+        if np.isfinite(side_band):
+            inside &= (np.abs(h @ e_h) <= side_band) | free
+        if np.isfinite(updown_band):
+            inside &= (np.abs(h @ e_v) <= updown_band) | free
+        pair, k = np.nonzero(inside)
+        cell = k * nb + b[pair]
+        i, j, d = i[pair], j[pair], d[pair]
         pw = w[i] * w[j]
         zi, zj = values[i], values[j]
         if estimator == "pairwise_relative":
@@ -180,22 +246,28 @@ def experimental_variogram(
             ("hh", pw * zi * zi),
             ("tt", pw * zj * zj),
             ("ht", pw * zi * zj),
-            ("n", np.ones_like(d)),
+            ("n", None),
         ):
-            sums[key] += np.bincount(b, weights=x, minlength=nb)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        wsum = sums["w"]
-        distance = sums["d"] / wsum
-        if estimator == "correlogram":
-            mh, mt = sums["h"] / wsum, sums["t"] / wsum
-            cov = sums["ht"] / wsum - mh * mt
-            # pairs counted once: make head and tail symmetric so rho is well defined
-            vh = sums["hh"] / wsum - mh**2
-            vt = sums["tt"] / wsum - mt**2
-            value = 1.0 - cov / np.sqrt(vh * vt)
-        else:
-            value = sums["g"] / wsum
-    return ExperimentalVariogram(sums["n"].astype(np.int64), distance, value, estimator, label)
+            sums[key] += np.bincount(cell, weights=x, minlength=m * nb)
+    out = []
+    for k in range(m):
+        part = {key: v[k * nb : (k + 1) * nb] for key, v in sums.items()}
+        with np.errstate(invalid="ignore", divide="ignore"):
+            wsum = part["w"]
+            distance = part["d"] / wsum
+            if estimator == "correlogram":
+                mh, mt = part["h"] / wsum, part["t"] / wsum
+                cov = part["ht"] / wsum - mh * mt
+                # pairs counted once: make head and tail symmetric so rho is well defined
+                vh = part["hh"] / wsum - mh**2
+                vt = part["tt"] / wsum - mt**2
+                value = 1.0 - cov / np.sqrt(vh * vt)
+            else:
+                value = part["g"] / wsum
+        out.append(
+            ExperimentalVariogram(part["n"].astype(np.int64), distance, value, estimator, labels[k])
+        )
+    return out
 
 
 @dataclass(frozen=True)
@@ -262,21 +334,19 @@ def scan_directions(
     """
     azimuths = np.asarray(azimuths, dtype=np.float64)
     plunges = np.asarray(plunges, dtype=np.float64)
-    value = np.full((len(plunges), len(azimuths), n_lags), np.nan)
-    pairs = np.zeros((len(plunges), len(azimuths), n_lags), dtype=np.int64)
-    for p, pl in enumerate(plunges):
-        for a, az in enumerate(azimuths):
-            ev = experimental_variogram(
-                points,
-                values,
-                lag=lag,
-                n_lags=n_lags,
-                direction=(az, pl),
-                angular_tolerance=angular_tolerance,
-                estimator=estimator,
-                weights=weights,
-            )
-            value[p, a], pairs[p, a] = ev.value, ev.pairs
+    fan = [(float(az), float(pl)) for pl in plunges for az in azimuths]
+    found = experimental_variograms(
+        points,
+        values,
+        fan,
+        lag=lag,
+        n_lags=n_lags,
+        angular_tolerance=angular_tolerance,
+        estimator=estimator,
+        weights=weights,
+    )
+    value = np.array([ev.value for ev in found]).reshape(len(plunges), len(azimuths), n_lags)
+    pairs = np.array([ev.pairs for ev in found]).reshape(len(plunges), len(azimuths), n_lags)
     with np.errstate(invalid="ignore"):
         score = np.nansum(value * pairs, axis=2) / pairs.sum(axis=2)
     score = np.where(pairs.sum(axis=2) > 0, score, np.inf)
