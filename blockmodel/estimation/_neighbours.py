@@ -14,14 +14,26 @@ _CACHE = True
 
 @njit(cache=_CACHE)
 def select_neighbours(
-    cand, local, hole_of, max_samples, max_per_hole, max_per_octant, out, counts, octants_filled
+    cand,
+    samples_t,
+    targets_t,
+    hole_of,
+    max_samples,
+    max_per_hole,
+    max_per_octant,
+    out,
+    counts,
+    octants_filled,
 ):
     """Apply per-hole and per-octant limits to distance-ordered candidates.
 
     Parameters
     ----------
     cand : (m, q) int64, candidate sample indices by increasing distance, n = none
-    local : (m, q, 3) float64, candidate offsets from the target in the search frame
+    samples_t : (n, 3) float64, samples in the search frame
+    targets_t : (m, 3) float64, targets in the search frame (a candidate's octant is the
+        sign of its offset from the target; offsets are computed only for the candidates
+        examined)
     hole_of : (n,) int64, hole code of each sample
     max_samples, max_per_hole, max_per_octant : int (<= 0 means no limit)
     out : (m, max_samples) int64, chosen indices (written), padded with n
@@ -51,11 +63,11 @@ def select_neighbours(
                 if pos >= 0 and holes_count[pos] >= max_per_hole:
                     continue
             octant = 0
-            if local[t, c, 0] < 0.0:
+            if samples_t[s, 0] - targets_t[t, 0] < 0.0:
                 octant += 1
-            if local[t, c, 1] < 0.0:
+            if samples_t[s, 1] - targets_t[t, 1] < 0.0:
                 octant += 2
-            if local[t, c, 2] < 0.0:
+            if samples_t[s, 2] - targets_t[t, 2] < 0.0:
                 octant += 4
             if max_per_octant > 0 and octant_count[octant] >= max_per_octant:
                 continue
@@ -167,3 +179,98 @@ def summarise_neighbours(
         mean_distance[t] = dsum / k
         nearest[t] = values[index[t, 0]]
         inverse_distance[t] = values[exact] if exact >= 0 else vsum / wsum
+
+
+@njit(cache=_CACHE, parallel=True)
+def select_in_groups(
+    group_of,
+    offsets,
+    candidates,
+    samples_t,
+    targets_t,
+    hole_of,
+    max_samples,
+    max_per_hole,
+    max_per_octant,
+    skip_coincident,
+    out,
+    counts,
+    octants_filled,
+):
+    """Per target: the samples of its group's candidate list inside the unit sphere, by
+    increasing distance (ties by sample index), then the per-hole and per-octant limits.
+
+    Parameters
+    ----------
+    group_of : (m,) int64, the group of each target
+    offsets : (g + 1,) int64, group g's candidates are ``candidates[offsets[g]:offsets[g+1]]``
+        (every sample within reach of any target of the group, in increasing index)
+    samples_t, targets_t : (n, 3), (m, 3) float64, the search frame
+    hole_of, max_samples, max_per_hole, max_per_octant : as :func:`select_neighbours`
+    skip_coincident : bool, leave out a sample at the target itself
+    out, counts, octants_filled : as :func:`select_neighbours` (written)
+    """
+    m = targets_t.shape[0]
+    n = hole_of.shape[0]
+    for t in prange(m):
+        g = group_of[t]
+        a, b = offsets[g], offsets[g + 1]
+        dist = np.empty(b - a)
+        near = np.empty(b - a, dtype=np.int64)
+        k = 0
+        for c in range(a, b):
+            s = candidates[c]
+            dx = samples_t[s, 0] - targets_t[t, 0]
+            dy = samples_t[s, 1] - targets_t[t, 1]
+            dz = samples_t[s, 2] - targets_t[t, 2]
+            d = np.sqrt(dx * dx + dy * dy + dz * dz)
+            if d <= 1.0 + 1e-12 and not (skip_coincident and d <= 1e-12):
+                dist[k] = d
+                near[k] = s
+                k += 1
+        order = np.argsort(dist[:k], kind="mergesort")
+        holes_seen = np.full(max_samples, -1, dtype=np.int64)
+        holes_count = np.zeros(max_samples, dtype=np.int64)
+        n_seen = 0
+        octant_count = np.zeros(8, dtype=np.int64)
+        used = 0
+        for c in range(k):
+            s = near[order[c]]
+            h = hole_of[s]
+            pos = -1
+            if max_per_hole > 0:
+                for u in range(n_seen):
+                    if holes_seen[u] == h:
+                        pos = u
+                        break
+                if pos >= 0 and holes_count[pos] >= max_per_hole:
+                    continue
+            octant = 0
+            if samples_t[s, 0] - targets_t[t, 0] < 0.0:
+                octant += 1
+            if samples_t[s, 1] - targets_t[t, 1] < 0.0:
+                octant += 2
+            if samples_t[s, 2] - targets_t[t, 2] < 0.0:
+                octant += 4
+            if max_per_octant > 0 and octant_count[octant] >= max_per_octant:
+                continue
+            octant_count[octant] += 1
+            if max_per_hole > 0:
+                if pos >= 0:
+                    holes_count[pos] += 1
+                else:
+                    holes_seen[n_seen] = h
+                    holes_count[n_seen] = 1
+                    n_seen += 1
+            out[t, used] = s
+            used += 1
+            if used == max_samples:
+                break
+        counts[t] = used
+        filled = 0
+        for o in range(8):
+            if octant_count[o] > 0:
+                filled += 1
+        octants_filled[t] = filled
+        for c in range(used, max_samples):
+            out[t, c] = n

@@ -6,6 +6,7 @@ ellipsoid is the unit sphere.
 
 from __future__ import annotations
 
+import itertools
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -96,6 +97,11 @@ class SearchEllipsoid:
         return bool(self.max_per_hole or self.max_per_octant or self.min_octants)
 
 
+# edge of the cells (search frame, where the ellipsoid is the unit sphere) whose targets
+# share one candidate list under per-hole or octant limits
+GROUP_CELL = 0.25
+
+
 @dataclass
 class Neighbourhoods:
     """Chosen samples per target.
@@ -124,7 +130,6 @@ def find_neighbours(
     search: SearchEllipsoid,
     hole_codes: np.ndarray | None,
     *,
-    candidate_factor: int = 8,
     skip_coincident: bool = False,
 ) -> Neighbourhoods:
     """Find each target's neighbourhood.
@@ -139,9 +144,6 @@ def find_neighbours(
     search : SearchEllipsoid
     hole_codes : (n,) int64 or None
         Integer code of each sample's hole; needed for ``max_per_hole``.
-    candidate_factor : int
-        With per-hole or octant rules, this many times ``max_samples`` nearest candidates
-        are examined first; more are fetched where the limits leave a selection short.
     skip_coincident : bool
         Never use a sample at the target's own location (leave-one-out).
 
@@ -162,35 +164,34 @@ def find_neighbours(
     out = np.empty((len(targets), kmax), dtype=np.int64)
     count = np.empty(len(targets), dtype=np.int64)
     octants = np.empty(len(targets), dtype=np.int64)
-    # Limits may reject many near candidates: fetch a first batch, then, for targets whose
-    # selection is short while their batch was full (more samples may lie inside the
-    # ellipsoid), fetch again with four times as many until every sample inside is seen.
-    # The result equals applying the limits to all samples inside, in distance order.
-    rows = np.arange(len(targets))
-    q = min(n, kmax * candidate_factor)
-    while len(rows):
-        dist, idx, full = _query(tree, targets_t[rows], q, n, skip_coincident)
-        local = samples_t[np.minimum(idx, n - 1)] - targets_t[rows, None, :]
-        sub_out = np.empty((len(rows), kmax), dtype=np.int64)
-        sub_count = np.empty(len(rows), dtype=np.int64)
-        sub_octants = np.empty(len(rows), dtype=np.int64)
-        _neighbours.select_neighbours(
-            idx,
-            local,
-            holes,
-            kmax,
-            int(search.max_per_hole or 0),
-            int(search.max_per_octant or 0),
-            sub_out,
-            sub_count,
-            sub_octants,
-        )
-        out[rows], count[rows], octants[rows] = sub_out, sub_count, sub_octants
-        if q >= n:
-            break
-        short = (sub_count < kmax) & full
-        rows = rows[short]
-        q = min(n, 4 * q)
+    # Targets in one cell of the search frame share one list of candidates: every sample
+    # within reach of any point of the cell; each target then takes, in compiled code, the
+    # candidates inside its own ellipsoid in distance order and applies the limits.  The
+    # result equals applying the limits to all samples inside, in distance order.
+    key = np.floor(targets_t / GROUP_CELL).astype(np.int64)
+    cells, group_of = np.unique(key, axis=0, return_inverse=True)
+    reach = 1.0 + 1e-9 + GROUP_CELL * np.sqrt(3.0) / 2.0
+    lists = tree.query_ball_point((cells + 0.5) * GROUP_CELL, reach, return_sorted=True)
+    offsets = np.zeros(len(lists) + 1, dtype=np.int64)
+    offsets[1:] = np.cumsum([len(x) for x in lists])
+    candidates = np.fromiter(
+        itertools.chain.from_iterable(lists), dtype=np.int64, count=int(offsets[-1])
+    )
+    _neighbours.select_in_groups(
+        group_of.ravel().astype(np.int64),
+        offsets,
+        candidates,
+        samples_t,
+        np.ascontiguousarray(targets_t),
+        holes,
+        kmax,
+        int(search.max_per_hole or 0),
+        int(search.max_per_octant or 0),
+        bool(skip_coincident),
+        out,
+        count,
+        octants,
+    )
     chosen = np.minimum(out, n - 1)
     d = np.linalg.norm(samples_t[chosen] - targets_t[:, None, :], axis=2)
     d[out >= n] = np.inf
