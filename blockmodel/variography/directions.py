@@ -109,33 +109,29 @@ class OrientationFit:
 
 def _fan(points, values, directions, lag, n_lags, tolerance_deg, max_points):
     """Per direction and lag: pairs, mean distance and semivariogram, (m, n_lags) each."""
-    from blockmodel.variography.experimental import _pairs
+    from blockmodel.variography.experimental import experimental_variograms
 
     n = len(points)
     if n > max_points:  # a deterministic thinning; every part of the data kept
         keep = np.linspace(0, n - 1, max_points).round().astype(np.int64)
         points, values = points[keep], values[keep]
-    m = len(directions)
-    count = np.zeros((m, n_lags))
-    dist_sum = np.zeros((m, n_lags))
-    gamma_sum = np.zeros((m, n_lags))
-    cos_tol = np.cos(np.radians(tolerance_deg))
-    for i, j in _pairs(points, n_lags * lag, 2_000_000):
-        sep = points[j] - points[i]
-        d = np.sqrt(np.einsum("ij,ij->i", sep, sep))
-        ok = d > 0
-        sep, d, i, j = sep[ok], d[ok], i[ok], j[ok]
-        half_sq = 0.5 * (values[i] - values[j]) ** 2
-        lag_index = np.minimum(np.ceil(d / lag).astype(np.int64) - 1, n_lags - 1)
-        unit = sep / d[:, None]
-        for k, dk in enumerate(directions):
-            inside = np.abs(unit @ dk) >= cos_tol
-            li = lag_index[inside]
-            count[k] += np.bincount(li, minlength=n_lags)
-            dist_sum[k] += np.bincount(li, weights=d[inside], minlength=n_lags)
-            gamma_sum[k] += np.bincount(li, weights=half_sq[inside], minlength=n_lags)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return count, dist_sum / count, gamma_sum / count
+    d = np.asarray(directions, dtype=np.float64)
+    angles = np.column_stack(
+        [np.degrees(np.arctan2(d[:, 0], d[:, 1])), np.degrees(np.arcsin(-d[:, 2]))]
+    )
+    found = experimental_variograms(
+        points,
+        values,
+        [tuple(a) for a in angles],
+        lag=lag,
+        n_lags=n_lags,
+        angular_tolerance=tolerance_deg,
+    )
+    return (
+        np.array([ev.pairs for ev in found], dtype=float),
+        np.array([ev.distance for ev in found]),
+        np.array([ev.value for ev in found]),
+    )
 
 
 def find_orientation(

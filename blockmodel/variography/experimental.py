@@ -10,8 +10,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.spatial import cKDTree
 from scipy.stats import norm
+
+from blockmodel.variography._pairs import SUMS, cell_offsets, cell_table, pair_sums
 
 __all__ = [
     "ExperimentalVariogram",
@@ -47,31 +48,6 @@ def direction_vector(azimuth: float, plunge: float) -> np.ndarray:
     return np.array([np.sin(az) * np.cos(pl), np.cos(az) * np.cos(pl), -np.sin(pl)])
 
 
-def _pairs(points, max_distance, pair_budget, same_group=None):
-    """Yield index arrays (i, j), i < j, of pairs closer than ``max_distance``, in chunks of
-    samples sized so each chunk holds about ``pair_budget`` pairs (memory stays bounded)."""
-    n = len(points)
-    if n < 2:
-        return
-    tree = cKDTree(points)
-    # pairs per sample, from a sample of up to 2,000 points, sets the chunk size
-    probe = np.linspace(0, n - 1, min(n, 2000)).astype(np.int64)
-    per_point = float(
-        np.mean(tree.query_ball_point(points[probe], max_distance, return_length=True))
-    )
-    chunk = int(np.clip(pair_budget / max(per_point, 1.0), 16, n))
-    for start in range(0, n, chunk):
-        rows = np.arange(start, min(n, start + chunk))
-        sub = cKDTree(points[rows])
-        found = sub.sparse_distance_matrix(tree, max_distance, output_type="ndarray")
-        i = rows[found["i"]]
-        j = found["j"].astype(np.int64)
-        keep = j > i
-        if same_group is not None:
-            keep &= same_group[i] == same_group[j]
-        yield i[keep], j[keep]
-
-
 def experimental_variogram(
     points: np.ndarray,
     values: np.ndarray,
@@ -87,7 +63,6 @@ def experimental_variogram(
     estimator: str = "semivariogram",
     weights: np.ndarray | None = None,
     holes: np.ndarray | None = None,
-    pair_budget: int = 2_000_000,
     label: str = "",
 ) -> ExperimentalVariogram:
     """Experimental variogram of values at points.
@@ -118,8 +93,6 @@ def experimental_variogram(
         Declustering weights; a pair weighs ``w_i w_j``.
     holes : (n,) array, optional
         When given, only pairs within one hole are used (downhole variogram).
-    pair_budget : int
-        Pairs handled at once (before the direction test); bounds memory.
 
     Returns
     -------
@@ -139,7 +112,6 @@ def experimental_variogram(
         estimator=estimator,
         weights=weights,
         holes=holes,
-        pair_budget=pair_budget,
         labels=[label],
     )[0]
 
@@ -159,7 +131,6 @@ def experimental_variograms(
     estimator: str = "semivariogram",
     weights: np.ndarray | None = None,
     holes: np.ndarray | None = None,
-    pair_budget: int = 2_000_000,
     labels=None,
 ) -> list[ExperimentalVariogram]:
     """Experimental variograms in several directions from one search for pairs.
@@ -167,7 +138,7 @@ def experimental_variograms(
     Parameters
     ----------
     points, values, lag, n_lags, edges, lag_tolerance, angular_tolerance, side_band,
-    updown_band, estimator, weights, holes, pair_budget
+    updown_band, estimator, weights, holes
         As :func:`experimental_variogram`.
     directions : sequence of (azimuth, plunge) degrees, or None (omnidirectional)
     labels : sequence of str, optional
@@ -194,7 +165,6 @@ def experimental_variograms(
         edges = lag * np.arange(n_lags + 1)
     else:
         edges = np.asarray(edges, dtype=np.float64)
-    nb = len(edges) - 1
     m = len(directions)
     labels = list(labels) if labels is not None else [""] * m
     group = None if holes is None else np.unique(np.asarray(holes), return_inverse=True)[1].ravel()
@@ -208,50 +178,22 @@ def experimental_variograms(
             u[:, k] = direction_vector(*dk)
             e_h[:, k] = [np.cos(np.radians(dk[0])), -np.sin(np.radians(dk[0])), 0.0]
             e_v[:, k] = np.cross(e_h[:, k], u[:, k])
-    cos_tol = np.cos(np.radians(angular_tolerance))
-    keys = ("w", "d", "g", "h", "t", "hh", "tt", "ht", "n")
-    sums = {k: np.zeros(m * nb) for k in keys}
-    for i, j in _pairs(points, edges[-1], max(pair_budget // max(m, 1), 10_000), group):
-        h = points[j] - points[i]
-        d = np.linalg.norm(h, axis=1)
-        if lag_tolerance is None:
-            b = np.searchsorted(edges, d, side="left") - 1
-            ok = d > 0
-        else:
-            b = np.rint(d / lag).astype(np.int64) - 1
-            ok = (d > 0) & (np.abs(d - (b + 1) * lag) <= lag_tolerance)
-        ok &= (b >= 0) & (b < nb)
-        i, j, h, d, b = i[ok], j[ok], h[ok], d[ok], b[ok]
-        inside = (np.abs(h @ u) >= cos_tol * d[:, None]) | free
-        if np.isfinite(side_band):
-            inside &= (np.abs(h @ e_h) <= side_band) | free
-        if np.isfinite(updown_band):
-            inside &= (np.abs(h @ e_v) <= updown_band) | free
-        pair, k = np.nonzero(inside)
-        cell = k * nb + b[pair]
-        i, j, d = i[pair], j[pair], d[pair]
-        pw = w[i] * w[j]
-        zi, zj = values[i], values[j]
-        if estimator == "pairwise_relative":
-            s = (zi + zj) / 2
-            g = np.where(s != 0, (zi - zj) ** 2 / np.where(s != 0, s, 1) ** 2 / 2, 0.0)
-        else:
-            g = (zi - zj) ** 2 / 2
-        for key, x in (
-            ("w", pw),
-            ("d", pw * d),
-            ("g", pw * g),
-            ("h", pw * zi),
-            ("t", pw * zj),
-            ("hh", pw * zi * zi),
-            ("tt", pw * zj * zj),
-            ("ht", pw * zi * zj),
-            ("n", None),
-        ):
-            sums[key] += np.bincount(cell, weights=x, minlength=m * nb)
+    sums = _sums(
+        points,
+        values,
+        w,
+        group,
+        (u, e_h, e_v, free),
+        angular_tolerance,
+        (side_band, updown_band),
+        edges,
+        lag,
+        lag_tolerance,
+        estimator == "pairwise_relative",
+    )
     out = []
     for k in range(m):
-        part = {key: v[k * nb : (k + 1) * nb] for key, v in sums.items()}
+        part = {key: sums[n, k] for n, key in enumerate(SUMS)}
         with np.errstate(invalid="ignore", divide="ignore"):
             wsum = part["w"]
             distance = part["d"] / wsum
@@ -268,6 +210,45 @@ def experimental_variograms(
             ExperimentalVariogram(part["n"].astype(np.int64), distance, value, estimator, labels[k])
         )
     return out
+
+
+def _sums(points, values, w, group, axes, tolerance, bands, edges, lag, lag_tolerance, relative):
+    """The pair sums (9, m, b) of :data:`~blockmodel.variography._pairs.SUMS` from the
+    compiled kernel, the samples sorted into cells of half the largest lag."""
+    n = len(points)
+    m, nb = axes[0].shape[1], len(edges) - 1
+    if n < 2:
+        return np.zeros((len(SUMS), m, nb))
+    reach = float(edges[-1])
+    span = np.ptp(points, axis=0) + 1e-9
+    # cells a sixth of the reach (the finer, the fewer pairs tested outside the reach and
+    # the cones), but holding a quarter of a sample on average or more, and never more
+    # than two million of them
+    size = max(reach / 6, (np.prod(span) / (4 * n)) ** (1 / 3), float(span.max()) / 125, 1e-9)
+    order, start, shape = cell_table(points, size)
+    u, e_h, e_v, free = axes
+    cone = None if free.any() else u.T  # offsets outside every cone hold no pair
+    return pair_sums(
+        points,
+        values,
+        w,
+        np.zeros(n, dtype=np.int64) if group is None else group.astype(np.int64),
+        order,
+        start,
+        shape,
+        cell_offsets(size, reach, cone, tolerance),
+        np.ascontiguousarray(u.T),
+        np.ascontiguousarray(e_h.T),
+        np.ascontiguousarray(e_v.T),
+        free,
+        float(np.cos(np.radians(tolerance))),
+        float(bands[0]),
+        float(bands[1]),
+        np.asarray(edges, dtype=np.float64),
+        float(lag),
+        float(lag_tolerance or 0.0),
+        bool(relative),
+    )
 
 
 @dataclass(frozen=True)
