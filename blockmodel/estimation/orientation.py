@@ -79,9 +79,9 @@ class Orientation:
         az, pl, tl = np.radians([self.azimuth, self.plunge, self.tilt])
         major = np.array([np.sin(az) * np.cos(pl), np.cos(az) * np.cos(pl), -np.sin(pl)])
         semi0 = np.array([np.cos(az), -np.sin(az), 0.0])
-        minor0 = np.cross(semi0, major)
+        minor0 = _cross(semi0, major)
         semi = np.cos(tl) * semi0 - np.sin(tl) * minor0
-        minor = np.cross(semi, major)
+        minor = _cross(semi, major)
         axes = np.vstack([major, semi, minor])
         axes[np.abs(axes) < 1e-15] = 0.0
         return axes
@@ -98,3 +98,10 @@ class Orientation:
         (n, 3) float64, metres along (major, semi, minor)
         """
         return np.asarray(vectors, dtype=np.float64) @ self.axes().T
+
+
+def _cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Cross product of two 3-vectors (``numpy.cross`` costs more than the arithmetic)."""
+    return np.array(
+        [a[1] * b[2] - a[2] * b[1], a[2] * b[0] - a[0] * b[2], a[0] * b[1] - a[1] * b[0]]
+    )

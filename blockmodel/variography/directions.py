@@ -192,11 +192,12 @@ def find_orientation(
     longest = float(np.max(dist[ok]))
     a_lo, a_hi = 0.5 * lag, 2.0 * longest
 
-    def model(p, angles):
+    def model(p, angles=None, along=None):
+        """The model at the lags, for ``angles`` or the lags already along the axes."""
         c0, c1, log_a, q2, q3 = p
         a1 = np.exp(log_a)
         ranges = np.array([a1, a1 * q2, a1 * q2 * q3])
-        local = h @ Orientation(*angles).axes().T / ranges
+        local = (h @ Orientation(*angles).axes().T if along is None else along) / ranges
         r = np.sqrt(np.einsum("ij,ij->i", local, local))
         return c0 + c1 * (1.0 - correlation(code, r))
 
@@ -206,8 +207,9 @@ def find_orientation(
 
     def fit_shape(angles):
         # a short fit is enough to rank the starting orientations; the best are refined
+        along = h @ Orientation(*angles).axes().T  # fixed angles: the lags turned once
         res = least_squares(
-            lambda p: w * (model(p, angles) - g),
+            lambda p: w * (model(p, along=along) - g),
             start,
             bounds=(lower, upper),
             method="trf",
