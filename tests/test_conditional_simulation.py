@@ -247,3 +247,19 @@ def test_demo_truth_lies_in_the_bands(tmp_path):
         k = int(np.flatnonzero(cutoffs == middle)[0])
         lo, hi = np.percentile(m_sim[:, k], [5, 95])
         assert lo <= m_true[0, k] <= hi, (key, lo, m_true[0, k], hi)
+
+
+def test_realisations_on_a_cluster_equal_the_local_ones(rng):
+    """A dask.distributed cluster computes the same realisations as this process (each
+    drawn from its own seed), batch by batch."""
+    from distributed import LocalCluster
+
+    from blockmodel.stages.simulation import _run
+
+    plan, _, _ = _small_plan(rng)
+    local = simulate_blocks(plan, 12)
+    with LocalCluster(
+        n_workers=1, threads_per_worker=2, host="127.0.0.1", dashboard_address=None, processes=False
+    ) as cluster:
+        remote = _run(plan, 12, 2, "test", None, cluster.scheduler_address, {})
+    np.testing.assert_array_equal(remote, local)

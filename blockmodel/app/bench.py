@@ -250,6 +250,43 @@ def simulation_demo(realisations: int, discretisation: tuple[int, int, int]) -> 
     )
 
 
+def backends_ratio(n_blocks: int = 400_000) -> dict:
+    """Seconds to estimate ``n_blocks`` blocks with one and with two single-thread workers,
+    on the local process pool and on a ``dask.distributed`` LocalCluster (child process
+    with one numba thread per worker)."""
+    env = dict(os.environ, NUMBA_NUM_THREADS="1")
+    code = (
+        "import time\nfrom blockmodel.app.bench import MODEL, SEARCH, BLOCK, DISC, "
+        "synthetic_composites, _targets\n"
+        "from blockmodel.estimation.engine import EstimationJob, run_job\n"
+        "pts, vals, holes = synthetic_composites(15000)\n"
+        f"targets = _targets({n_blocks}, pts)\n"
+        "job = EstimationJob(pts, vals, holes, MODEL, (SEARCH,), block_size=BLOCK, "
+        "discretisation=DISC)\n"
+        "run_job(job, targets[:2000], backend='serial')\nres = {}\n"
+        "for n in (1, 2):\n"
+        "    t = time.perf_counter()\n"
+        "    run_job(job, targets, chunk_size=25000, backend='processes', workers=n)\n"
+        "    res[f'processes_{n}'] = time.perf_counter() - t\n"
+        "try:\n"
+        "    from distributed import LocalCluster\n"
+        "    for n in (1, 2):\n"
+        "        with LocalCluster(n_workers=n, threads_per_worker=1, processes=True, "
+        "dashboard_address=None) as cluster:\n"
+        "            t = time.perf_counter()\n"
+        "            run_job(job, targets, chunk_size=25000, backend='dask', "
+        "cluster=cluster.scheduler_address)\n"
+        "            res[f'dask_{n}'] = time.perf_counter() - t\n"
+        "except ImportError:\n"
+        "    pass\n"
+        "import json\nprint(json.dumps(res))\n"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, check=True, env=env
+    )
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
 def help_seconds() -> float:
     """Best of three wall-clock times of ``blockmodel --help`` in a fresh interpreter."""
     best = np.inf
@@ -470,6 +507,23 @@ def main(*, blocks: int = 200_000, quick: bool = False, scale: bool = False) -> 
             100.0,
             lower=False,
         )
+    if not quick:
+        b = backends_ratio()
+        _line(
+            "process pool, 2 workers / 1 (speed-up)",
+            b["processes_1"] / b["processes_2"],
+            "x",
+            1.6,
+            lower=False,
+        )
+        if "dask_1" in b:
+            _line(
+                "dask LocalCluster, 2 workers / 1 (speed-up)",
+                b["dask_1"] / b["dask_2"],
+                "x",
+                1.6,
+                lower=False,
+            )
     m = memory_million_blocks(100_000 if quick else 1_000_000)
     print(
         f"  peak memory estimating {m['blocks']:,} blocks (chunks of 50,000, one process): "
