@@ -259,7 +259,7 @@ def test_realisations_on_a_cluster_equal_the_local_ones(rng):
     plan, _, _ = _small_plan(rng)
     local = simulate_blocks(plan, 12)
     with LocalCluster(
-        n_workers=1, threads_per_worker=2, host="127.0.0.1", dashboard_address=None, processes=False
+        n_workers=2, threads_per_worker=1, host="127.0.0.1", dashboard_address=None, processes=True
     ) as cluster:
         remote = _run(plan, 12, 2, "test", None, cluster.scheduler_address, {})
     np.testing.assert_array_equal(remote, local)
