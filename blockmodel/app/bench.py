@@ -166,9 +166,12 @@ def point_kriging_versus_pykrige(
 def _child_peak(code: str) -> dict:
     """Run code in a fresh interpreter; return its JSON line plus its peak resident memory."""
     script = (
-        "import json, resource, sys\n"
+        "import json, sys\n"
         + code
-        + "\nres['peak_mb'] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024\nprint(json.dumps(res))\n"
+        # the high-water mark of this process's own memory (VmHWM starts afresh at exec;
+        # ru_maxrss would carry the parent's peak over)
+        + "\nhwm = [l for l in open('/proc/self/status') if l.startswith('VmHWM')][0]"
+        + "\nres['peak_mb'] = int(hwm.split()[1]) / 1024\nprint(json.dumps(res))\n"
     )
     out = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, check=True)
     return json.loads(out.stdout.strip().splitlines()[-1])
