@@ -1,5 +1,6 @@
 """Compiled kernels of the neighbour search: choosing samples under per-hole and octant
-limits, grouping targets that share a neighbourhood, and summarising neighbourhoods.
+limits from a candidate list shared by nearby targets, grouping targets that share a
+neighbourhood, and summarising neighbourhoods.
 
 Pure arrays in, arrays out; compiled with numba and cached on disk; no ``fastmath``.
 """
@@ -10,87 +11,6 @@ import numpy as np
 from numba import njit, prange
 
 _CACHE = True
-
-
-@njit(cache=_CACHE)
-def select_neighbours(
-    cand,
-    samples_t,
-    targets_t,
-    hole_of,
-    max_samples,
-    max_per_hole,
-    max_per_octant,
-    out,
-    counts,
-    octants_filled,
-):
-    """Apply per-hole and per-octant limits to distance-ordered candidates.
-
-    Parameters
-    ----------
-    cand : (m, q) int64, candidate sample indices by increasing distance, n = none
-    samples_t : (n, 3) float64, samples in the search frame
-    targets_t : (m, 3) float64, targets in the search frame (a candidate's octant is the
-        sign of its offset from the target; offsets are computed only for the candidates
-        examined)
-    hole_of : (n,) int64, hole code of each sample
-    max_samples, max_per_hole, max_per_octant : int (<= 0 means no limit)
-    out : (m, max_samples) int64, chosen indices (written), padded with n
-    counts : (m,) int64 (written)
-    octants_filled : (m,) int64 (written)
-    """
-    m, q = cand.shape
-    n = hole_of.shape[0]
-    for t in range(m):
-        used = 0
-        holes_seen = np.full(max_samples, -1, dtype=np.int64)
-        holes_count = np.zeros(max_samples, dtype=np.int64)
-        n_seen = 0
-        octant_count = np.zeros(8, dtype=np.int64)
-        for c in range(q):
-            s = cand[t, c]
-            if s >= n:
-                break
-            h = hole_of[s]
-            pos = -1
-            if max_per_hole > 0:
-                pos = -1
-                for u in range(n_seen):
-                    if holes_seen[u] == h:
-                        pos = u
-                        break
-                if pos >= 0 and holes_count[pos] >= max_per_hole:
-                    continue
-            octant = 0
-            if samples_t[s, 0] - targets_t[t, 0] < 0.0:
-                octant += 1
-            if samples_t[s, 1] - targets_t[t, 1] < 0.0:
-                octant += 2
-            if samples_t[s, 2] - targets_t[t, 2] < 0.0:
-                octant += 4
-            if max_per_octant > 0 and octant_count[octant] >= max_per_octant:
-                continue
-            octant_count[octant] += 1
-            if max_per_hole > 0:
-                if pos >= 0:
-                    holes_count[pos] += 1
-                else:
-                    holes_seen[n_seen] = h
-                    holes_count[n_seen] = 1
-                    n_seen += 1
-            out[t, used] = s
-            used += 1
-            if used == max_samples:
-                break
-        counts[t] = used
-        filled = 0
-        for o in range(8):
-            if octant_count[o] > 0:
-                filled += 1
-        octants_filled[t] = filled
-        for c in range(used, max_samples):
-            out[t, c] = n
 
 
 @njit(cache=_CACHE)
@@ -206,9 +126,12 @@ def select_in_groups(
     offsets : (g + 1,) int64, group g's candidates are ``candidates[offsets[g]:offsets[g+1]]``
         (every sample within reach of any target of the group, in increasing index)
     samples_t, targets_t : (n, 3), (m, 3) float64, the search frame
-    hole_of, max_samples, max_per_hole, max_per_octant : as :func:`select_neighbours`
+    hole_of : (n,) int64, hole code of each sample
+    max_samples, max_per_hole, max_per_octant : int (<= 0 means no limit)
     skip_coincident : bool, leave out a sample at the target itself
-    out, counts, octants_filled : as :func:`select_neighbours` (written)
+    out : (m, max_samples) int64, chosen indices (written), padded with n
+    counts : (m,) int64, how many were chosen (written)
+    octants_filled : (m,) int64, octants holding a chosen sample (written)
     """
     m = targets_t.shape[0]
     n = hole_of.shape[0]
