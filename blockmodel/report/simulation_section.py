@@ -91,7 +91,8 @@ def render_simulation(
         "composites of the domain (hard boundaries; each composite moved to the node it "
         "falls in); back-transformed to grades (lower tail linear to "
         f"{s.minimum:g}, upper tail {tail} up to the maximum below) and averaged over each "
-        "block's nodes. Each block is a selective mining unit here; its tonnes are the "
+        "block's nodes inside the domain's solid (all its nodes where none is inside, "
+        "counted below). Each block is a selective mining unit here; its tonnes are the "
         "block model's. Grades are simulated independently of each other."
     )
     report.box("caution")
