@@ -5,7 +5,6 @@ realisations say per block and per domain and class."""
 
 from __future__ import annotations
 
-import dataclasses
 import os
 import time
 from collections.abc import Callable
@@ -21,7 +20,7 @@ from blockmodel.simulation.conditional import plan_simulation, simulate_blocks
 from blockmodel.simulation.transform import GaussianTransform, gaussian_transform
 from blockmodel.stages.declustering import Declustering
 from blockmodel.stages.tables import class_order
-from blockmodel.stages.variography import Variography, domain_variography, scaled_model
+from blockmodel.stages.variography import Variography, normal_score_model
 from blockmodel.variography.models import VariogramModel
 
 __all__ = ["DomainSimulation", "Simulation", "simulate"]
@@ -255,7 +254,7 @@ def simulate(
             upper_tail=s.upper_tail,
             omega=s.omega,
         )
-        model, source = _score_model(
+        model, source = normal_score_model(
             project, composites[own], declustering.weights[own], variography[key]
         )
         plan = plan_simulation(
@@ -358,45 +357,3 @@ def _run(
             if progress is not None:
                 progress(key, f + n, realisations)
     return np.concatenate([parts[f] for f, _ in batches], axis=1)
-
-
-def _score_model(
-    project: Project, composites: pd.DataFrame, weights: np.ndarray, grade: Variography
-) -> tuple[VariogramModel, str]:
-    """The normal scores' variogram model (total sill 1) and where it came from: with
-    ``fit``, the structures' kinds, ranges and orientation of the grade model, and the
-    nugget and sills fitted to the normal scores' experimental variograms along its axes."""
-    m = grade.model
-    if project.simulation.model == "standardised" or not m.structures:
-        return scaled_model(m, 1.0 / m.total_sill), "grade model standardised to sill 1"
-    o = m.structures[0].orientation
-    ranges = {
-        f"range{k + 1}_{axis}": r
-        for k, st in enumerate(m.structures)
-        for axis, r in zip(("major", "semi", "minor"), st.ranges, strict=True)
-    }
-    v = dataclasses.replace(
-        project.variography,
-        transform="normal_scores",
-        estimator="semivariogram",
-        orientation=(o.azimuth, o.plunge, o.tilt),
-        structures=len(m.structures),
-        kinds=tuple(st.kind for st in m.structures),
-        fixed=ranges,
-    )
-    scores_project = dataclasses.replace(project, variography=v, variogram={})
-    fitted = domain_variography(
-        scores_project, grade.domain, grade.grade, composites, weights, scan=False
-    )
-    model = fitted.fit.model
-    # the grade model's orientation per structure (the fit takes the first's for all)
-    model = VariogramModel(
-        model.nugget,
-        [
-            dataclasses.replace(st, orientation=g.orientation)
-            for st, g in zip(model.structures, m.structures, strict=True)
-        ],
-    )
-    return scaled_model(
-        model, 1.0 / model.total_sill
-    ), "nugget and sills fitted to the normal scores"

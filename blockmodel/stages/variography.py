@@ -3,6 +3,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
@@ -28,7 +29,13 @@ from blockmodel.variography.fitting import (
 )
 from blockmodel.variography.models import Structure, VariogramModel
 
-__all__ = ["Variography", "domain_variography", "scaled_model", "variography"]
+__all__ = [
+    "Variography",
+    "domain_variography",
+    "normal_score_model",
+    "scaled_model",
+    "variography",
+]
 
 
 @dataclass(frozen=True)
@@ -280,3 +287,47 @@ def _directional(v, pts, values, orient: Orientation, common: dict) -> list:
             **common,
         )
     return out
+
+
+def normal_score_model(
+    project: Project, composites: pd.DataFrame, weights: np.ndarray, grade: Variography
+) -> tuple[VariogramModel, str]:
+    """The normal scores' variogram model (total sill 1) of the composites of one domain
+    and grade (with their declustering weights), and where it came from: with
+    ``simulation.model = "fit"``, the grade model's structure kinds, ranges and
+    orientation with the nugget and sills fitted to the normal scores' experimental
+    variograms along its axes; with ``"standardised"``, the grade model scaled to sill 1."""
+    m = grade.model
+    if project.simulation.model == "standardised" or not m.structures:
+        return scaled_model(m, 1.0 / m.total_sill), "grade model standardised to sill 1"
+    o = m.structures[0].orientation
+    ranges = {
+        f"range{k + 1}_{axis}": r
+        for k, st in enumerate(m.structures)
+        for axis, r in zip(("major", "semi", "minor"), st.ranges, strict=True)
+    }
+    v = dataclasses.replace(
+        project.variography,
+        transform="normal_scores",
+        estimator="semivariogram",
+        orientation=(o.azimuth, o.plunge, o.tilt),
+        structures=len(m.structures),
+        kinds=tuple(st.kind for st in m.structures),
+        fixed=ranges,
+    )
+    scores_project = dataclasses.replace(project, variography=v, variogram={})
+    fitted = domain_variography(
+        scores_project, grade.domain, grade.grade, composites, weights, scan=False
+    )
+    model = fitted.fit.model
+    # the grade model's orientation per structure (the fit takes the first's for all)
+    model = VariogramModel(
+        model.nugget,
+        [
+            dataclasses.replace(st, orientation=g.orientation)
+            for st, g in zip(model.structures, m.structures, strict=True)
+        ],
+    )
+    return scaled_model(
+        model, 1.0 / model.total_sill
+    ), "nugget and sills fitted to the normal scores"
