@@ -106,6 +106,8 @@ def test_points_beside_drillholes_run_and_report(tmp_path, capsys):
     assert main(["check", str(project)]) == 0
     out = capsys.readouterr().out
     assert f"Point samples: {len(points)} on 16 line(s)" in out
+    # no length column: the mixed support is said (common practice: a QP judges it)
+    assert "beside 2 m drillhole composites" in out
     assert main(["run", str(project), "--out", str(tmp_path / "out")]) == 0
     html = (tmp_path / "out" / "report.html").read_text()
     assert f"{len(points)} point samples on 16 line(s)" in html

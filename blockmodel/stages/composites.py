@@ -5,6 +5,7 @@ from __future__ import annotations
 import difflib
 from dataclasses import dataclass
 
+import numpy as np
 import pandas as pd
 
 from blockmodel.config.project import Project
@@ -75,6 +76,8 @@ def load_and_composite(project: Project) -> Composites:
         names = frozenset(holes.collars["hole"])
         points = load_points(data, project.compositing.length, names)
     _check_codes(project, holes, points)
+    if points is not None and data.has_drillholes:
+        _support_warning(project, points)
     code_to_name = {d.code: d.name for d in project.domains}
     comps, summary = composite(holes, project.compositing)
     comps["source"] = "drillhole"
@@ -103,6 +106,28 @@ def load_and_composite(project: Project) -> Composites:
                 ]
             )
     return Composites(holes, comps, summary, tuple(capping), points)
+
+
+def _support_warning(project: Project, points: PointSamples) -> None:
+    """Point samples beside composites of another length: the estimate mixes supports
+    (their variances differ), which the qualified person must judge."""
+    length = project.compositing.length
+    column = project.data.point_columns.length
+    lengths = points.table["length"].to_numpy(float)
+    if column and abs(float(np.median(lengths)) - length) <= 0.25 * length:
+        return
+    said = f"median length {np.median(lengths):g} m" if column else "no length given"
+    points.warnings.append(
+        Problem(
+            str(project.data.points),
+            None,
+            None,
+            column or None,
+            f"{len(lengths)} point samples ({said}) are used beside {length:g} m drillhole "
+            "composites: samples of another support have another variance; judge whether "
+            "they may be mixed, or estimate without them to compare",
+        )
+    )
 
 
 def _code_column(project: Project) -> str:
