@@ -45,11 +45,9 @@ def _line(name: str, value: float, unit: str, target: float, *, lower: bool = Tr
 
 def main(*, blocks: int = 200_000, quick: bool = False, scale: bool = False) -> None:
     """Print the benchmark figures, each beside its target."""
-    import numba
+    from blockmodel.estimation._threads import threads
 
-    print(
-        f"machine: {os.cpu_count()} cores, numba threads {numba.get_num_threads()}, numpy {np.__version__}"
-    )
+    print(f"machine: {os.cpu_count()} cores, kernel threads {threads()}, numpy {np.__version__}")
     peak = matmul_peak(1000 if quick else 2000)
     print(f"float64 matrix-multiply peak (numpy @): {peak:.1f} GFLOP/s")
     print("start-up and the whole demo")
@@ -113,8 +111,12 @@ def main(*, blocks: int = 200_000, quick: bool = False, scale: bool = False) -> 
         )
     if not quick:
         b = backends_ratio()
+        print(
+            f"  process pool start-up (first job of one block per worker): 1 worker "
+            f"{b['processes_start_1']:.1f} s, 2 workers {b['processes_start_2']:.1f} s"
+        )
         _line(
-            "process pool, 2 workers / 1 (speed-up)",
+            "process pool, 2 workers / 1 (speed-up, after start-up)",
             b["processes_1"] / b["processes_2"],
             "x",
             1.6,
@@ -122,7 +124,7 @@ def main(*, blocks: int = 200_000, quick: bool = False, scale: bool = False) -> 
         )
         if "dask_1" in b:
             _line(
-                "dask LocalCluster, 2 workers / 1 (speed-up)",
+                "dask LocalCluster, 2 workers / 1 (speed-up, after start-up)",
                 b["dask_1"] / b["dask_2"],
                 "x",
                 1.6,

@@ -234,7 +234,9 @@ def scale_model(n_blocks: int, folder: str) -> dict:
 def backends_ratio(n_blocks: int = 400_000) -> dict:
     """Seconds to estimate ``n_blocks`` blocks with one and with two single-thread workers,
     on the local process pool and on a ``dask.distributed`` LocalCluster (child process
-    with one numba thread per worker)."""
+    with one kernel thread per worker).  Each pool or cluster first runs one block per
+    worker, as a run's first domain would, so the times are those of the following domains
+    and passes; ``processes_start_<n>`` is that first job (start-up included)."""
     env = dict(os.environ, NUMBA_NUM_THREADS="1")
     code = (
         "import time\nfrom blockmodel.app.bench_cases import MODEL, SEARCH, BLOCK, DISC, "
@@ -247,6 +249,9 @@ def backends_ratio(n_blocks: int = 400_000) -> dict:
         "run_job(job, targets[:2000], backend='serial')\nres = {}\n"
         "for n in (1, 2):\n"
         "    t = time.perf_counter()\n"
+        "    run_job(job, targets[:2], backend='processes', workers=n, chunk_size=1)\n"
+        "    res[f'processes_start_{n}'] = time.perf_counter() - t\n"
+        "    t = time.perf_counter()\n"
         "    run_job(job, targets, chunk_size=25000, backend='processes', workers=n)\n"
         "    res[f'processes_{n}'] = time.perf_counter() - t\n"
         "try:\n"
@@ -254,6 +259,8 @@ def backends_ratio(n_blocks: int = 400_000) -> dict:
         "    for n in (1, 2):\n"
         "        with LocalCluster(n_workers=n, threads_per_worker=1, processes=True, "
         "dashboard_address=None) as cluster:\n"
+        "            run_job(job, targets[:2], chunk_size=1, backend='dask', "
+        "cluster=cluster.scheduler_address)\n"
         "            t = time.perf_counter()\n"
         "            run_job(job, targets, chunk_size=25000, backend='dask', "
         "cluster=cluster.scheduler_address)\n"

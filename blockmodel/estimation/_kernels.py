@@ -8,7 +8,7 @@ whatever the chunking or the backend.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 _CACHE = True
 
@@ -177,8 +177,10 @@ def _cholesky_solve(lower, b):
         b[i] = s / lower[i, i]
 
 
-@njit(cache=_CACHE, parallel=True)
+@njit(cache=_CACHE, nogil=True)
 def krige_groups(
+    first,
+    last,
     samples_r,
     values,
     targets,
@@ -205,7 +207,8 @@ def krige_groups(
     weight_sum,
     ill_conditioned,
 ):
-    """Solve one kriging system per group of targets sharing a neighbourhood.
+    """Solve one kriging system per group of targets sharing a neighbourhood, for groups
+    ``first .. last - 1`` (split over threads by :func:`blockmodel.estimation._threads.run_split`).
 
     Parameters
     ----------
@@ -231,12 +234,11 @@ def krige_groups(
     Covariances are evaluated in each structure's reduced frame, where the structure is
     isotropic with range 1, so each separation costs three subtractions and a square sum.
     """
-    n_groups = group_starts.shape[0] - 1
     n_struct = kinds.shape[0]
     c0 = 0.0
     for st in range(n_struct):
         c0 += sills[st]
-    for g in prange(n_groups):
+    for g in range(first, last):
         first = order[group_starts[g]]
         k = counts[first]
         a = np.zeros((k, k))

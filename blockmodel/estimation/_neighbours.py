@@ -2,25 +2,34 @@
 limits from a candidate list shared by nearby targets, grouping targets that share a
 neighbourhood, and summarising neighbourhoods.
 
-Pure arrays in, arrays out; compiled with numba and cached on disk; no ``fastmath``.
+Pure arrays in, arrays out; compiled with numba and cached on disk; no ``fastmath``.  The
+per-target kernels release the GIL and take the range of targets they handle, for
+:func:`blockmodel.estimation._threads.run_split`.
 """
 
 from __future__ import annotations
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 _CACHE = True
 
 
-@njit(cache=_CACHE)
-def group_rows(rows):
-    """Order rows so that identical rows are contiguous; returns (order, group starts).
+def group_rows(rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Order rows (m, k) int64 so that identical rows are contiguous; returns (order, group
+    starts).
 
-    Rows are hashed (FNV-1a over their entries) and sorted by hash; a group ends wherever a
-    row differs from the one before, so a hash collision can only split a group, never merge
-    different rows.
+    Rows are hashed (FNV-1a over their entries) and sorted by hash (stable); a group ends
+    wherever a row differs from the one before, so a hash collision can only split a group,
+    never merge different rows.  The sort is numpy's: compiling one costs seconds.
     """
+    rows = np.ascontiguousarray(rows, dtype=np.int64)
+    order = np.argsort(_row_hashes(rows), kind="stable").astype(np.int64)
+    return order, _group_starts(rows, order)
+
+
+@njit(cache=_CACHE)
+def _row_hashes(rows):
     m, k = rows.shape
     h = np.empty(m, dtype=np.uint64)
     prime = np.uint64(1099511628211)
@@ -29,7 +38,12 @@ def group_rows(rows):
         for c in range(k):
             x = (x ^ np.uint64(rows[t, c])) * prime
         h[t] = x
-    order = np.argsort(h, kind="mergesort").astype(np.int64)
+    return h
+
+
+@njit(cache=_CACHE)
+def _group_starts(rows, order):
+    m, k = rows.shape
     starts = np.empty(m + 1, dtype=np.int64)
     n = 0
     for p in range(m):
@@ -44,11 +58,13 @@ def group_rows(rows):
             starts[n] = p
             n += 1
     starts[n] = m
-    return order, starts[: n + 1].copy()
+    return starts[: n + 1].copy()
 
 
-@njit(cache=_CACHE, parallel=True)
+@njit(cache=_CACHE, nogil=True)
 def summarise_neighbours(
+    first,
+    last,
     index,
     count,
     distance,
@@ -62,13 +78,13 @@ def summarise_neighbours(
     nearest,
     inverse_distance,
 ):
-    """Per target: distinct holes, mean Euclidean distance (metres), nearest sample value and
-    inverse-distance estimate (anisotropic distance to the given power).
+    """Per target ``first .. last - 1``: distinct holes, mean Euclidean distance (metres),
+    nearest sample value and inverse-distance estimate (anisotropic distance to the given
+    power).
 
     ``index`` and ``distance`` are ordered by increasing anisotropic distance.
     """
-    m = index.shape[0]
-    for t in prange(m):
+    for t in range(first, last):
         k = count[t]
         holes = np.empty(k, dtype=np.int64)
         dsum = 0.0
@@ -101,8 +117,10 @@ def summarise_neighbours(
         inverse_distance[t] = values[exact] if exact >= 0 else vsum / wsum
 
 
-@njit(cache=_CACHE, parallel=True)
+@njit(cache=_CACHE, nogil=True)
 def select_in_groups(
+    first,
+    last,
     group_of,
     offsets,
     candidates,
@@ -117,8 +135,9 @@ def select_in_groups(
     counts,
     octants_filled,
 ):
-    """Per target: the samples of its group's candidate list inside the unit sphere, by
-    increasing distance (ties by sample index), then the per-hole and per-octant limits.
+    """Per target ``first .. last - 1``: the samples of its group's candidate list inside
+    the unit sphere, by increasing distance (ties by sample index), then the per-hole and
+    per-octant limits.
 
     Parameters
     ----------
@@ -133,9 +152,8 @@ def select_in_groups(
     counts : (m,) int64, how many were chosen (written)
     octants_filled : (m,) int64, octants holding a chosen sample (written)
     """
-    m = targets_t.shape[0]
     n = hole_of.shape[0]
-    for t in prange(m):
+    for t in range(first, last):
         g = group_of[t]
         a, b = offsets[g], offsets[g + 1]
         dist = np.empty(b - a)

@@ -62,24 +62,42 @@ def _chunk(
 
 
 def _init_worker() -> None:
-    # One numba thread per process: the pool supplies the parallelism.
-    import numba
+    # One kernel thread per process: the pool supplies the parallelism.
+    from blockmodel.estimation._threads import set_threads
 
-    numba.set_num_threads(1)
-
-
-_JOB: EstimationJob | None = None
+    set_threads(1)
 
 
-def _init_process(job: EstimationJob) -> None:
-    global _JOB
+_POOL: dict = {"workers": 0, "pool": None}
+
+
+def _process_pool(workers: int):
+    """The local process pool of ``workers`` processes, started on first use and kept for
+    the following jobs (domains and passes), so each worker starts and loads the compiled
+    kernels once."""
+    if _POOL["pool"] is None or _POOL["workers"] != workers:
+        import multiprocessing as mp
+        from concurrent.futures import ProcessPoolExecutor
+
+        close_pool()
+        _POOL["pool"] = ProcessPoolExecutor(
+            max_workers=workers, mp_context=mp.get_context("spawn"), initializer=_init_worker
+        )
+        _POOL["workers"] = workers
+    return _POOL["pool"]
+
+
+def close_pool() -> None:
+    """Stop the local process pool, if one is running (queued chunks are dropped)."""
+    if _POOL["pool"] is not None:
+        _POOL["pool"].shutdown(wait=True, cancel_futures=True)
+        _POOL["pool"] = None
+
+
+def _cluster_chunk(job: EstimationJob, targets: np.ndarray) -> dict[str, np.ndarray]:
+    # One kernel thread per task: each of a cluster worker's threads runs a task.
     _init_worker()
-    _JOB = job
-
-
-def _process_chunk(targets: np.ndarray) -> dict[str, np.ndarray]:
-    assert _JOB is not None
-    return _chunk(_JOB, targets)
+    return _chunk(job, targets)
 
 
 class Progress:
@@ -152,19 +170,15 @@ def run_job(
             parts.append(_chunk(job, targets[a:b]))
             progress.advance(b - a)
     elif backend == "processes":
-        import multiprocessing as mp
-        from concurrent.futures import ProcessPoolExecutor
-
-        n = workers or os.cpu_count() or 1
-        ctx = mp.get_context("spawn")
-        with ProcessPoolExecutor(
-            max_workers=n, mp_context=ctx, initializer=_init_process, initargs=(job,)
-        ) as pool:
-            for (a, b), part in zip(
-                bounds, pool.map(_process_chunk, [targets[a:b] for a, b in bounds]), strict=True
-            ):
-                parts.append(part)
+        pool = _process_pool(workers or os.cpu_count() or 1)
+        futures = [pool.submit(_chunk, job, targets[a:b]) for a, b in bounds]
+        try:
+            for (a, b), future in zip(bounds, futures, strict=True):
+                parts.append(future.result())
                 progress.advance(b - a)
+        except BaseException:
+            close_pool()  # an interrupted or failed run leaves no worker busy
+            raise
     elif backend == "dask":
         try:
             from distributed import Client
@@ -175,7 +189,8 @@ def run_job(
         with Client(cluster) as client:
             job_future = client.scatter(job, broadcast=True)
             futures = [
-                client.submit(_chunk, job_future, targets[a:b], pure=False) for a, b in bounds
+                client.submit(_cluster_chunk, job_future, targets[a:b], pure=False)
+                for a, b in bounds
             ]
             for (a, b), fut in zip(bounds, futures, strict=True):
                 parts.append(fut.result())

@@ -25,6 +25,7 @@ import numpy as np
 from scipy.spatial import cKDTree
 
 from blockmodel.estimation import _neighbours
+from blockmodel.estimation._threads import run_split
 from blockmodel.estimation.search import SearchEllipsoid, find_neighbours
 from blockmodel.estimation.systems import (
     DISCRETISATION,
@@ -199,7 +200,9 @@ def estimate(
                 c: np.empty(len(tgt)) for c in ("mean_distance", "nearest", "inverse_distance")
             }
             holes_found = np.empty(len(tgt), dtype=np.int64)
-            _neighbours.summarise_neighbours(
+            run_split(
+                _neighbours.summarise_neighbours,
+                len(tgt),
                 idx,
                 cnt.astype(np.int64),
                 dist,

@@ -13,6 +13,7 @@ import numpy as np
 from scipy.spatial import cKDTree
 
 from blockmodel.estimation import _neighbours
+from blockmodel.estimation._threads import run_split
 from blockmodel.estimation.orientation import Orientation
 
 __all__ = ["MAX_SAMPLES", "MIN_SAMPLES", "Neighbourhoods", "SearchEllipsoid", "find_neighbours"]
@@ -177,7 +178,9 @@ def find_neighbours(
     candidates = np.fromiter(
         itertools.chain.from_iterable(lists), dtype=np.int64, count=int(offsets[-1])
     )
-    _neighbours.select_in_groups(
+    run_split(
+        _neighbours.select_in_groups,
+        len(targets_t),
         group_of.ravel().astype(np.int64),
         offsets,
         candidates,

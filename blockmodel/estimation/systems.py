@@ -9,6 +9,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from blockmodel.estimation import _kernels, _neighbours
+from blockmodel.estimation._threads import run_split
 from blockmodel.variography.models import VariogramModel
 
 __all__ = [
@@ -99,7 +100,9 @@ class KrigingSystems:
         n = len(targets)
         res = {c: np.full(n, np.nan) for c in ("est", "var", "slope", "mu", "neg", "nneg", "ws")}
         flag = np.zeros(n, dtype=bool)
-        _kernels.krige_groups(
+        run_split(
+            _kernels.krige_groups,
+            len(starts) - 1,
             self.samples_r,
             values,
             targets,

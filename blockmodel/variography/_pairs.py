@@ -144,7 +144,10 @@ def pair_sums(
                 top,
                 acc,
             )
-    return partial.sum(axis=0)
+    total = partial[0].copy()  # a plain loop: a sum over an axis costs seconds to compile
+    for run in range(1, runs):
+        total += partial[run]
+    return total
 
 
 @njit(cache=True)

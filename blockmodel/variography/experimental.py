@@ -228,10 +228,10 @@ def _sums(points, values, w, group, axes, tolerance, bands, edges, lag, lag_tole
     order, start, shape = cell_table(points, size)
     u, e_h, e_v, free = axes
     cone = None if free.any() else u.T  # offsets outside every cone hold no pair
-    return pair_sums(
-        points,
-        values,
-        w,
+    return pair_sums(  # one compiled specialisation: C-ordered, writable float64
+        np.array(points, dtype=np.float64, order="C"),
+        np.array(values, dtype=np.float64),
+        np.array(w, dtype=np.float64),
         np.zeros(n, dtype=np.int64) if group is None else group.astype(np.int64),
         order,
         start,
