@@ -39,24 +39,6 @@ def _structured_cov(dx, dy, dz, kinds, sills, mats):
     return total
 
 
-@njit(cache=_CACHE, inline="always")
-def _correlation(kind, r2):
-    """Correlation of one structure at squared reduced distance r2 (practical range 1)."""
-    if kind == 0:
-        if r2 < 1.0:
-            r = np.sqrt(r2)
-            return 1.0 - r * (1.5 - 0.5 * r2)
-        return 0.0
-    if kind == 1:
-        return np.exp(-3.0 * np.sqrt(r2))
-    if kind == 2:
-        return np.exp(-3.0 * r2)
-    if r2 < 1.0:
-        r = np.sqrt(r2)
-        return 1.0 - r2 * (7.0 - r * (8.75 - r2 * (3.5 - 0.75 * r2)))
-    return 0.0
-
-
 def reduced(points, mats):
     """Points in each structure's reduced frame: (s, n, 3), written element-wise so every row
     gets the same arithmetic whatever the batch."""
@@ -72,49 +54,52 @@ def reduced(points, mats):
 
 
 @njit(cache=_CACHE, inline="always")
-def _mean_correlation(kind, px, py, pz, ox, oy, oz):
+def _mean_correlation(kind, px, py, pz, ox, oy, oz, c):
     """Mean correlation between one reduced point (px, py, pz) and every discretisation
-    offset (ox, oy, oz: (d,) each). Branch-free per kind, four partial sums in a fixed order,
-    so the compiler can vectorise it while every call does the same arithmetic."""
+    offset (ox, oy, oz: (d,) each); ``c`` (d,) is scratch.  The correlations are computed
+    in a loop of one kind with no branch and no sum (so the compiler vectorises it), then
+    summed in four partial sums in a fixed order: every call does the same arithmetic."""
     d = ox.shape[0]
+    if kind == 0:
+        for o in range(d):
+            dx = px - ox[o]
+            dy = py - oy[o]
+            dz = pz - oz[o]
+            r2c = min(dx * dx + dy * dy + dz * dz, 1.0)
+            r = np.sqrt(r2c)
+            c[o] = 1.0 - r * (1.5 - 0.5 * r2c)
+    elif kind == 1:
+        for o in range(d):
+            dx = px - ox[o]
+            dy = py - oy[o]
+            dz = pz - oz[o]
+            c[o] = np.exp(-3.0 * np.sqrt(dx * dx + dy * dy + dz * dz))
+    elif kind == 2:
+        for o in range(d):
+            dx = px - ox[o]
+            dy = py - oy[o]
+            dz = pz - oz[o]
+            c[o] = np.exp(-3.0 * (dx * dx + dy * dy + dz * dz))
+    else:
+        for o in range(d):
+            dx = px - ox[o]
+            dy = py - oy[o]
+            dz = pz - oz[o]
+            r2c = min(dx * dx + dy * dy + dz * dz, 1.0)
+            r = np.sqrt(r2c)
+            c[o] = 1.0 - r2c * (7.0 - r * (8.75 - r2c * (3.5 - 0.75 * r2c)))
     s0 = 0.0
     s1 = 0.0
     s2 = 0.0
     s3 = 0.0
     top = d - d % 4
-    for o in range(0, d, 4):
-        if o >= top:
-            break
-        for lane in range(4):
-            dx = px - ox[o + lane]
-            dy = py - oy[o + lane]
-            dz = pz - oz[o + lane]
-            r2 = dx * dx + dy * dy + dz * dz
-            if kind == 0:
-                r2c = min(r2, 1.0)
-                r = np.sqrt(r2c)
-                c = 1.0 - r * (1.5 - 0.5 * r2c)
-            elif kind == 1:
-                c = np.exp(-3.0 * np.sqrt(r2))
-            elif kind == 2:
-                c = np.exp(-3.0 * r2)
-            else:
-                r2c = min(r2, 1.0)
-                r = np.sqrt(r2c)
-                c = 1.0 - r2c * (7.0 - r * (8.75 - r2c * (3.5 - 0.75 * r2c)))
-            if lane == 0:
-                s0 += c
-            elif lane == 1:
-                s1 += c
-            elif lane == 2:
-                s2 += c
-            else:
-                s3 += c
+    for o in range(0, top, 4):
+        s0 += c[o]
+        s1 += c[o + 1]
+        s2 += c[o + 2]
+        s3 += c[o + 3]
     for o in range(top, d):
-        dx = px - ox[o]
-        dy = py - oy[o]
-        dz = pz - oz[o]
-        s0 += _correlation(kind, dx * dx + dy * dy + dz * dz)
+        s0 += c[o]
     return ((s0 + s1) + (s2 + s3)) / d
 
 
@@ -138,15 +123,18 @@ def mean_block_covariance(offsets, kinds, sills, mats):
 
 @njit(cache=_CACHE)
 def _cholesky(a):
-    """In-place lower Cholesky factor of the leading block of ``a``; returns the ratio of the
-    smallest to the largest squared pivot (0 if not positive definite)."""
+    """In-place upper Cholesky factor U (C = U'U) of a symmetric matrix given by its upper
+    triangle; returns the ratio of the smallest to the largest squared pivot (0 if not
+    positive definite).
+
+    Right-looking: after each pivot the rows below are updated along contiguous rows (the
+    compiler vectorises it).  Each entry receives the same subtractions in the same order
+    as the textbook inner-product form, so the factor is the same to the last bit."""
     n = a.shape[0]
     pmin = np.inf
     pmax = 0.0
     for j in range(n):
         s = a[j, j]
-        for p in range(j):
-            s -= a[j, p] * a[j, p]
         if not s > 0.0:
             return 0.0
         pmin = min(pmin, s)
@@ -155,26 +143,66 @@ def _cholesky(a):
         a[j, j] = d
         inv = 1.0 / d
         for i in range(j + 1, n):
-            t = a[i, j]
-            for p in range(j):
-                t -= a[i, p] * a[j, p]
-            a[i, j] = t * inv
+            a[j, i] = a[j, i] * inv
+        for r in range(j + 1, n):
+            f = a[j, r]
+            for i in range(r, n):
+                a[r, i] -= f * a[j, i]
     return pmin / pmax
 
 
 @njit(cache=_CACHE, inline="always")
-def _cholesky_solve(lower, b):
-    n = lower.shape[0]
-    for i in range(n):
-        s = b[i]
-        for p in range(i):
-            s -= lower[i, p] * b[p]
-        b[i] = s / lower[i, i]
+def _cholesky_solve(upper, b):
+    """Solve U'U x = b in place, U from :func:`_cholesky`."""
+    n = upper.shape[0]
+    for p in range(n):
+        b[p] = b[p] / upper[p, p]
+        f = b[p]
+        for i in range(p + 1, n):
+            b[i] -= upper[p, i] * f
     for i in range(n - 1, -1, -1):
         s = b[i]
         for p in range(i + 1, n):
-            s -= lower[p, i] * b[p]
-        b[i] = s / lower[i, i]
+            s -= upper[i, p] * b[p]
+        b[i] = s / upper[i, i]
+
+
+@njit(cache=_CACHE, inline="always")
+def _add_correlation_row(kind, sill, x, y, z, j, k, row):
+    """Add ``sill`` times the correlation between reduced point j and points j + 1 .. k - 1
+    (coordinates x, y, z: (k,) each) to ``row[j + 1:k]``: one loop per kind, no branch in
+    it, so the compiler vectorises it."""
+    px = x[j]
+    py = y[j]
+    pz = z[j]
+    if kind == 0:
+        for i in range(j + 1, k):
+            dx = x[i] - px
+            dy = y[i] - py
+            dz = z[i] - pz
+            r2c = min(dx * dx + dy * dy + dz * dz, 1.0)
+            r = np.sqrt(r2c)
+            row[i] += sill * (1.0 - r * (1.5 - 0.5 * r2c))
+    elif kind == 1:
+        for i in range(j + 1, k):
+            dx = x[i] - px
+            dy = y[i] - py
+            dz = z[i] - pz
+            row[i] += sill * np.exp(-3.0 * np.sqrt(dx * dx + dy * dy + dz * dz))
+    elif kind == 2:
+        for i in range(j + 1, k):
+            dx = x[i] - px
+            dy = y[i] - py
+            dz = z[i] - pz
+            row[i] += sill * np.exp(-3.0 * (dx * dx + dy * dy + dz * dz))
+    else:
+        for i in range(j + 1, k):
+            dx = x[i] - px
+            dy = y[i] - py
+            dz = z[i] - pz
+            r2c = min(dx * dx + dy * dy + dz * dz, 1.0)
+            r = np.sqrt(r2c)
+            row[i] += sill * (1.0 - r2c * (7.0 - r * (8.75 - r2c * (3.5 - 0.75 * r2c))))
 
 
 @njit(cache=_CACHE, nogil=True)
@@ -238,22 +266,25 @@ def krige_groups(
     c0 = 0.0
     for st in range(n_struct):
         c0 += sills[st]
+    local = np.empty((n_struct, 3, neighbours.shape[1]))
+    scratch = np.empty(offsets_r.shape[2])
     for g in range(first, last):
-        first = order[group_starts[g]]
-        k = counts[first]
+        lead = order[group_starts[g]]
+        k = counts[lead]
         a = np.zeros((k, k))
-        idx = neighbours[first, :k]
-        for i in range(k):
-            a[i, i] = nugget + c0
-            for j in range(i):
-                c = 0.0
-                for st in range(n_struct):
-                    dx = samples_r[st, idx[i], 0] - samples_r[st, idx[j], 0]
-                    dy = samples_r[st, idx[i], 1] - samples_r[st, idx[j], 1]
-                    dz = samples_r[st, idx[i], 2] - samples_r[st, idx[j], 2]
-                    c += sills[st] * _correlation(kinds[st], dx * dx + dy * dy + dz * dz)
-                a[i, j] = c
-        # C = L L' once per group. Ordinary kriging by the Schur complement of the bordered
+        idx = neighbours[lead, :k]
+        # the neighbourhood's reduced coordinates, contiguous; the upper triangle of C
+        for st in range(n_struct):
+            for r in range(3):
+                for i in range(k):
+                    local[st, r, i] = samples_r[st, idx[i], r]
+        for j in range(k):
+            a[j, j] = nugget + c0
+            for st in range(n_struct):
+                _add_correlation_row(
+                    kinds[st], sills[st], local[st, 0], local[st, 1], local[st, 2], j, k, a[j]
+                )
+        # C = U'U once per group. Ordinary kriging by the Schur complement of the bordered
         # system: C u = cbar, C v = 1, mu = (1'u - 1) / 1'v, lambda = u - mu v.
         ratio = _cholesky(a)
         v = np.ones(k)
@@ -286,6 +317,7 @@ def krige_groups(
                         offsets_r[st, 0],
                         offsets_r[st, 1],
                         offsets_r[st, 2],
+                        scratch,
                     )
                 cbar[i] = acc
                 if point_support:

@@ -76,10 +76,12 @@ def _process_pool(workers: int):
     the following jobs (domains and passes), so each worker starts and loads the compiled
     kernels once."""
     if _POOL["pool"] is None or _POOL["workers"] != workers:
+        import atexit
         import multiprocessing as mp
         from concurrent.futures import ProcessPoolExecutor
 
         close_pool()
+        atexit.register(close_pool)  # stopped while the interpreter is whole
         _POOL["pool"] = ProcessPoolExecutor(
             max_workers=workers, mp_context=mp.get_context("spawn"), initializer=_init_worker
         )
@@ -89,6 +91,9 @@ def _process_pool(workers: int):
 
 def close_pool() -> None:
     """Stop the local process pool, if one is running (queued chunks are dropped)."""
+    import atexit
+
+    atexit.unregister(close_pool)
     if _POOL["pool"] is not None:
         _POOL["pool"].shutdown(wait=True, cancel_futures=True)
         _POOL["pool"] = None
