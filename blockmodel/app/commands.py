@@ -275,6 +275,7 @@ def simulate(
                 workers=workers,
                 cluster=cluster,
                 progress=steps.counter("realisations"),
+                warn=steps.warn,
             )
         report = HtmlReport(f"{project.name}: conditional simulation")
         for message in results.warnings:

@@ -185,7 +185,10 @@ def run_stages(
     if project.simulation.in_run:
         with steps("conditional simulation"):
             sim = simulate_results(
-                results, cluster=engine.cluster or "", progress=steps.counter("realisations")
+                results,
+                cluster=engine.cluster or "",
+                progress=steps.counter("realisations"),
+                warn=steps.warn,
             )
         results = dataclasses.replace(results, simulation=sim, timings=dict(steps.timings))
     return results
@@ -199,11 +202,14 @@ def simulate_results(
     workers: int | None = None,
     cluster: str = "",
     progress: Callable[[str, int, int], None] | None = None,
+    warn: Callable[[str], None] | None = None,
 ) -> Simulation:
     """The conditional simulation (:func:`blockmodel.stages.simulation.simulate`) of a
-    run's estimated and classified blocks; the arguments override ``[simulation]``."""
+    run's estimated and classified blocks; the arguments override ``[simulation]``.
+    ``warn`` (optional) is told of each domain and grade whose realisations do not
+    reproduce the declustered mean (:meth:`Simulation.reproduction`)."""
     grid = results.domains.grid
-    return simulate(
+    sim = simulate(
         results.project,
         results.composites.table,
         results.declustering,
@@ -217,3 +223,12 @@ def simulate_results(
         cluster=cluster,
         progress=progress,
     )
+    if warn is not None:
+        for _, r in sim.reproduction(results.blocks).iterrows():
+            if r["flagged"]:
+                warn(
+                    f"{r['domain.grade']}: the realisations' mean grade is "
+                    f"{r['difference']:+.1%} from the declustered mean (reproduction table "
+                    "of the simulation page)"
+                )
+    return sim
