@@ -205,12 +205,40 @@ def test_a_run_can_include_the_simulation(tmp_path):
     assert "Uncertainty: conditional simulation" in (out / "report.html").read_text()
 
 
+def _truth_in_the_bands(blocks, truth, sim, grade, cutoffs):
+    """Per simulated domain: the share of the (tonnes, metal) x report cut-off points with
+    true tonnes whose truth lies inside the realisations' P10-P90 band, and whether the true
+    metal above the middle report cut-off lies inside the P5-P95 band."""
+    from blockmodel.assess.uncertainty import realisation_curves
+
+    middle = len(cutoffs) // 2
+    out = {}
+    for key, s in sim.by_key.items():
+        b = blocks.iloc[s.rows].merge(
+            truth, on=["x", "y", "z", "domain"], how="left", validate="one_to_one"
+        )
+        known = b[f"{grade}_true"].notna().to_numpy()
+        tonnes, true = b["tonnes"].to_numpy()[known], b[f"{grade}_true"].to_numpy()[known]
+        t_true, m_true = realisation_curves(tonnes, true[:, None], cutoffs)
+        t_sim, m_sim = realisation_curves(tonnes, s.grades[known], cutoffs)
+        inside = []
+        for values, real in ((t_sim, t_true[0]), (m_sim, m_true[0])):
+            lo, hi = np.percentile(values, [10, 90], axis=0)
+            inside += list(((real >= lo) & (real <= hi))[t_true[0] > 0])
+        lo, hi = np.percentile(m_sim[:, middle], [5, 95])
+        out[key] = (float(np.mean(inside)), bool(lo <= m_true[0, middle] <= hi))
+    return out
+
+
 @pytest.mark.slow
 @pytest.mark.xfail(
-    reason="not met on the demo (40 realisations, measured 2026-12-02): the lode's e-type "
-    "is +6 % over the truth (kriging +4 %; the declustered mean is right) and its bands "
-    "(metal CV 3 %) are narrower than that bias, so the truth lies below P10 above 1 g/t; "
-    "the halo's truth has blocks above its largest capped composite, the default maximum",
+    reason="not met on the demo (measured 2026-12-02): the lode's realisations average "
+    "+4 to +6 % over the truth (kriging +4 %; the declustered mean is right) and its bands "
+    "(metal CV 3 %) are narrower than that, so the truth lies below P10 above 1 g/t; the "
+    "lode's shoot (3.3 times its grade at the axis, drilled at 20 m against 40 m) is a "
+    "trend inside one stationary domain: with the shoot removed the lode meets the bar "
+    "(88 % of the points inside, 40 realisations); the halo's truth has "
+    "blocks above its largest capped composite, the default maximum",
     strict=True,
 )
 def test_demo_truth_lies_in_the_bands(tmp_path):
@@ -219,7 +247,6 @@ def test_demo_truth_lies_in_the_bands(tmp_path):
     80 % or more of the cut-offs with true tonnes, and the true metal above the middle
     report cut-off (1.5 g/t) inside the P5-P95 band (acceptance bar of the simulation,
     100 realisations)."""
-    from blockmodel.assess.uncertainty import realisation_curves
     from blockmodel.config.project import load_project
     from blockmodel.demo.deposit import write_demo
     from blockmodel.stages.run import run_stages, simulate_results
@@ -230,23 +257,48 @@ def test_demo_truth_lies_in_the_bands(tmp_path):
     sim = simulate_results(results, realisations=100, workers=0)
     truth = pd.read_parquet(project.truth)
     cutoffs = np.asarray(project.report.cutoffs)
-    middle = cutoffs[len(cutoffs) // 2]
-    for key, s in sim.by_key.items():
-        b = results.blocks.iloc[s.rows].merge(
-            truth, on=["x", "y", "z", "domain"], how="left", validate="one_to_one"
-        )
-        known = b["au_true"].notna().to_numpy()
-        tonnes, true = b["tonnes"].to_numpy()[known], b["au_true"].to_numpy()[known]
-        t_true, m_true = realisation_curves(tonnes, true[:, None], cutoffs)
-        t_sim, m_sim = realisation_curves(tonnes, s.grades[known], cutoffs)
-        inside = []
-        for values, real in ((t_sim, t_true[0]), (m_sim, m_true[0])):
-            lo, hi = np.percentile(values, [10, 90], axis=0)
-            inside += list(((real >= lo) & (real <= hi))[t_true[0] > 0])
-        assert np.mean(inside) >= 0.8, (key, np.mean(inside))
-        k = int(np.flatnonzero(cutoffs == middle)[0])
-        lo, hi = np.percentile(m_sim[:, k], [5, 95])
-        assert lo <= m_true[0, k] <= hi, (key, lo, m_true[0, k], hi)
+    for key, (share, middle) in _truth_in_the_bands(
+        results.blocks, truth, sim, "au", cutoffs
+    ).items():
+        assert share >= 0.8 and middle, (key, share, middle)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize(
+    "name",
+    [
+        pytest.param(
+            "pipe",
+            marks=pytest.mark.xfail(
+                reason="not met (measured 2026-12-02, 100 realisations): 2 of the 4 points "
+                "inside; above the median cut-off the bands run +3 to +21 % (tonnes) and "
+                "+0 to +19 % (metal) over the truth, the kriged blocks +16 % and +8 %; the "
+                "realisations average +3 % over the declustered mean",
+                strict=True,
+            ),
+        ),
+        "seam",
+        "lode",
+    ],
+)
+def test_invented_deposits_truth_lies_in_the_bands(tmp_path, name):
+    """On the invented test deposits (tests/deposits.py, seed 1), whose true blocks are
+    known: the same bar as the demo's, at their report cut-offs (0 and the median true
+    block grade), 100 realisations."""
+    from blockmodel.config.project import load_project
+    from blockmodel.stages.run import run_stages, simulate_results
+
+    from . import deposits
+
+    project_file, truth, spec = deposits.build(name, tmp_path / name)
+    project = load_project(project_file)
+    results = run_stages(project)
+    sim = simulate_results(results, realisations=100, workers=0)
+    cutoffs = np.asarray(project.report.cutoffs)
+    for key, (share, middle) in _truth_in_the_bands(
+        results.blocks, truth.blocks, sim, spec.grade, cutoffs
+    ).items():
+        assert share >= 0.8 and middle, (key, share, middle)
 
 
 def test_realisations_on_a_cluster_equal_the_local_ones(rng):
