@@ -106,10 +106,14 @@ def summarise_neighbours(
                 w = 1.0 / d**power
                 wsum += w
                 vsum += w * values[s]
-        holes.sort()
-        distinct = 0
+        distinct = 0  # a plain count (a neighbourhood is small; a sort costs compile time)
         for i in range(k):
-            if i == 0 or holes[i] != holes[i - 1]:
+            seen = False
+            for j in range(i):
+                if holes[j] == holes[i]:
+                    seen = True
+                    break
+            if not seen:
                 distinct += 1
         n_holes[t] = distinct
         mean_distance[t] = dsum / k
@@ -169,7 +173,7 @@ def select_in_groups(
                 dist[k] = d
                 near[k] = s
                 k += 1
-        order = np.argsort(dist[:k], kind="mergesort")
+        order = _order_by_distance(dist, near, k)
         holes_seen = np.full(max_samples, -1, dtype=np.int64)
         holes_count = np.zeros(max_samples, dtype=np.int64)
         n_seen = 0
@@ -215,3 +219,37 @@ def select_in_groups(
         octants_filled[t] = filled
         for c in range(used, max_samples):
             out[t, c] = n
+
+
+@njit(cache=_CACHE, inline="always")
+def _order_by_distance(dist, near, k):
+    """Positions 0 .. k - 1 ordered by (dist, near): a bottom-up merge sort (a library
+    sort costs seconds of compile time on a first run)."""
+    order = np.arange(k)
+    spare = np.empty(k, dtype=np.int64)
+    width = 1
+    while width < k:
+        for lo in range(0, k, 2 * width):
+            mid = min(lo + width, k)
+            hi = min(lo + 2 * width, k)
+            a, b, o = lo, mid, lo
+            while a < mid and b < hi:
+                x, y = order[a], order[b]
+                if dist[y] < dist[x] or (dist[y] == dist[x] and near[y] < near[x]):
+                    spare[o] = y
+                    b += 1
+                else:
+                    spare[o] = x
+                    a += 1
+                o += 1
+            while a < mid:
+                spare[o] = order[a]
+                a += 1
+                o += 1
+            while b < hi:
+                spare[o] = order[b]
+                b += 1
+                o += 1
+        order, spare = spare, order
+        width *= 2
+    return order
