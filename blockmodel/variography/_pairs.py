@@ -208,7 +208,14 @@ def _cell_pairs(
                     if abs(d - (k + 1) * lag) > lag_tolerance:
                         continue
                 else:
-                    k = np.searchsorted(edges, d) - 1  # edges[k] < d <= edges[k + 1]
+                    lo, hi = 0, nb + 1  # edges[k] < d <= edges[k + 1], by bisection
+                    while lo < hi:
+                        mid = (lo + hi) // 2
+                        if edges[mid] < d:
+                            lo = mid + 1
+                        else:
+                            hi = mid
+                    k = lo - 1
                 if k < 0 or k >= nb:
                     continue
                 zi, zj = values[i], values[j]
