@@ -112,7 +112,7 @@ def main(*, blocks: int = 200_000, quick: bool = False, scale: bool = False) -> 
     if not quick:
         b = backends_ratio()
         print(
-            f"  process pool start-up (first job of one block per worker): 1 worker "
+            f"  process pool start-up (first job: 64 one-block tasks): 1 worker "
             f"{b['processes_start_1']:.1f} s, 2 workers {b['processes_start_2']:.1f} s"
         )
         _line(

@@ -234,9 +234,11 @@ def scale_model(n_blocks: int, folder: str) -> dict:
 def backends_ratio(n_blocks: int = 400_000) -> dict:
     """Seconds to estimate ``n_blocks`` blocks with one and with two single-thread workers,
     on the local process pool and on a ``dask.distributed`` LocalCluster (child process
-    with one kernel thread per worker).  Each pool or cluster first runs one block per
-    worker, as a run's first domain would, so the times are those of the following domains
-    and passes; ``processes_start_<n>`` is that first job (start-up included)."""
+    with one kernel thread per worker).  Each pool or cluster first runs 64 one-block
+    tasks, so that every worker has started and loaded the compiled kernels, as after a
+    run's first domain; the times are those of the following domains
+    and passes, in chunks of the default 20,000 blocks; ``processes_start_<n>`` is that
+    first job (start-up included)."""
     env = dict(os.environ, NUMBA_NUM_THREADS="1")
     code = (
         "import time\nfrom blockmodel.app.bench_cases import MODEL, SEARCH, BLOCK, DISC, "
@@ -249,20 +251,20 @@ def backends_ratio(n_blocks: int = 400_000) -> dict:
         "run_job(job, targets[:2000], backend='serial')\nres = {}\n"
         "for n in (1, 2):\n"
         "    t = time.perf_counter()\n"
-        "    run_job(job, targets[:2], backend='processes', workers=n, chunk_size=1)\n"
+        "    run_job(job, targets[:64], backend='processes', workers=n, chunk_size=1)\n"
         "    res[f'processes_start_{n}'] = time.perf_counter() - t\n"
         "    t = time.perf_counter()\n"
-        "    run_job(job, targets, chunk_size=25000, backend='processes', workers=n)\n"
+        "    run_job(job, targets, chunk_size=20000, backend='processes', workers=n)\n"
         "    res[f'processes_{n}'] = time.perf_counter() - t\n"
         "try:\n"
         "    from distributed import LocalCluster\n"
         "    for n in (1, 2):\n"
         "        with LocalCluster(n_workers=n, threads_per_worker=1, processes=True, "
         "dashboard_address=None) as cluster:\n"
-        "            run_job(job, targets[:2], chunk_size=1, backend='dask', "
+        "            run_job(job, targets[:64], chunk_size=1, backend='dask', "
         "cluster=cluster.scheduler_address)\n"
         "            t = time.perf_counter()\n"
-        "            run_job(job, targets, chunk_size=25000, backend='dask', "
+        "            run_job(job, targets, chunk_size=20000, backend='dask', "
         "cluster=cluster.scheduler_address)\n"
         "            res[f'dask_{n}'] = time.perf_counter() - t\n"
         "except ImportError:\n"
