@@ -65,3 +65,17 @@ def test_toml_snippet_round_trip():
     parsed = tomllib.loads(m.to_toml("au"))["variogram"]["au"]
     assert parsed["nugget"] == 0.5
     assert parsed["structures"][0]["ranges"] == [100.0, 50.0, 10.0]
+
+
+@pytest.mark.parametrize("kind", ["spherical", "exponential", "gaussian", "cubic"])
+def test_correlation_slope_equals_finite_differences(kind):
+    """Oracle: the analytic derivative of each correlation (used by the orientation
+    finder's Jacobian) equals a central difference, away from the range's kink."""
+    from blockmodel.variography.models import KINDS, correlation, correlation_slope
+
+    r = np.r_[np.linspace(0.01, 0.98, 60), np.linspace(1.02, 2.5, 20)]
+    step = 1e-6
+    numeric = (correlation(KINDS[kind], r + step) - correlation(KINDS[kind], r - step)) / (
+        2 * step
+    )
+    np.testing.assert_allclose(correlation_slope(KINDS[kind], r), numeric, atol=1e-8)

@@ -26,7 +26,7 @@ import numpy as np
 from scipy.optimize import least_squares
 
 from blockmodel.estimation.orientation import Orientation
-from blockmodel.variography.models import KINDS, correlation
+from blockmodel.variography.models import KINDS, correlation, correlation_slope
 
 __all__ = ["OrientationFit", "find_orientation", "hemisphere_directions"]
 
@@ -205,12 +205,30 @@ def find_orientation(
     upper = [np.inf, np.inf, np.log(a_hi), 1.0, 1.0]
     start = [0.2 * total, 0.8 * total, np.log(0.5 * longest), 0.7, 0.7]
 
+    def shape_jacobian(p, along):
+        """Analytic Jacobian (q, 5) of the weighted residuals at fixed angles."""
+        _, c1, log_a, q2, q3 = p
+        a1 = np.exp(log_a)
+        t = along / np.array([a1, a1 * q2, a1 * q2 * q3])
+        t2 = t * t
+        r = np.sqrt(t2.sum(axis=1))
+        safe = np.where(r > 0.0, r, 1.0)
+        slope = -c1 * correlation_slope(code, r)  # d model / d r
+        jac = np.empty((len(r), 5))
+        jac[:, 0] = 1.0
+        jac[:, 1] = 1.0 - correlation(code, r)
+        jac[:, 2] = -slope * r  # r scales as 1 / a
+        jac[:, 3] = -slope * (t2[:, 1] + t2[:, 2]) / (q2 * safe)
+        jac[:, 4] = -slope * t2[:, 2] / (q3 * safe)
+        return w[:, None] * jac
+
     def fit_shape(angles):
         # a short fit is enough to rank the starting orientations; the best are refined
         along = h @ Orientation(*angles).axes().T  # fixed angles: the lags turned once
         res = least_squares(
             lambda p: w * (model(p, along=along) - g),
             start,
+            jac=lambda p: shape_jacobian(p, along),
             bounds=(lower, upper),
             method="trf",
             max_nfev=20,

@@ -17,7 +17,7 @@ import numpy as np
 
 from blockmodel.estimation.orientation import Orientation
 
-__all__ = ["KINDS", "Structure", "VariogramModel"]
+__all__ = ["KINDS", "Structure", "VariogramModel", "correlation_slope"]
 
 #: Structure kinds and the integer code the compiled kernels use.
 KINDS = {"spherical": 0, "exponential": 1, "gaussian": 2, "cubic": 3}
@@ -50,6 +50,23 @@ def correlation(kind_code: int, r: np.ndarray) -> np.ndarray:
         r2 = r * r
         poly = r2 * (7.0 - r * (8.75 - r2 * (3.5 - 0.75 * r2)))
         return np.where(r < 1.0, 1.0 - poly, 0.0)
+    raise ValueError(f"unknown structure kind code {kind_code}")
+
+
+def correlation_slope(kind_code: int, r: np.ndarray) -> np.ndarray:
+    """Derivative of :func:`correlation` with respect to the reduced distance ``r`` (n,),
+    for analytic Jacobians in fitting."""
+    r = np.asarray(r, dtype=np.float64)
+    if kind_code == 0:
+        return np.where(r < 1.0, -1.5 + 1.5 * r * r, 0.0)
+    if kind_code == 1:
+        return -3.0 * np.exp(-3.0 * r)
+    if kind_code == 2:
+        return -6.0 * r * np.exp(-3.0 * r * r)
+    if kind_code == 3:
+        r2 = r * r
+        slope = r * (14.0 - r * (26.25 - r2 * (17.5 - 5.25 * r2)))
+        return np.where(r < 1.0, -slope, 0.0)
     raise ValueError(f"unknown structure kind code {kind_code}")
 
 
