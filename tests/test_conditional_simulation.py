@@ -342,3 +342,38 @@ def test_reproduction_of_the_declustered_mean(rng):
         assert row["difference"] == pytest.approx(np.mean(means) / mean - 1.0, rel=1e-12)
         assert row["flagged"] == (abs(np.mean(means) / mean - 1.0) > 0.05)
     assert table.loc["far.au", "flagged"] and not table.loc["near.au", "flagged"]
+
+
+def test_a_normal_score_model_given_in_the_project_file(tmp_path, capsys):
+    """``[simulation.models."ore.cu"]`` is used as given (quoted key or nested tables);
+    one whose nugget and sills do not add up to 1, or naming no domain and grade, stops
+    with exit status 2 naming the key."""
+    from blockmodel.config.project import load_project
+    from blockmodel.stages.run import run_stages, simulate_results
+    from tests.conftest import make_box_project
+
+    project_file = make_box_project(tmp_path)
+    base = project_file.read_text()
+    given = (
+        "nugget = 0.3\nstructures = [{ kind = 'exponential', sill = 0.7, "
+        "ranges = [60.0, 40.0, 20.0], orientation = [30.0, 0.0, 0.0] }]\n"
+    )
+    for header in ('[simulation.models."ore.cu"]', "[simulation.models.ore.cu]"):
+        project_file.write_text(base + f"\n{header}\n{given}")
+        project = load_project(project_file)
+        assert set(project.simulation.models) == {"ore.cu"}
+    results = run_stages(project)
+    sim = simulate_results(results, realisations=2, workers=1)
+    d = sim.by_key["ore.cu"]
+    assert d.model_source == "given in the project file"
+    assert d.model.nugget == 0.3
+    (st,) = d.model.structures
+    assert (st.kind, st.sill, st.ranges) == ("exponential", 0.7, (60.0, 40.0, 20.0))
+    assert st.orientation.azimuth == 30.0
+    for header, body, key in (
+        ('[simulation.models."ore.cu"]', given.replace("0.7", "0.5"), "simulation.models.ore.cu"),
+        ('[simulation.models."vein.cu"]', given, "simulation.models.vein.cu"),
+    ):
+        project_file.write_text(base + f"\n{header}\n{body}")
+        assert main(["check", str(project_file)]) == 2
+        assert key in capsys.readouterr().err

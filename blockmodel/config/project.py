@@ -193,13 +193,22 @@ def _check_values(p: Project, r: Reader) -> None:
                 f"report.statement_cutoffs.{name}",
                 f"unknown domain '{name}'; domains are {', '.join(names)}",
             )
-    for key in p.simulation.maximum:
-        domain, _, grade = key.partition(".")
-        if domain not in names or grade not in p.data.grades:
+    for setting_name in ("maximum", "models"):
+        for key in getattr(p.simulation, setting_name):
+            domain, _, grade = key.partition(".")
+            if domain not in names or grade not in p.data.grades:
+                r.fail(
+                    f"simulation.{setting_name}.{key}",
+                    f"'{key}' names no domain and grade; use DOMAIN.GRADE, e.g. "
+                    f"'{names[0]}.{next(iter(p.data.grades), 'au')}'",
+                )
+    for key, spec in p.simulation.models.items():
+        total = spec.nugget + sum(st.sill for st in spec.structures)
+        if not spec.structures or abs(total - 1.0) > 0.01:
             r.fail(
-                f"simulation.maximum.{key}",
-                f"'{key}' names no domain and grade; use DOMAIN.GRADE, e.g. "
-                f"'{names[0]}.{next(iter(p.data.grades), 'au')}'",
+                f"simulation.models.{key}",
+                "a normal-score model needs at least one structure, and its nugget and "
+                f"sills must add up to 1 (the normal scores' variance); they add up to {total:g}",
             )
     sweep = p.declustering.cell_sizes
     if not sweep.smallest < sweep.largest:
@@ -208,6 +217,21 @@ def _check_values(p: Project, r: Reader) -> None:
             "'declustering.cell_sizes' needs smallest < largest; "
             f"got smallest {sweep.smallest:g}, largest {sweep.largest:g}",
         )
+
+
+def _flat_models(models):
+    """Models nested as ``{domain: {grade: model}}`` keyed ``"domain.grade"``; anything
+    else is left for the reader to report."""
+    if not isinstance(models, dict):
+        return models
+    flat = {}
+    for dom, per_grade in models.items():
+        if isinstance(per_grade, dict) and "nugget" not in per_grade:
+            for g, spec in per_grade.items():
+                flat[f"{dom}.{g}"] = spec
+        else:
+            flat[dom] = per_grade
+    return flat
 
 
 def load_project(path: str | Path) -> Project:
@@ -243,17 +267,12 @@ def load_project(path: str | Path) -> Project:
             found = re.search(r"line (\d+)", str(exc))
             line = int(found.group(1)) if found else None
         raise InputError([Problem(str(path), line, None, None, f"not valid TOML: {exc}")]) from None
-    # [variogram] nests models as variogram.<domain>.<grade>; flatten to "domain.grade".
-    models = raw.get("variogram", {})
-    if isinstance(models, dict):
-        flat = {}
-        for dom, per_grade in models.items():
-            if isinstance(per_grade, dict) and "nugget" not in per_grade:
-                for g, spec in per_grade.items():
-                    flat[f"{dom}.{g}"] = spec
-            else:
-                flat[dom] = per_grade
-        raw = {**raw, "variogram": flat}
+    # [variogram] and [simulation.models] nest models as <domain>.<grade> (or one quoted
+    # "domain.grade" key); flatten to "domain.grade".
+    raw = {**raw, "variogram": _flat_models(raw.get("variogram", {}))}
+    if isinstance(raw.get("simulation"), dict) and "models" in raw["simulation"]:
+        sim = raw["simulation"]
+        raw["simulation"] = {**sim, "models": _flat_models(sim["models"])}
     project = r.build(Project, raw, "")
     project = dataclasses.replace(
         project,

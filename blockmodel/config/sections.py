@@ -305,10 +305,17 @@ class Simulation:
     neighbours: int = setting(24, doc="data per node in the conditioning kriging", low=1)
     model: str = setting(
         "fit",
-        doc="the normal scores' variogram (sill 1): fit: the grade model's structures and "
-        "ranges with the nugget and sills fitted to the normal scores' experimental "
-        "variograms along its axes; standardised: the grade model scaled to sill 1",
+        doc="the normal scores' variogram (sill 1) of a domain and grade not in "
+        "simulation.models: fit: the grade model's structures and ranges with the nugget "
+        "and sills fitted to the normal scores' experimental variograms along its axes; "
+        "standardised: the grade model scaled to sill 1",
         choices=("fit", "standardised"),
+    )
+    models: dict[str, ModelSpec] = setting(
+        doc="normal-score variogram models given by the user (nugget and sills adding up "
+        'to 1), e.g. [simulation.models."lode.au"]; they take precedence over model',
+        entry="DOMAIN.GRADE",
+        factory=dict,
     )
     minimum: float = setting(0.0, doc="lowest grade of the back-transform (lower tail)", low=0.0)
     maximum: dict[str, float] = setting(

@@ -296,7 +296,12 @@ def normal_score_model(
     and grade (with their declustering weights), and where it came from: with
     ``simulation.model = "fit"``, the grade model's structure kinds, ranges and
     orientation with the nugget and sills fitted to the normal scores' experimental
-    variograms along its axes; with ``"standardised"``, the grade model scaled to sill 1."""
+    variograms along its axes; with ``"standardised"``, the grade model scaled to sill 1.
+    A model given in ``[simulation.models]`` for this domain and grade takes precedence and
+    is used as given."""
+    given = project.simulation.models.get(f"{grade.domain}.{grade.grade}")
+    if given is not None:
+        return _model_from_spec(given), "given in the project file"
     m = grade.model
     if project.simulation.model == "standardised" or not m.structures:
         return scaled_model(m, 1.0 / m.total_sill), "grade model standardised to sill 1"
