@@ -144,9 +144,13 @@ def pair_sums(
                 top,
                 acc,
             )
-    total = partial[0].copy()  # a plain loop: a sum over an axis costs seconds to compile
-    for run in range(1, runs):
-        total += partial[run]
+    # plain loops: a sum over an axis, or an array expression, costs seconds to compile
+    total = np.zeros((9, m, nb))
+    for run in range(runs):
+        for a in range(9):
+            for r in range(m):
+                for k in range(nb):
+                    total[a, r, k] += partial[run, a, r, k]
     return total
 
 
