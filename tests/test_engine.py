@@ -100,3 +100,22 @@ def test_kernel_threads_give_identical_results(rng):
     assert np.isfinite(results[0]["estimate"]).sum() > 800
     for key in results[0]:
         np.testing.assert_array_equal(results[0][key], results[1][key], err_msg=key)
+
+
+def test_a_cluster_task_limits_only_its_own_thread():
+    """A cluster task runs its kernels on one thread without changing the setting of the
+    process it shares (an in-process cluster shares the caller's)."""
+    from concurrent.futures import ThreadPoolExecutor
+
+    from blockmodel.estimation import _threads
+
+    before = _threads.threads()
+    try:
+        _threads.set_threads(3)
+        with _threads.one_thread():
+            assert _threads.threads() == 1
+            with ThreadPoolExecutor(1) as other:
+                assert other.submit(_threads.threads).result() == 3
+        assert _threads.threads() == 3
+    finally:
+        _threads.set_threads(before)

@@ -8,21 +8,27 @@ arithmetic does not depend on the part it falls in, so results are bit-identical
 the number of threads.
 
 The number of threads is ``NUMBA_NUM_THREADS`` (all cores unless set), lowered with
-:func:`set_threads`: a worker of a process pool or a cluster uses one.
+:func:`set_threads` (a worker process of the local pool uses one) or, for the calling
+thread only, within :func:`one_thread` (a task on a cluster).
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable
+import threading
+from collections.abc import Callable, Iterator
 from concurrent.futures import ThreadPoolExecutor
+from contextlib import contextmanager
 
 _PARTS_PER_THREAD = 8  # parts per thread: uneven items even out over the parts
 _MIN_PART = 64  # items per part at the least: fewer are not worth a hand-over
 _state: dict = {"threads": None, "pool": None}
+_local = threading.local()  # a calling thread's own limit (one_thread)
 
 
 def threads() -> int:
-    """Threads the kernels use."""
+    """Threads the kernels use (in the calling thread)."""
+    if getattr(_local, "single", False):
+        return 1
     if _state["threads"] is None:
         import numba
 
@@ -38,6 +44,19 @@ def set_threads(n: int) -> None:
         _state["pool"].shutdown(wait=True)
         _state["pool"] = None
     _state["threads"] = int(n)
+
+
+@contextmanager
+def one_thread() -> Iterator[None]:
+    """Within the block, kernels called from this thread run in it alone (a task on a
+    cluster worker, which may share its process with other tasks or with the caller);
+    other threads and later calls keep their setting."""
+    before = getattr(_local, "single", False)
+    _local.single = True
+    try:
+        yield
+    finally:
+        _local.single = before
 
 
 def run_split(kernel: Callable, n: int, *args) -> None:

@@ -100,9 +100,12 @@ def close_pool() -> None:
 
 
 def _cluster_chunk(job: EstimationJob, targets: np.ndarray) -> dict[str, np.ndarray]:
-    # One kernel thread per task: each of a cluster worker's threads runs a task.
-    _init_worker()
-    return _chunk(job, targets)
+    # One kernel thread per task: each of a cluster worker's threads runs a task.  Only
+    # this task's thread is limited: an in-process cluster shares the caller's process.
+    from blockmodel.estimation._threads import one_thread
+
+    with one_thread():
+        return _chunk(job, targets)
 
 
 class Progress:
