@@ -112,6 +112,10 @@ def test_realisations_reproduce_histogram_and_variogram(rng):
         assert abs(got[lag - 1] - expected) < 0.08, (lag, got[lag - 1], expected)
 
 
+# gstools draws the spherical model's spectral density by MCMC (emcee); walkers that step
+# outside the density's support compare -inf with -inf, which numpy reports as a warning
+# on some platforms (seen on CI, not here). The move is rejected either way.
+@pytest.mark.filterwarnings("ignore:invalid value encountered:RuntimeWarning:emcee")
 def test_agrees_with_gstools_conditioned_fields(rng):
     """gstools' CondSRF (simple kriging, randomisation method) on the same spherical model
     and data: the two ensembles' means agree within 4.5 standard errors of their
