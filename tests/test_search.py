@@ -1,18 +1,20 @@
-"""The neighbour search with per-hole and octant limits equals a brute-force selection.
+"""The neighbour search, with and without per-hole and octant limits, equals a brute-force
+selection.
 
 Oracle (common practice for moving-neighbourhood rules): take every sample inside the
-ellipsoid, sort by anisotropic distance, accept each in turn unless its hole or its octant
-is already full, stop at ``max_samples``.
+ellipsoid, sort by anisotropic distance (ties by sample index), accept each in turn unless
+its hole or its octant is already full, stop at ``max_samples``.
 """
 
 from __future__ import annotations
 
 import numpy as np
 import pytest
-from scipy.spatial import cKDTree
 
+import blockmodel.estimation.search as search_module
+from blockmodel.estimation._cells import SampleCells
 from blockmodel.estimation.orientation import Orientation
-from blockmodel.estimation.search import SearchEllipsoid, find_neighbours
+from blockmodel.estimation.search import SampleIndex, SearchEllipsoid, find_neighbours
 
 
 def _drilling(rng, holes=40, per_hole=25):
@@ -31,7 +33,7 @@ def _brute_force(samples, hole_of, target, search):
     axes = search.orientation.axes()  # rows: major, semi, minor
     local = ((samples - target) @ axes.T) / np.asarray(search.ranges)
     dist = np.linalg.norm(local, axis=1)
-    order = np.argsort(dist, kind="stable")
+    order = np.lexsort((np.arange(len(dist)), dist))
     order = order[dist[order] <= 1.0]
     per_hole, per_octant, chosen = {}, {}, []
     for s in order:
@@ -64,8 +66,7 @@ def test_limited_search_equals_brute_force(rng, max_per_hole, max_per_octant, mi
         max_per_octant=max_per_octant,
         min_octants=min_octants,
     )
-    samples_t = search.to_unit_frame(samples)
-    nb = find_neighbours(cKDTree(samples_t), samples_t, targets, search, hole_of)
+    nb = find_neighbours(SampleIndex.build(search.to_unit_frame(samples)), targets, search, hole_of)
     for t, target in enumerate(targets):
         chosen, octants = _brute_force(samples, hole_of, target, search)
         got = nb.index[t, : nb.count[t]].tolist()
@@ -77,13 +78,81 @@ def test_leave_one_out_search_equals_brute_force(rng):
     samples, hole_of = _drilling(rng, holes=20)
     samples += rng.normal(0.0, 0.05, samples.shape)  # no two neighbours at equal distance
     search = SearchEllipsoid((60.0, 60.0, 30.0), min_samples=1, max_samples=8, max_per_hole=1)
-    samples_t = search.to_unit_frame(samples)
-    nb = find_neighbours(
-        cKDTree(samples_t), samples_t, samples[:50], search, hole_of, skip_coincident=True
-    )
+    index = SampleIndex.build(search.to_unit_frame(samples))
+    nb = find_neighbours(index, samples[:50], search, hole_of, skip_coincident=True)
     for t in range(50):
         keep = np.ones(len(samples), bool)
         keep[t] = False
         idx = np.flatnonzero(keep)
         chosen, _ = _brute_force(samples[keep], hole_of[keep], samples[t], search)
         assert nb.index[t, : nb.count[t]].tolist() == idx[chosen].tolist()
+
+
+def _check_nearest(samples, targets, search, *, skip_coincident=False):
+    index = SampleIndex.build(search.to_unit_frame(samples))
+    nb = find_neighbours(index, targets, search, None, skip_coincident=skip_coincident)
+    hole_of = np.arange(len(samples))
+    for t, target in enumerate(targets):
+        keep = np.ones(len(samples), bool)
+        if skip_coincident:
+            keep &= np.linalg.norm(samples - target, axis=1) > 1e-9
+        idx = np.flatnonzero(keep)
+        chosen, _ = _brute_force(samples[keep], hole_of[keep], target, search)
+        assert nb.index[t, : nb.count[t]].tolist() == idx[chosen].tolist(), t
+        assert np.all(nb.index[t, nb.count[t] :] == len(samples))
+        d = np.linalg.norm(
+            ((samples[idx[chosen]] - target) @ search.orientation.axes().T) / search.ranges, axis=1
+        )
+        np.testing.assert_allclose(nb.distance[t, : nb.count[t]], d, rtol=1e-12, atol=1e-12)
+        assert np.all(np.isinf(nb.distance[t, nb.count[t] :]))
+    return nb
+
+
+@pytest.mark.parametrize("cell", [0.02, 0.125, 0.6])
+def test_nearest_search_equals_brute_force(rng, cell, monkeypatch):
+    """Without limits, the k nearest inside the ellipsoid, whatever the size of the cells
+    whose targets share a candidate list (forced small and large), targets inside and
+    outside the data."""
+    monkeypatch.setattr(search_module, "NEAREST_CELL", cell)
+    samples, _ = _drilling(rng)
+    targets = rng.uniform([-60, -60, -80], [260, 260, 40], size=(400, 3))
+    search = SearchEllipsoid((70.0, 40.0, 20.0), Orientation(30, 10, 20), max_samples=12)
+    nb = _check_nearest(samples, targets, search)
+    assert np.any((nb.count > 0) & (nb.count < 12)) and nb.count.max() == 12  # edges, full
+
+
+def test_nearest_search_breaks_ties_by_sample_index(rng):
+    """Samples on a lattice and targets at lattice nodes: many equal distances, resolved by
+    sample index as in the oracle; leave-one-out drops the sample at the target.  The
+    ellipsoid is an unrotated sphere of 16 m so that the search frame is an exact scaling
+    and equal distances stay equal."""
+    g = np.arange(12) * 5.0
+    samples = np.stack(np.meshgrid(g, g, g[:6], indexing="ij"), axis=-1).reshape(-1, 3)
+    samples = samples[rng.permutation(len(samples))]
+    search = SearchEllipsoid((16.0, 16.0, 16.0), max_samples=10, min_samples=1)
+    _check_nearest(samples, samples[:200], search)
+    _check_nearest(samples, samples[:200], search, skip_coincident=True)
+
+
+def test_nearest_search_with_fewer_samples_than_wanted(rng):
+    samples = rng.uniform(0, 50, size=(5, 3))
+    search = SearchEllipsoid((80.0, 80.0, 80.0), max_samples=24, min_samples=1)
+    nb = _check_nearest(samples, rng.uniform(-20, 70, size=(50, 3)), search)
+    assert nb.index.shape == (50, 5)
+
+
+@pytest.mark.parametrize("edge", [0.05, 0.4, 3.0])
+def test_cells_gather_every_sample_within_reach(rng, edge):
+    """Cell gathering equals a brute-force ball query, for fine, medium and coarse cells and
+    for flat data (one coordinate constant), where the grid is capped and cells grow."""
+    points = rng.uniform(-1, 4, size=(3000, 3))
+    flat = points.copy()
+    flat[:, 2] = 0.5
+    for pts in (points, flat):
+        cells = SampleCells.build(pts, edge)
+        centres = rng.uniform(-2, 5, size=(200, 3))
+        radius = rng.uniform(0.0, 1.5, size=200)
+        offsets, found = cells.within(centres, radius)
+        for g in range(len(centres)):
+            inside = np.flatnonzero(np.linalg.norm(pts - centres[g], axis=1) <= radius[g])
+            assert sorted(found[offsets[g] : offsets[g + 1]].tolist()) == inside.tolist()

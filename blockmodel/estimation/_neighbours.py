@@ -131,32 +131,38 @@ def select_in_groups(
     samples_t,
     targets_t,
     hole_of,
-    max_samples,
     max_per_hole,
     max_per_octant,
     skip_coincident,
     out,
+    distance,
     counts,
     octants_filled,
 ):
     """Per target ``first .. last - 1``: the samples of its group's candidate list inside
     the unit sphere, by increasing distance (ties by sample index), then the per-hole and
-    per-octant limits.
+    per-octant limits, until ``k = out.shape[1]`` are chosen.
+
+    The samples inside are walked in that order without a full sort: they are placed in
+    buckets of equal volume of the sphere (by the cube of the distance, which keeps the
+    order), and a bucket is sorted (insertion) only when the walk reaches it.
 
     Parameters
     ----------
     group_of : (m,) int64, the group of each target
     offsets : (g + 1,) int64, group g's candidates are ``candidates[offsets[g]:offsets[g+1]]``
-        (every sample within reach of any target of the group, in increasing index)
+        (every sample within reach of any target of the group)
     samples_t, targets_t : (n, 3), (m, 3) float64, the search frame
     hole_of : (n,) int64, hole code of each sample
-    max_samples, max_per_hole, max_per_octant : int (<= 0 means no limit)
+    max_per_hole, max_per_octant : int (<= 0 means no limit)
     skip_coincident : bool, leave out a sample at the target itself
-    out : (m, max_samples) int64, chosen indices (written), padded with n
+    out : (m, k) int64, chosen indices (written), padded with n
+    distance : (m, k) float64, their distances (written), inf where padded
     counts : (m,) int64, how many were chosen (written)
     octants_filled : (m,) int64, octants holding a chosen sample (written)
     """
     n = hole_of.shape[0]
+    k_max = out.shape[1]
     for t in range(first, last):
         g = group_of[t]
         a, b = offsets[g], offsets[g + 1]
@@ -173,43 +179,49 @@ def select_in_groups(
                 dist[k] = d
                 near[k] = s
                 k += 1
-        order = _order_by_distance(dist, near, k)
-        holes_seen = np.full(max_samples, -1, dtype=np.int64)
-        holes_count = np.zeros(max_samples, dtype=np.int64)
+        order, starts = _buckets_by_volume(dist, k)
+        holes_seen = np.full(k_max, -1, dtype=np.int64)
+        holes_count = np.zeros(k_max, dtype=np.int64)
         n_seen = 0
         octant_count = np.zeros(8, dtype=np.int64)
         used = 0
-        for c in range(k):
-            s = near[order[c]]
-            h = hole_of[s]
-            pos = -1
-            if max_per_hole > 0:
-                for u in range(n_seen):
-                    if holes_seen[u] == h:
-                        pos = u
-                        break
-                if pos >= 0 and holes_count[pos] >= max_per_hole:
+        for bucket in range(len(starts) - 1):
+            lo, hi = starts[bucket], starts[bucket + 1]
+            _sort_bucket(order, lo, hi, dist, near)
+            for c in range(lo, hi):
+                s = near[order[c]]
+                h = hole_of[s]
+                pos = -1
+                if max_per_hole > 0:
+                    for u in range(n_seen):
+                        if holes_seen[u] == h:
+                            pos = u
+                            break
+                    if pos >= 0 and holes_count[pos] >= max_per_hole:
+                        continue
+                octant = 0
+                if samples_t[s, 0] - targets_t[t, 0] < 0.0:
+                    octant += 1
+                if samples_t[s, 1] - targets_t[t, 1] < 0.0:
+                    octant += 2
+                if samples_t[s, 2] - targets_t[t, 2] < 0.0:
+                    octant += 4
+                if max_per_octant > 0 and octant_count[octant] >= max_per_octant:
                     continue
-            octant = 0
-            if samples_t[s, 0] - targets_t[t, 0] < 0.0:
-                octant += 1
-            if samples_t[s, 1] - targets_t[t, 1] < 0.0:
-                octant += 2
-            if samples_t[s, 2] - targets_t[t, 2] < 0.0:
-                octant += 4
-            if max_per_octant > 0 and octant_count[octant] >= max_per_octant:
-                continue
-            octant_count[octant] += 1
-            if max_per_hole > 0:
-                if pos >= 0:
-                    holes_count[pos] += 1
-                else:
-                    holes_seen[n_seen] = h
-                    holes_count[n_seen] = 1
-                    n_seen += 1
-            out[t, used] = s
-            used += 1
-            if used == max_samples:
+                octant_count[octant] += 1
+                if max_per_hole > 0:
+                    if pos >= 0:
+                        holes_count[pos] += 1
+                    else:
+                        holes_seen[n_seen] = h
+                        holes_count[n_seen] = 1
+                        n_seen += 1
+                out[t, used] = s
+                distance[t, used] = dist[order[c]]
+                used += 1
+                if used == k_max:
+                    break
+            if used == k_max:
                 break
         counts[t] = used
         filled = 0
@@ -217,39 +229,106 @@ def select_in_groups(
             if octant_count[o] > 0:
                 filled += 1
         octants_filled[t] = filled
-        for c in range(used, max_samples):
+        for c in range(used, k_max):
             out[t, c] = n
+            distance[t, c] = np.inf
 
 
 @njit(cache=_CACHE, inline="always")
-def _order_by_distance(dist, near, k):
-    """Positions 0 .. k - 1 ordered by (dist, near): a bottom-up merge sort (a library
-    sort costs seconds of compile time on a first run)."""
-    order = np.arange(k)
-    spare = np.empty(k, dtype=np.int64)
-    width = 1
-    while width < k:
-        for lo in range(0, k, 2 * width):
-            mid = min(lo + width, k)
-            hi = min(lo + 2 * width, k)
-            a, b, o = lo, mid, lo
-            while a < mid and b < hi:
-                x, y = order[a], order[b]
-                if dist[y] < dist[x] or (dist[y] == dist[x] and near[y] < near[x]):
-                    spare[o] = y
-                    b += 1
-                else:
-                    spare[o] = x
-                    a += 1
-                o += 1
-            while a < mid:
-                spare[o] = order[a]
-                a += 1
-                o += 1
-            while b < hi:
-                spare[o] = order[b]
-                b += 1
-                o += 1
-        order, spare = spare, order
-        width *= 2
-    return order
+def _buckets_by_volume(dist, k):
+    """Positions 0 .. k - 1 of ``dist`` (all in [0, 1 + 1e-12]) placed in k buckets by
+    ``floor(k d^3)``, which never puts a larger distance in an earlier bucket; returns the
+    positions by bucket and the (k + 1,) bucket starts."""
+    starts = np.zeros(k + 1, dtype=np.int64)
+    bucket = np.empty(k, dtype=np.int64)
+    for i in range(k):
+        d = dist[i]
+        bucket[i] = min(int(d * d * d * k), k - 1)
+        starts[bucket[i] + 1] += 1
+    for j in range(k):
+        starts[j + 1] += starts[j]
+    fill = starts[:k].copy()
+    order = np.empty(k, dtype=np.int64)
+    for i in range(k):
+        order[fill[bucket[i]]] = i
+        fill[bucket[i]] += 1
+    return order, starts
+
+
+@njit(cache=_CACHE, inline="always")
+def _sort_bucket(order, lo, hi, dist, near):
+    """Insertion sort of ``order[lo:hi]`` by (dist, near)."""
+    for i in range(lo + 1, hi):
+        x = order[i]
+        j = i
+        while j > lo:
+            y = order[j - 1]
+            if dist[y] < dist[x] or (dist[y] == dist[x] and near[y] < near[x]):
+                break
+            order[j] = y
+            j -= 1
+        order[j] = x
+
+
+@njit(cache=_CACHE, nogil=True)
+def nearest_in_groups(
+    first,
+    last,
+    group_of,
+    offsets,
+    candidates,
+    samples_t,
+    targets_t,
+    skip_coincident,
+    out,
+    distance,
+    counts,
+):
+    """Per target ``first .. last - 1``: the ``k = out.shape[1]`` nearest samples of its
+    group's candidate list inside the unit sphere, by increasing distance (ties by sample
+    index), kept by insertion into a sorted list of k.
+
+    Parameters are as in :func:`select_in_groups`; ``distance`` (m, k) float64 receives the
+    distances (inf where padded), ``out`` is padded with n.
+    """
+    n = samples_t.shape[0]
+    k = out.shape[1]
+    longest = 0
+    for t in range(first, last):
+        longest = max(longest, offsets[group_of[t] + 1] - offsets[group_of[t]])
+    scratch = np.empty(longest)
+    for t in range(first, last):
+        a, b = offsets[group_of[t]], offsets[group_of[t] + 1]
+        tx, ty, tz = targets_t[t, 0], targets_t[t, 1], targets_t[t, 2]
+        for c in range(a, b):  # no branch: vectorised
+            s = candidates[c]
+            dx = samples_t[s, 0] - tx
+            dy = samples_t[s, 1] - ty
+            dz = samples_t[s, 2] - tz
+            scratch[c - a] = np.sqrt(dx * dx + dy * dy + dz * dz)
+        used = 0
+        worst = 1.0 + 1e-12
+        for c in range(a, b):
+            d = scratch[c - a]
+            if d > worst or (skip_coincident and d <= 1e-12):
+                continue
+            s = candidates[c]
+            if used == k and d == worst and s > out[t, k - 1]:
+                continue
+            i = used if used < k else k - 1
+            while i > 0 and (
+                distance[t, i - 1] > d or (distance[t, i - 1] == d and out[t, i - 1] > s)
+            ):
+                distance[t, i] = distance[t, i - 1]
+                out[t, i] = out[t, i - 1]
+                i -= 1
+            distance[t, i] = d
+            out[t, i] = s
+            if used < k:
+                used += 1
+            if used == k:
+                worst = distance[t, k - 1]
+        counts[t] = used
+        for c in range(used, k):
+            out[t, c] = n
+            distance[t, c] = np.inf

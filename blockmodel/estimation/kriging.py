@@ -22,11 +22,10 @@ from collections.abc import Sequence
 from typing import TYPE_CHECKING
 
 import numpy as np
-from scipy.spatial import cKDTree
 
 from blockmodel.estimation import _neighbours
 from blockmodel.estimation._threads import run_split
-from blockmodel.estimation.search import SearchEllipsoid, find_neighbours
+from blockmodel.estimation.search import SampleIndex, SearchEllipsoid, find_neighbours
 from blockmodel.estimation.systems import (
     DISCRETISATION,
     KrigingSystems,
@@ -178,14 +177,13 @@ def estimate(
     for number, s in enumerate(passes, start=1):
         if len(remaining) == 0:
             break
-        samples_t = s.to_unit_frame(local)
-        tree = cKDTree(samples_t)
+        index = SampleIndex.build(s.to_unit_frame(local))
         not_found = []
         for start in range(0, len(remaining), chunk_size):
             rows = remaining[start : start + chunk_size]
             clock = time.perf_counter()
             nb = find_neighbours(
-                tree, samples_t, local_targets[rows], s, hole_codes, skip_coincident=skip_coincident
+                index, local_targets[rows], s, hole_codes, skip_coincident=skip_coincident
             )
             clock = _lap(timings, "search", clock)
             not_found.append(rows[~nb.found])

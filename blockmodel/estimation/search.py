@@ -1,22 +1,29 @@
 """Search neighbourhoods: oriented ellipsoids with sample, per-hole and per-octant limits.
 
-Neighbours are found on a KD-tree built in the ellipsoid's isotropic frame, where the
-ellipsoid is the unit sphere.
+Neighbours are found in the ellipsoid's isotropic frame, where the ellipsoid is the unit
+sphere, from a grid of cells over the samples (compiled) and a KD-tree.
 """
 
 from __future__ import annotations
 
-import itertools
 from dataclasses import dataclass, field
 
 import numpy as np
 from scipy.spatial import cKDTree
 
 from blockmodel.estimation import _neighbours
+from blockmodel.estimation._cells import SampleCells
 from blockmodel.estimation._threads import run_split
 from blockmodel.estimation.orientation import Orientation
 
-__all__ = ["MAX_SAMPLES", "MIN_SAMPLES", "Neighbourhoods", "SearchEllipsoid", "find_neighbours"]
+__all__ = [
+    "MAX_SAMPLES",
+    "MIN_SAMPLES",
+    "Neighbourhoods",
+    "SampleIndex",
+    "SearchEllipsoid",
+    "find_neighbours",
+]
 
 
 MIN_SAMPLES = 4  # fewest samples to estimate, unless a search says otherwise
@@ -98,9 +105,34 @@ class SearchEllipsoid:
         return bool(self.max_per_hole or self.max_per_octant or self.min_octants)
 
 
-# edge of the cells (search frame, where the ellipsoid is the unit sphere) whose targets
-# share one candidate list under per-hole or octant limits
+# edges (search frame, where the ellipsoid is the unit sphere) of the cells whose targets
+# share one list of candidates, without and with per-hole or octant limits, and of the
+# cells the samples are binned into
+NEAREST_CELL = 0.125
 GROUP_CELL = 0.25
+SAMPLE_CELL = 0.25
+
+
+@dataclass(frozen=True)
+class SampleIndex:
+    """The samples of one search in its unit frame, with a KD-tree and a grid of cells.
+
+    Attributes
+    ----------
+    points : (n, 3) float64, ``search.to_unit_frame(samples)``
+    tree : cKDTree on ``points``
+    cells : SampleCells on ``points``
+    """
+
+    points: np.ndarray
+    tree: cKDTree
+    cells: SampleCells
+
+    @classmethod
+    def build(cls, points_t: np.ndarray) -> SampleIndex:
+        """Index ``points_t`` (n, 3), samples already in the search's unit frame."""
+        points_t = np.ascontiguousarray(points_t, dtype=np.float64)
+        return cls(points_t, cKDTree(points_t), SampleCells.build(points_t, SAMPLE_CELL))
 
 
 @dataclass
@@ -125,98 +157,111 @@ class Neighbourhoods:
 
 
 def find_neighbours(
-    tree: cKDTree,
-    samples_t: np.ndarray,
+    index: SampleIndex,
     targets: np.ndarray,
     search: SearchEllipsoid,
     hole_codes: np.ndarray | None,
     *,
     skip_coincident: bool = False,
 ) -> Neighbourhoods:
-    """Find each target's neighbourhood.
+    """Find each target's neighbourhood: the samples inside its ellipsoid by increasing
+    anisotropic distance (ties by sample index), under the search's limits.
+
+    Targets in one small cell of the search frame share one list of candidates, gathered
+    in compiled code; each target then picks from it.  Without per-hole or octant limits,
+    the list of a cell with centre c and half-diagonal r holds every sample within
+    ``d_k(c) + 2 r`` of c, ``d_k(c)`` being the distance of c's k-th nearest sample: a
+    target t of the cell has its k nearest within ``d_k(c) + r`` of itself (triangle
+    inequality), so within ``d_k(c) + 2 r`` of c.  With limits the list holds every sample
+    within reach of the cell (``1 + r``).  Either way the result equals a brute-force
+    search over all samples.
 
     Parameters
     ----------
-    tree : cKDTree
-        Built on ``samples_t``.
-    samples_t : (n, 3) float64
+    index : SampleIndex
         Samples in the search's unit frame (``search.to_unit_frame(local)``).
     targets : (m, 3) float64, local metres
     search : SearchEllipsoid
     hole_codes : (n,) int64 or None
         Integer code of each sample's hole; needed for ``max_per_hole``.
     skip_coincident : bool
-        Never use a sample at the target's own location (leave-one-out).
+        Never use a sample at the target's own location (leave-one-out; samples at one
+        location are expected merged beforehand).
 
     Returns
     -------
     Neighbourhoods
     """
+    samples_t = index.points
     n = len(samples_t)
-    targets_t = search.to_unit_frame(targets)
+    targets_t = np.ascontiguousarray(search.to_unit_frame(targets))
+    m = len(targets_t)
     kmax = min(int(search.max_samples), n)
-    if not search.has_limits:
-        dist, idx, _ = _query(tree, targets_t, kmax, n, skip_coincident)
-        count = np.sum(idx < n, axis=1)
-        return Neighbourhoods(idx, count, dist, count >= search.min_samples)
+    limited = search.has_limits
     if search.max_per_hole and hole_codes is None:
         raise ValueError("SearchEllipsoid.max_per_hole needs hole_ids")
+    edge = GROUP_CELL if limited else NEAREST_CELL
+    centres, group_of = _cells_of(targets_t, edge)
+    half = edge * np.sqrt(3.0) / 2.0
+    radius = np.full(len(centres), 1.0 + half)
+    if not limited:
+        k = min(kmax + (1 if skip_coincident else 0), n)
+        d_k = index.tree.query(centres, k=[k], distance_upper_bound=1.0 + half, workers=-1)[0]
+        radius = np.minimum(radius, d_k[:, 0] + 2.0 * half)
+    offsets, candidates = index.cells.within(centres, radius + 1e-9)
+    out = np.empty((m, kmax), dtype=np.int64)
+    dist = np.empty((m, kmax))
+    count = np.empty(m, dtype=np.int64)
+    if not limited:
+        run_split(
+            _neighbours.nearest_in_groups,
+            m,
+            group_of,
+            offsets,
+            candidates,
+            samples_t,
+            targets_t,
+            bool(skip_coincident),
+            out,
+            dist,
+            count,
+        )
+        return Neighbourhoods(out, count, dist, count >= search.min_samples)
     holes = np.zeros(n, dtype=np.int64) if hole_codes is None else hole_codes
-    out = np.empty((len(targets), kmax), dtype=np.int64)
-    count = np.empty(len(targets), dtype=np.int64)
-    octants = np.empty(len(targets), dtype=np.int64)
-    # Targets in one cell of the search frame share one list of candidates: every sample
-    # within reach of any point of the cell; each target then takes, in compiled code, the
-    # candidates inside its own ellipsoid in distance order and applies the limits.  The
-    # result equals applying the limits to all samples inside, in distance order.
-    key = np.floor(targets_t / GROUP_CELL).astype(np.int64)
-    cells, group_of = np.unique(key, axis=0, return_inverse=True)
-    reach = 1.0 + 1e-9 + GROUP_CELL * np.sqrt(3.0) / 2.0
-    lists = tree.query_ball_point((cells + 0.5) * GROUP_CELL, reach, return_sorted=True)
-    offsets = np.zeros(len(lists) + 1, dtype=np.int64)
-    offsets[1:] = np.cumsum([len(x) for x in lists])
-    candidates = np.fromiter(
-        itertools.chain.from_iterable(lists), dtype=np.int64, count=int(offsets[-1])
-    )
+    octants = np.empty(m, dtype=np.int64)
     run_split(
         _neighbours.select_in_groups,
-        len(targets_t),
-        group_of.ravel().astype(np.int64),
+        m,
+        group_of,
         offsets,
         candidates,
         samples_t,
-        np.ascontiguousarray(targets_t),
+        targets_t,
         holes,
-        kmax,
         int(search.max_per_hole or 0),
         int(search.max_per_octant or 0),
         bool(skip_coincident),
         out,
+        dist,
         count,
         octants,
     )
-    chosen = np.minimum(out, n - 1)
-    d = np.linalg.norm(samples_t[chosen] - targets_t[:, None, :], axis=2)
-    d[out >= n] = np.inf
     found = (count >= search.min_samples) & (octants >= search.min_octants)
-    return Neighbourhoods(out, count, d, found)
+    return Neighbourhoods(out, count, dist, found)
 
 
-def _query(
-    tree: cKDTree, targets_t: np.ndarray, q: int, n: int, skip_coincident: bool
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """The ``q`` nearest samples inside the unit sphere: (m, q) distances and indices by
-    increasing distance, padded with inf and ``n``, coincident samples dropped on request;
-    and (m,) whether the query came back full (more samples may lie inside)."""
-    extra = 1 if skip_coincident and q < n else 0
-    dist, idx = tree.query(targets_t, k=q + extra, distance_upper_bound=1.0 + 1e-12, workers=-1)
-    dist = np.asarray(dist).reshape(len(targets_t), q + extra)
-    idx = np.asarray(idx, dtype=np.int64).reshape(len(targets_t), q + extra)
-    full = idx[:, -1] < n
-    if skip_coincident:
-        drop = dist <= 1e-12
-        idx[drop], dist[drop] = n, np.inf
-        order = np.argsort(drop, axis=1, kind="stable")[:, :q]
-        idx = np.take_along_axis(idx, order, axis=1)
-        dist = np.take_along_axis(dist, order, axis=1)
-    return dist, idx, full
+def _cells_of(points: np.ndarray, edge: float) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct cells of edge ``edge`` holding ``points`` (m, 3): their centres (g, 3)
+    and each point's cell (m,) int64."""
+    if len(points) == 0:
+        return np.empty((0, 3)), np.empty(0, dtype=np.int64)
+    key = np.floor(points / edge).astype(np.int64)
+    low = key.min(axis=0)
+    key -= low
+    dims = key.max(axis=0) + 1
+    flat = (key[:, 2] * dims[1] + key[:, 1]) * dims[0] + key[:, 0]
+    cells, group_of = np.unique(flat, return_inverse=True)
+    ijk = np.column_stack(
+        [cells % dims[0], (cells // dims[0]) % dims[1], cells // (dims[0] * dims[1])]
+    )
+    return (ijk + low + 0.5) * edge, group_of.astype(np.int64)

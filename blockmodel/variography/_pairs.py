@@ -12,29 +12,12 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-__all__ = ["cell_offsets", "cell_table", "pair_sums"]
+__all__ = ["cell_offsets", "pair_sums"]
 
 # the sums kept per direction and lag (see experimental_variograms)
 SUMS = ("w", "d", "g", "h", "t", "hh", "tt", "ht", "n")
 # runs of cells summed apart, each into its own accumulator
 RUNS = 64
-
-
-def cell_table(points: np.ndarray, size: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Points sorted into cubic cells of edge ``size``.
-
-    Returns
-    -------
-    order : (n,) int64, point indices cell by cell
-    start : (c + 1,) int64, cell c's points are ``order[start[c]:start[c + 1]]``
-    shape : (3,) int64, cells along x, y, z (cell c = i + nx (j + ny k))
-    """
-    cell = np.floor((points - points.min(axis=0)) / size).astype(np.int64)
-    shape = cell.max(axis=0) + 1
-    flat = cell[:, 0] + shape[0] * (cell[:, 1] + shape[1] * cell[:, 2])
-    order = np.argsort(flat, kind="stable").astype(np.int64)
-    start = np.searchsorted(flat[order], np.arange(int(np.prod(shape)) + 1)).astype(np.int64)
-    return order, start, shape.astype(np.int64)
 
 
 def cell_offsets(

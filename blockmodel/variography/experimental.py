@@ -1,7 +1,7 @@
 """Experimental variograms in 3D: directional, omnidirectional and downhole.
 
-Pairs are found with KD-tree ball queries in chunks of samples, so memory is bounded by the
-pairs of one chunk, not of the whole data set.  Each unordered pair counts once; a
+Pairs are summed in compiled code over a grid of cells, cell by neighbouring cell, so no
+list of pairs is ever held.  Each unordered pair counts once; a
 direction accepts separations in both senses (h and -h).
 """
 
@@ -12,7 +12,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.stats import norm
 
-from blockmodel.variography._pairs import SUMS, cell_offsets, cell_table, pair_sums
+from blockmodel.estimation._cells import cell_table
+from blockmodel.variography._pairs import SUMS, cell_offsets, pair_sums
 
 __all__ = [
     "ExperimentalVariogram",
