@@ -8,6 +8,8 @@ its hole or its octant is already full, stop at ``max_samples``.
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 import pytest
 
@@ -88,8 +90,10 @@ def test_leave_one_out_search_equals_brute_force(rng):
         assert nb.index[t, : nb.count[t]].tolist() == idx[chosen].tolist()
 
 
-def _check_nearest(samples, targets, search, *, skip_coincident=False):
-    index = SampleIndex.build(search.to_unit_frame(samples))
+def _check_nearest(samples, targets, search, *, skip_coincident=False, reach=None):
+    index = SampleIndex.build(search.to_unit_frame(samples), search.max_samples)
+    if reach is not None:  # force the cells' size, whatever the data's density
+        index = dataclasses.replace(index, reach=reach)
     nb = find_neighbours(index, targets, search, None, skip_coincident=skip_coincident)
     hole_of = np.arange(len(samples))
     for t, target in enumerate(targets):
@@ -117,7 +121,7 @@ def test_nearest_search_equals_brute_force(rng, cell, monkeypatch):
     samples, _ = _drilling(rng)
     targets = rng.uniform([-60, -60, -80], [260, 260, 40], size=(400, 3))
     search = SearchEllipsoid((70.0, 40.0, 20.0), Orientation(30, 10, 20), max_samples=12)
-    nb = _check_nearest(samples, targets, search)
+    nb = _check_nearest(samples, targets, search, reach=10.0)
     assert np.any((nb.count > 0) & (nb.count < 12)) and nb.count.max() == 12  # edges, full
 
 
@@ -139,6 +143,16 @@ def test_nearest_search_with_fewer_samples_than_wanted(rng):
     search = SearchEllipsoid((80.0, 80.0, 80.0), max_samples=24, min_samples=1)
     nb = _check_nearest(samples, rng.uniform(-20, 70, size=(50, 3)), search)
     assert nb.index.shape == (50, 5)
+
+
+def test_search_far_wider_than_the_data(rng):
+    """A search a thousand times wider than the data: cells shrink to the data's spacing
+    (not one shared list for all targets) and the result is still the brute-force one."""
+    samples = rng.uniform(0, 300, size=(500, 3))
+    search = SearchEllipsoid((3e5, 3e5, 3e5), max_samples=24, min_samples=1)
+    index = SampleIndex.build(search.to_unit_frame(samples), 24)
+    assert index.reach < 1e-3
+    _check_nearest(samples, rng.uniform(20, 280, size=(200, 3)), search)
 
 
 @pytest.mark.parametrize("edge", [0.05, 0.4, 3.0])

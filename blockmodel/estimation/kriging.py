@@ -177,7 +177,7 @@ def estimate(
     for number, s in enumerate(passes, start=1):
         if len(remaining) == 0:
             break
-        index = SampleIndex.build(s.to_unit_frame(local))
+        index = SampleIndex.build(s.to_unit_frame(local), s.max_samples)
         not_found = []
         for start in range(0, len(remaining), chunk_size):
             rows = remaining[start : start + chunk_size]

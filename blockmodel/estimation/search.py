@@ -107,7 +107,9 @@ class SearchEllipsoid:
 
 # edges (search frame, where the ellipsoid is the unit sphere) of the cells whose targets
 # share one list of candidates, without and with per-hole or octant limits, and of the
-# cells the samples are binned into
+# cells the samples are binned into; without limits, and for the samples' cells, at most
+# a half and a whole of the distance that holds the k samples wanted at the data's mean
+# density (a search far wider than the data must not share one list among all targets)
 NEAREST_CELL = 0.125
 GROUP_CELL = 0.25
 SAMPLE_CELL = 0.25
@@ -122,17 +124,27 @@ class SampleIndex:
     points : (n, 3) float64, ``search.to_unit_frame(samples)``
     tree : cKDTree on ``points``
     cells : SampleCells on ``points``
+    reach : float
+        Radius of a ball holding the most samples wanted at the samples' mean density over
+        their bounding box (each side at least 1 % of the longest).
     """
 
     points: np.ndarray
     tree: cKDTree
     cells: SampleCells
+    reach: float
 
     @classmethod
-    def build(cls, points_t: np.ndarray) -> SampleIndex:
-        """Index ``points_t`` (n, 3), samples already in the search's unit frame."""
+    def build(cls, points_t: np.ndarray, max_samples: int = MAX_SAMPLES) -> SampleIndex:
+        """Index ``points_t`` (n, 3), samples already in the search's unit frame, for
+        searches of up to ``max_samples``."""
         points_t = np.ascontiguousarray(points_t, dtype=np.float64)
-        return cls(points_t, cKDTree(points_t), SampleCells.build(points_t, SAMPLE_CELL))
+        span = np.ptp(points_t, axis=0)
+        volume = float(np.prod(np.maximum(span, 0.01 * span.max()))) if span.max() > 0 else 0.0
+        reach = (3.0 * max_samples * volume / (4.0 * np.pi * len(points_t))) ** (1.0 / 3.0)
+        reach = max(reach, 1e-9)
+        cells = SampleCells.build(points_t, min(SAMPLE_CELL, reach))
+        return cls(points_t, cKDTree(points_t), cells, reach)
 
 
 @dataclass
@@ -200,7 +212,7 @@ def find_neighbours(
     limited = search.has_limits
     if search.max_per_hole and hole_codes is None:
         raise ValueError("SearchEllipsoid.max_per_hole needs hole_ids")
-    edge = GROUP_CELL if limited else NEAREST_CELL
+    edge = GROUP_CELL if limited else min(NEAREST_CELL, index.reach / 2.0)
     centres, group_of = _cells_of(targets_t, edge)
     half = edge * np.sqrt(3.0) / 2.0
     radius = np.full(len(centres), 1.0 + half)
