@@ -9,13 +9,15 @@ from __future__ import annotations
 
 import os
 import sys
+import threading
 import time
+import uuid
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
-from blockmodel.estimation.kriging import estimate
+from blockmodel.estimation.kriging import PreparedSamples, estimate_prepared, prepare
 from blockmodel.estimation.search import SearchEllipsoid
 from blockmodel.estimation.systems import DISCRETISATION
 from blockmodel.variography.models import VariogramModel
@@ -25,7 +27,11 @@ __all__ = ["EstimationJob", "Progress", "run_job"]
 
 @dataclass(frozen=True)
 class EstimationJob:
-    """Everything a worker needs to estimate any chunk of targets (picklable)."""
+    """Everything a worker needs to estimate any chunk of targets (picklable).
+
+    ``token`` names the job: a process prepares the job's samples (:func:`prepare`) once and
+    reuses them for every chunk of the same token, whichever backend sends the chunks.
+    """
 
     samples: np.ndarray
     values: np.ndarray
@@ -37,25 +43,41 @@ class EstimationJob:
     block_size: tuple[float, float, float] | None = None
     discretisation: tuple[int, int, int] = DISCRETISATION
     power: float = 2.0
+    token: str = field(
+        default_factory=lambda: uuid.uuid4().hex, init=False, compare=False, repr=False
+    )
+
+
+# the samples of the last job this process saw, prepared (one job at a time: memory stays
+# that of one sample set)
+_PREPARED: dict = {"token": None, "samples": None}
+_PREPARED_LOCK = threading.Lock()
+
+
+def _prepared(job: EstimationJob) -> PreparedSamples:
+    with _PREPARED_LOCK:
+        if _PREPARED["token"] != job.token:
+            _PREPARED["samples"] = prepare(
+                job.samples,
+                job.values,
+                job.model,
+                job.passes,
+                method=job.method,
+                mean=job.mean,
+                block_size=job.block_size,
+                discretisation=job.discretisation,
+                hole_ids=job.hole_ids,
+                power=job.power,
+            )
+            _PREPARED["token"] = job.token
+        return _PREPARED["samples"]
 
 
 def _chunk(
     job: EstimationJob, targets: np.ndarray, timings: dict | None = None
 ) -> dict[str, np.ndarray]:
-    out = estimate(
-        job.samples,
-        job.values,
-        targets,
-        job.model,
-        job.passes,
-        method=job.method,
-        mean=job.mean,
-        block_size=job.block_size,
-        discretisation=job.discretisation,
-        hole_ids=job.hole_ids,
-        power=job.power,
-        chunk_size=max(len(targets), 1),
-        timings=timings,
+    out = estimate_prepared(
+        _prepared(job), targets, chunk_size=max(len(targets), 1), timings=timings
     )
     out.pop("merged_duplicates")
     return out

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import time
 from collections.abc import Sequence
+from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -35,7 +36,7 @@ from blockmodel.variography.models import VariogramModel
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
-__all__ = ["METHODS", "estimate", "krige"]
+__all__ = ["METHODS", "PreparedSamples", "estimate", "estimate_prepared", "krige", "prepare"]
 
 METHODS = ("ordinary", "simple", "inverse_distance", "nearest")
 
@@ -95,6 +96,80 @@ def _merge_duplicates(
     return points[keep], merged_values, holes[keep], int(len(points) - len(keep))
 
 
+@dataclass(frozen=True)
+class PreparedSamples:
+    """Samples made ready for estimating any targets with one model and set of passes:
+    local coordinates, merged duplicates, hole codes, the kriging systems' reduced frames
+    and one search index per pass.  Built by :func:`prepare`; reused chunk after chunk."""
+
+    origin: np.ndarray
+    local: np.ndarray
+    values: np.ndarray
+    hole_codes: np.ndarray
+    merged: int
+    passes: tuple[SearchEllipsoid, ...]
+    indexes: tuple[SampleIndex, ...]
+    system: KrigingSystems | None
+    method: str
+    power: float
+
+
+def prepare(
+    samples: np.ndarray,
+    values: np.ndarray,
+    model: VariogramModel | None,
+    search: SearchEllipsoid | Sequence[SearchEllipsoid],
+    *,
+    method: str = "ordinary",
+    mean: float | None = None,
+    block_size: Sequence[float] | None = None,
+    discretisation: Sequence[int] = DISCRETISATION,
+    hole_ids: np.ndarray | None = None,
+    power: float = 2.0,
+) -> PreparedSamples:
+    """Check the inputs and prepare the samples; parameters as in :func:`krige`."""
+    if method not in METHODS:
+        raise ValueError(f"method must be one of {', '.join(METHODS)}; got {method!r}")
+    samples = _as_points("samples", samples)
+    values = np.asarray(values, dtype=np.float64).ravel()
+    if len(values) != len(samples):
+        raise ValueError(f"values has {len(values)} entries for {len(samples)} samples")
+    if method in ("ordinary", "simple") and not isinstance(model, VariogramModel):
+        raise ValueError(f"method {method!r} needs a VariogramModel")
+    if method == "simple" and (mean is None or not np.isfinite(mean)):
+        raise ValueError("simple kriging needs the known mean: pass mean=...")
+    passes = (search,) if isinstance(search, SearchEllipsoid) else tuple(search)
+    if not passes or not all(isinstance(s, SearchEllipsoid) for s in passes):
+        raise ValueError("search must be a SearchEllipsoid or a non-empty list of them")
+    if hole_ids is None:
+        hole_codes = np.arange(len(samples), dtype=np.int64)
+    else:
+        hole_ids = np.asarray(hole_ids).ravel()
+        if len(hole_ids) != len(samples):
+            raise ValueError(f"hole_ids has {len(hole_ids)} entries for {len(samples)} samples")
+        hole_codes = np.unique(hole_ids, return_inverse=True)[1].ravel().astype(np.int64)
+
+    keep = np.isfinite(values)
+    samples, values, hole_codes = samples[keep], values[keep], hole_codes[keep]
+    # Subtract a local origin so projected coordinates (x ~ 5e5, y ~ 7e6) lose no precision.
+    origin = np.floor(samples.min(axis=0)) if len(samples) else np.zeros(3)
+    local, values, hole_codes, merged = _merge_duplicates(samples - origin, values, hole_codes)
+    kriging = method in ("ordinary", "simple") and len(local) > 0
+    system = (
+        KrigingSystems(model, local, block_size, discretisation, method == "simple", mean)
+        if kriging
+        else None
+    )
+    indexes = (
+        tuple(SampleIndex.build(s.to_unit_frame(local), s.max_samples) for s in passes)
+        if len(local)
+        else ()
+    )
+    return PreparedSamples(
+        origin, local, values, hole_codes, merged, passes, indexes, system, method, power
+    )
+
+
 def estimate(
     samples: np.ndarray,
     values: np.ndarray,
@@ -124,60 +199,64 @@ def estimate(
     dict of str to (m,) arrays
         Keys :data:`COLUMNS`; also ``merged_duplicates`` (0-d int array).
     """
-    if method not in METHODS:
-        raise ValueError(f"method must be one of {', '.join(METHODS)}; got {method!r}")
-    samples = _as_points("samples", samples)
+    prepared = prepare(
+        samples,
+        values,
+        model,
+        search,
+        method=method,
+        mean=mean,
+        block_size=block_size,
+        discretisation=discretisation,
+        hole_ids=hole_ids,
+        power=power,
+    )
+    return estimate_prepared(
+        prepared,
+        targets,
+        chunk_size=chunk_size,
+        skip_coincident=skip_coincident,
+        timings=timings,
+    )
+
+
+def estimate_prepared(
+    prepared: PreparedSamples,
+    targets: np.ndarray,
+    *,
+    chunk_size: int = 20_000,
+    skip_coincident: bool = False,
+    timings: dict[str, float] | None = None,
+) -> dict[str, np.ndarray]:
+    """:func:`estimate` with samples already prepared by :func:`prepare`.
+
+    Parameters
+    ----------
+    prepared : PreparedSamples
+    targets : (m, 3) float64, metres
+    chunk_size, skip_coincident, timings : as in :func:`estimate`
+    """
     targets = _as_points("targets", targets)
-    values = np.asarray(values, dtype=np.float64).ravel()
-    if len(values) != len(samples):
-        raise ValueError(f"values has {len(values)} entries for {len(samples)} samples")
-    if method in ("ordinary", "simple") and not isinstance(model, VariogramModel):
-        raise ValueError(f"method {method!r} needs a VariogramModel")
-    if method == "simple" and (mean is None or not np.isfinite(mean)):
-        raise ValueError("simple kriging needs the known mean: pass mean=...")
     if chunk_size < 1:
         raise ValueError(f"chunk_size must be >= 1, got {chunk_size}")
-    passes = [search] if isinstance(search, SearchEllipsoid) else list(search)
-    if not passes or not all(isinstance(s, SearchEllipsoid) for s in passes):
-        raise ValueError("search must be a SearchEllipsoid or a non-empty list of them")
-    if hole_ids is None:
-        hole_codes = np.arange(len(samples), dtype=np.int64)
-    else:
-        hole_ids = np.asarray(hole_ids).ravel()
-        if len(hole_ids) != len(samples):
-            raise ValueError(f"hole_ids has {len(hole_ids)} entries for {len(samples)} samples")
-        hole_codes = np.unique(hole_ids, return_inverse=True)[1].ravel().astype(np.int64)
-
-    keep = np.isfinite(values)
-    samples, values, hole_codes = samples[keep], values[keep], hole_codes[keep]
+    local, values, hole_codes = prepared.local, prepared.values, prepared.hole_codes
+    method, system = prepared.method, prepared.system
     m = len(targets)
     out = {c: np.full(m, np.nan) for c in COLUMNS}
     for c in ("n_samples", "n_holes", "search_pass"):
         out[c] = np.zeros(m, dtype=np.int64)
     out["ill_conditioned"] = np.zeros(m, dtype=bool)
-    if len(samples) == 0 or m == 0:
-        out["merged_duplicates"] = np.array(0)
+    out["merged_duplicates"] = np.array(prepared.merged)
+    if len(local) == 0 or m == 0:
         return out
-
-    # Subtract a local origin so projected coordinates (x ~ 5e5, y ~ 7e6) lose no precision.
-    origin = np.floor(samples.min(axis=0))
-    local = samples - origin
-    local_targets = targets - origin
-    local, values, hole_codes, merged = _merge_duplicates(local, values, hole_codes)
-    out["merged_duplicates"] = np.array(merged)
-
-    kriging = method in ("ordinary", "simple")
-    system = (
-        KrigingSystems(model, local, block_size, discretisation, method == "simple", mean)
-        if kriging
-        else None
-    )
+    local_targets = targets - prepared.origin
 
     remaining = np.arange(m)
-    for number, s in enumerate(passes, start=1):
+    for number, (s, index) in enumerate(
+        zip(prepared.passes, prepared.indexes, strict=True), start=1
+    ):
         if len(remaining) == 0:
             break
-        index = SampleIndex.build(s.to_unit_frame(local), s.max_samples)
         not_found = []
         for start in range(0, len(remaining), chunk_size):
             rows = remaining[start : start + chunk_size]
@@ -208,7 +287,7 @@ def estimate(
                 np.ascontiguousarray(local_targets[tgt]),
                 values,
                 hole_codes,
-                float(power),
+                float(prepared.power),
                 holes_found,
                 summary["mean_distance"],
                 summary["nearest"],
@@ -217,7 +296,7 @@ def estimate(
             out["n_holes"][tgt] = holes_found
             for c, v in summary.items():
                 out[c][tgt] = v
-            if not kriging:
+            if system is None:
                 out["estimate"][tgt] = out[method][tgt]
                 continue
             res = system.solve(values, np.ascontiguousarray(local_targets[tgt]), idx, cnt)
