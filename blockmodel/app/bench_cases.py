@@ -237,13 +237,13 @@ def backends_ratio(n_blocks: int = 400_000) -> dict:
     with one kernel thread per worker).  Each pool or cluster first runs 64 one-block
     tasks, so that every worker has started and loaded the compiled kernels, as after a
     run's first domain; the times are those of the following domains
-    and passes, in chunks of the default 20,000 blocks; ``processes_start_<n>`` is that
-    first job (start-up included)."""
+    and passes, in chunks of the default 20,000 blocks, over one connection to the cluster
+    as in a run; ``processes_start_<n>`` is that first job (start-up included)."""
     env = dict(os.environ, NUMBA_NUM_THREADS="1")
     code = (
         "import time\nfrom blockmodel.app.bench_cases import MODEL, SEARCH, BLOCK, DISC, "
         "synthetic_composites, _targets\n"
-        "from blockmodel.estimation.engine import EstimationJob, run_job\n"
+        "from blockmodel.estimation.engine import EstimationJob, cluster_session, run_job\n"
         "pts, vals, holes = synthetic_composites(15000)\n"
         f"targets = _targets({n_blocks}, pts)\n"
         "job = EstimationJob(pts, vals, holes, MODEL, (SEARCH,), block_size=BLOCK, "
@@ -261,12 +261,13 @@ def backends_ratio(n_blocks: int = 400_000) -> dict:
         "    for n in (1, 2):\n"
         "        with LocalCluster(n_workers=n, threads_per_worker=1, processes=True, "
         "dashboard_address=None) as cluster:\n"
-        "            run_job(job, targets[:64], chunk_size=1, backend='dask', "
+        "            with cluster_session(cluster.scheduler_address):\n"
+        "                run_job(job, targets[:64], chunk_size=1, backend='dask', "
         "cluster=cluster.scheduler_address)\n"
-        "            t = time.perf_counter()\n"
-        "            run_job(job, targets, chunk_size=20000, backend='dask', "
+        "                t = time.perf_counter()\n"
+        "                run_job(job, targets, chunk_size=20000, backend='dask', "
         "cluster=cluster.scheduler_address)\n"
-        "            res[f'dask_{n}'] = time.perf_counter() - t\n"
+        "                res[f'dask_{n}'] = time.perf_counter() - t\n"
         "except ImportError:\n"
         "    pass\n"
         "import json\nprint(json.dumps(res))\n"

@@ -9,7 +9,7 @@ import pandas as pd
 from blockmodel.assess.classification import classify_blocks
 from blockmodel.config.project import Project
 from blockmodel.errors import setting_error
-from blockmodel.estimation.engine import EstimationJob, passes_from, run_job
+from blockmodel.estimation.engine import EstimationJob, cluster_session, passes_from, run_job
 from blockmodel.estimation.orientation import Orientation
 from blockmodel.model.grid import BlockGrid
 from blockmodel.variography.models import VariogramModel
@@ -163,56 +163,60 @@ def estimate_block_model(
     chunk_size = chunk_size or e.chunk_size
     cluster = cluster if cluster is not None else e.cluster
     require_search(project)
-    frames = []
-    for d_index, d in enumerate(project.domains):
-        if not d.estimate:
-            continue
-        flat = np.flatnonzero(proportions[:, d_index] > 0)
-        if len(flat) == 0:
-            continue
-        ijk = grid.ijk(flat)
-        centres = grid.centres(flat)
-        prop = proportions[flat, d_index].astype(np.float64)
-        frame = pd.DataFrame(
-            {
-                "x": centres[:, 0],
-                "y": centres[:, 1],
-                "z": centres[:, 2],
-                "i": ijk[:, 0],
-                "j": ijk[:, 1],
-                "k": ijk[:, 2],
-                "domain": d.name,
-                "proportion": prop,
-                "density": d.density,
-                "tonnes": grid.block_volume * prop * d.density,
-            }
-        )
-        frame["_flat"] = flat
-        if d.density_from_composites:
-            model = models[f"{d.name}.{project.grades[0]}"]
-            orientation = model.structures[0].orientation if model.structures else Orientation()
-            frame["density"] = _estimated_density(project, table, d, centres, grid, e, orientation)
-            frame["tonnes"] = grid.block_volume * prop * frame["density"].to_numpy()
-        engine = {"chunk_size": chunk_size, "backend": backend, "workers": workers}
-        for g in project.grades:
-            mean = None
-            if e.method == "simple":
-                mean = (declustered_means or {}).get(d.name, {}).get(g, float("nan"))
-            res = _estimate_grade(
-                project,
-                d.name,
-                g,
-                table,
-                models[f"{d.name}.{g}"],
-                grid,
-                centres,
-                mean,
-                cluster=cluster,
-                **engine,
+    # one connection to the cluster, if any, for every domain and grade
+    with cluster_session(cluster if backend == "dask" else ""):
+        frames = []
+        for d_index, d in enumerate(project.domains):
+            if not d.estimate:
+                continue
+            flat = np.flatnonzero(proportions[:, d_index] > 0)
+            if len(flat) == 0:
+                continue
+            ijk = grid.ijk(flat)
+            centres = grid.centres(flat)
+            prop = proportions[flat, d_index].astype(np.float64)
+            frame = pd.DataFrame(
+                {
+                    "x": centres[:, 0],
+                    "y": centres[:, 1],
+                    "z": centres[:, 2],
+                    "i": ijk[:, 0],
+                    "j": ijk[:, 1],
+                    "k": ijk[:, 2],
+                    "domain": d.name,
+                    "proportion": prop,
+                    "density": d.density,
+                    "tonnes": grid.block_volume * prop * d.density,
+                }
             )
-            for column, key in OUTPUTS.items():
-                frame[column.format(g=g)] = res[key]
-        frames.append(frame)
+            frame["_flat"] = flat
+            if d.density_from_composites:
+                model = models[f"{d.name}.{project.grades[0]}"]
+                orientation = model.structures[0].orientation if model.structures else Orientation()
+                frame["density"] = _estimated_density(
+                    project, table, d, centres, grid, e, orientation
+                )
+                frame["tonnes"] = grid.block_volume * prop * frame["density"].to_numpy()
+            engine = {"chunk_size": chunk_size, "backend": backend, "workers": workers}
+            for g in project.grades:
+                mean = None
+                if e.method == "simple":
+                    mean = (declustered_means or {}).get(d.name, {}).get(g, float("nan"))
+                res = _estimate_grade(
+                    project,
+                    d.name,
+                    g,
+                    table,
+                    models[f"{d.name}.{g}"],
+                    grid,
+                    centres,
+                    mean,
+                    cluster=cluster,
+                    **engine,
+                )
+                for column, key in OUTPUTS.items():
+                    frame[column.format(g=g)] = res[key]
+            frames.append(frame)
     model_table = pd.concat(frames, ignore_index=True)
     order = {d.name: n for n, d in enumerate(project.domains)}
     model_table["_order"] = model_table["domain"].map(order)
