@@ -112,7 +112,7 @@ def _check_nearest(samples, targets, search, *, skip_coincident=False, reach=Non
     return nb
 
 
-@pytest.mark.parametrize("cell", [0.02, 0.125, 0.6])
+@pytest.mark.parametrize("cell", [0.002, 0.035, 0.2])
 def test_nearest_search_equals_brute_force(rng, cell, monkeypatch):
     """Without limits, the k nearest inside the ellipsoid, whatever the size of the cells
     whose targets share a candidate list (forced small and large), targets inside and
