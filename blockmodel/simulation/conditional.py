@@ -170,21 +170,23 @@ def plan_simulation(
     disc = np.asarray(discretisation, dtype=np.int64)
     data = np.asarray(data, dtype=np.float64)
     spacing = size / disc
-    data_block = np.floor((data - origin) / size).astype(np.int64)
-    low = np.minimum(blocks.min(axis=0), data_block.min(axis=0))
-    high = np.maximum(blocks.max(axis=0), data_block.max(axis=0))
-    shape = tuple(int(v) for v in (high - low + 1) * disc)
-    nodes = NodeGrid(origin + low * size + spacing / 2, spacing, shape)
+    # the node lattice (node 0 centred half a spacing inside the grid's corner) over the
+    # blocks and the data, bounded node by node: the field at a node does not depend on
+    # how nodes are grouped into blocks
+    data_node = np.floor((data - origin) / spacing).astype(np.int64)
+    low = np.minimum(blocks.min(axis=0) * disc, data_node.min(axis=0))
+    high = np.maximum((blocks.max(axis=0) + 1) * disc - 1, data_node.max(axis=0))
+    shape = tuple(int(v) for v in high - low + 1)
+    nodes = NodeGrid(origin + low * spacing + spacing / 2, spacing, shape)
     # the data moved to the node they fall in; the nearest to each node's centre kept
-    abc = np.floor((data - nodes.origin + spacing / 2) / spacing).astype(np.int64)
-    flat = np.ravel_multi_index(abc.T, shape)
+    flat = np.ravel_multi_index((data_node - low).T, shape)
     offset = np.linalg.norm((data - nodes.centres(flat)) / spacing, axis=1)
     order = np.lexsort((offset, flat))
     first = np.r_[True, flat[order][1:] != flat[order][:-1]]
     keep = np.sort(order[first])
     # every node of every block, block by block
     local = np.stack(np.meshgrid(*[np.arange(d) for d in disc], indexing="ij"), -1).reshape(-1, 3)
-    node_abc = ((blocks - low) * disc)[:, None, :] + local[None, :, :]
+    node_abc = (blocks * disc - low)[:, None, :] + local[None, :, :]
     targets = np.ravel_multi_index(node_abc.reshape(-1, 3).T, shape)
     target_block = np.repeat(np.arange(len(blocks)), len(local))
     empty = 0
