@@ -209,7 +209,7 @@ def test_a_run_can_include_the_simulation(tmp_path):
     assert "Uncertainty: conditional simulation" in (out / "report.html").read_text()
 
 
-def _truth_in_the_bands(blocks, truth, sim, grade, cutoffs):
+def _truth_in_the_bands(truth, sim, grade, cutoffs):
     """Per simulated domain: the share of the (tonnes, metal) x report cut-off points with
     true tonnes whose truth lies inside the realisations' P10-P90 band, and whether the true
     metal above the middle report cut-off lies inside the P5-P95 band."""
@@ -218,7 +218,7 @@ def _truth_in_the_bands(blocks, truth, sim, grade, cutoffs):
     middle = len(cutoffs) // 2
     out = {}
     for key, s in sim.by_key.items():
-        b = blocks.iloc[s.rows].merge(
+        b = sim.units.table.iloc[s.rows].merge(
             truth, on=["x", "y", "z", "domain"], how="left", validate="one_to_one"
         )
         known = b[f"{grade}_true"].notna().to_numpy()
@@ -261,9 +261,7 @@ def test_demo_truth_lies_in_the_bands(tmp_path):
     sim = simulate_results(results, realisations=100, workers=0)
     truth = pd.read_parquet(project.truth)
     cutoffs = np.asarray(project.report.cutoffs)
-    for key, (share, middle) in _truth_in_the_bands(
-        results.blocks, truth, sim, "au", cutoffs
-    ).items():
+    for key, (share, middle) in _truth_in_the_bands(truth, sim, "au", cutoffs).items():
         assert share >= 0.8 and middle, (key, share, middle)
 
 
@@ -299,9 +297,7 @@ def test_invented_deposits_truth_lies_in_the_bands(tmp_path, name):
     results = run_stages(project)
     sim = simulate_results(results, realisations=100, workers=0)
     cutoffs = np.asarray(project.report.cutoffs)
-    for key, (share, middle) in _truth_in_the_bands(
-        results.blocks, truth.blocks, sim, spec.grade, cutoffs
-    ).items():
+    for key, (share, middle) in _truth_in_the_bands(truth.blocks, sim, spec.grade, cutoffs).items():
         assert share >= 0.8 and middle, (key, share, middle)
 
 
@@ -325,6 +321,7 @@ def test_reproduction_of_the_declustered_mean(rng):
     """Oracle: the realisations' tonnes-weighted mean grade per domain, its P10/P50/P90 and
     its relative difference from the declustered mean, computed by a plain loop; flagged
     beyond 5 % (common practice) and not within it."""
+    from blockmodel.stages.mining_units import MiningUnits
     from blockmodel.stages.simulation import DomainSimulation, Simulation
 
     blocks = pd.DataFrame({"tonnes": rng.uniform(100.0, 900.0, 40)})
@@ -335,8 +332,9 @@ def test_reproduction_of_the_declustered_mean(rng):
         by_key[f"{name}.au"] = DomainSimulation(
             name, "au", None, "", None, rows, grades, 0, 0, mean, 0, 0, 0, {}
         )
-    sim = Simulation(30, 1, np.array([0.0]), by_key, [])
-    table = sim.reproduction(blocks).set_index("domain.grade")
+    units = MiningUnits(blocks, np.ones(3), np.ones(3, dtype=np.int64), (1, 1, 1))
+    sim = Simulation(30, 1, np.array([0.0]), by_key, [], units, None)
+    table = sim.reproduction().set_index("domain.grade")
     for key, d in by_key.items():
         t = blocks["tonnes"].to_numpy()[d.rows]
         means = [sum(t[i] * d.grades[i, r] for i in range(len(t))) / t.sum() for r in range(30)]

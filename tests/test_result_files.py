@@ -92,7 +92,15 @@ def test_stages_change_nothing_they_are_given(tmp_path):
     classified = stages.classify(project, blocks)
     assert "class" not in blocks and "class" in classified
     stages.validate(project, comps.table, models, decl, domains.grid, classified)
-    stages.support_curves(project, comps.table, decl, models, domains.grid, classified)
+    stages.support_curves(
+        project,
+        comps.table,
+        decl,
+        models,
+        classified,
+        domains.grid.block_size,
+        project.estimation.discretisation,
+    )
     pd.testing.assert_frame_equal(comps.table, before)
     np.testing.assert_array_equal(domains.proportions, proportions)
     with pytest.raises(dataclasses.FrozenInstanceError):

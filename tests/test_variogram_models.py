@@ -75,7 +75,5 @@ def test_correlation_slope_equals_finite_differences(kind):
 
     r = np.r_[np.linspace(0.01, 0.98, 60), np.linspace(1.02, 2.5, 20)]
     step = 1e-6
-    numeric = (correlation(KINDS[kind], r + step) - correlation(KINDS[kind], r - step)) / (
-        2 * step
-    )
+    numeric = (correlation(KINDS[kind], r + step) - correlation(KINDS[kind], r - step)) / (2 * step)
     np.testing.assert_allclose(correlation_slope(KINDS[kind], r), numeric, atol=1e-8)

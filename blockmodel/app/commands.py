@@ -227,7 +227,7 @@ def run(
             if results.simulation is not None:
                 from blockmodel.report.simulation_section import write_simulation_files
 
-                write_simulation_files(project, results.simulation, results.blocks, staged.path)
+                write_simulation_files(project, results.simulation, staged.path)
         report.paragraph(f"Timings (s): {steps.timings}")
         report.write(staged.path / "report.html")
         staged.commit(
@@ -281,16 +281,8 @@ def simulate(
         for message in results.warnings:
             report.warn(message)
         with steps("figures and files"):
-            render_simulation(
-                project,
-                sim,
-                results.blocks,
-                staged.path,
-                report,
-                kriged=results.tables,
-                support=results.support,
-            )
-            write_simulation_files(project, sim, results.blocks, staged.path)
+            render_simulation(project, sim, staged.path, report, kriged=results.tables)
+            write_simulation_files(project, sim, staged.path)
         report.paragraph(f"Timings (s): {steps.timings}")
         report.write(staged.path / "simulation.html")
         staged.commit(

@@ -210,6 +210,16 @@ def _check_values(p: Project, r: Reader) -> None:
                 "a normal-score model needs at least one structure, and its nugget and "
                 f"sills must add up to 1 (the normal scores' variance); they add up to {total:g}",
             )
+    unit = p.simulation.block_size
+    if unit is not None:
+        parts = [b / u for b, u in zip(p.grid.block_size, unit, strict=True)]
+        if any(abs(x - round(x)) > 1e-6 or round(x) < 1 for x in parts):
+            r.fail(
+                "simulation.block_size",
+                "each side of the selective mining unit must divide the grid's block "
+                f"({' x '.join(f'{b:g}' for b in p.grid.block_size)} m) a whole number of "
+                f"times; got {' x '.join(f'{u:g}' for u in unit)} m",
+            )
     sweep = p.declustering.cell_sizes
     if not sweep.smallest < sweep.largest:
         r.fail(

@@ -299,8 +299,20 @@ class Simulation:
     realisations: int = setting(50, doc="realisations per domain and grade", low=2)
     seed: int = setting(1, doc="seed of the realisations (each reproducible alone)", low=0)
     in_run: bool = setting(False, doc="blockmodel run simulates too")
+    block_size: tuple[float, float, float] | None = setting(
+        None,
+        doc="the selective mining unit the realisations are averaged to, metres along x, "
+        "y, z; each side a whole fraction of the grid's block (e.g. 5 of 10); none: the "
+        "grid's block",
+        low=0.0,
+        strict_low=True,
+    )
     discretisation: tuple[int, int, int] | None = setting(
-        None, doc="nodes per block along x, y, z; none: estimation.discretisation", low=1, high=20
+        None,
+        doc="nodes per simulated block (or mining unit) along x, y, z; none: the node "
+        "spacing of estimation.discretisation in the grid's block",
+        low=1,
+        high=20,
     )
     neighbours: int = setting(24, doc="data per node in the conditioning kriging", low=1)
     model: str = setting(

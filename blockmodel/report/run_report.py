@@ -62,15 +62,7 @@ def render_run(results: RunResults, folder: Path, steps) -> HtmlReport:
         from blockmodel.report.simulation_section import render_simulation
 
         with steps("simulation figures"):
-            render_simulation(
-                project,
-                results.simulation,
-                results.blocks,
-                folder,
-                report,
-                kriged=results.tables,
-                support=results.support,
-            )
+            render_simulation(project, results.simulation, folder, report, kriged=results.tables)
     if results.truth is not None:
         _truth_section(results, report)
     report.heading("Run")

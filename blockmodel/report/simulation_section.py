@@ -30,43 +30,37 @@ CAUTION = (
 )
 
 
-def simulation_grade_tonnage(project: Project, sim: Simulation, blocks: pd.DataFrame):
+def simulation_grade_tonnage(project: Project, sim: Simulation) -> pd.DataFrame:
     """The bands of every grade in one table: ``grade_name`` and ``metal_unit`` columns
     added, metal in the grade's first metal unit (troy oz for g/t, t for %)."""
     frames = []
     for g in project.grades:
         unit, factor = metal_units(project.data.grades[g])[0]
-        table = sim.grade_tonnage(blocks, g)
+        table = sim.grade_tonnage(g)
         metal = [c for c in table if c.startswith("metal_") and c != "metal_cv"]
         table[metal] = table[metal] * factor
         frames.append(table.assign(grade_name=g, metal_unit=unit))
     return pd.concat(frames, ignore_index=True)
 
 
-def write_simulation_files(project: Project, sim: Simulation, blocks, folder: Path) -> None:
-    """``simulation_summary.parquet`` (per block), ``simulation_grade_tonnage.csv`` and,
-    when the project asks, ``simulation_realisations.parquet`` (long: one row per block,
-    grade and realisation)."""
-    summary = sim.block_table(blocks)
+def write_simulation_files(project: Project, sim: Simulation, folder: Path) -> None:
+    """``simulation_summary.parquet`` (per simulated block or mining unit),
+    ``simulation_grade_tonnage.csv`` and, when the project asks,
+    ``simulation_realisations.parquet`` (long: one row per block, grade and realisation)."""
+    summary = sim.block_table()
     summary.to_parquet(folder / "simulation_summary.parquet", index=False)
-    write_table(
-        simulation_grade_tonnage(project, sim, blocks), folder / "simulation_grade_tonnage.csv"
-    )
+    write_table(simulation_grade_tonnage(project, sim), folder / "simulation_grade_tonnage.csv")
     if project.simulation.keep_realisations:
-        sim.realisation_table(blocks).to_parquet(
-            folder / "simulation_realisations.parquet", index=False
-        )
+        sim.realisation_table().to_parquet(folder / "simulation_realisations.parquet", index=False)
 
 
 def render_simulation(
     project: Project,
     sim: Simulation,
-    blocks: pd.DataFrame,
     folder: Path,
     report: HtmlReport,
     *,
     kriged: dict[str, pd.DataFrame] | None = None,
-    support=None,
 ) -> None:
     """The report section: method, models, a band figure per domain and grade, and the
     band tables (all classes at every cut-off; each class at the statement cut-off).
@@ -75,25 +69,37 @@ def render_simulation(
     ----------
     kriged : dict of grade to grade-tonnage table, optional
         The kriged curves drawn under the bands.
-    support : Support, optional
-        The change-of-support curves (first grade) drawn under the bands.
     """
     s = project.simulation
     report.heading("Uncertainty: conditional simulation")
-    disc = s.discretisation or project.estimation.discretisation
-    spacing = " x ".join(f"{b / d:g}" for b, d in zip(project.grid.block_size, disc, strict=True))
+    units = sim.units
+    spacing = " x ".join(
+        f"{u / d:g}" for u, d in zip(units.size, units.discretisation, strict=True)
+    )
+    size = " x ".join(f"{u:g}" for u in units.size)
     tail = f"hyperbolic (omega {s.omega:g})" if s.upper_tail == "hyperbolic" else "linear"
+    if units.are_blocks:
+        support = (
+            f"Each block ({size} m) is a selective mining unit here; its tonnes are the block "
+            "model's."
+        )
+    else:
+        support = (
+            f"The selective mining unit is {size} m, {int(np.prod(units.parts))} to a block of "
+            "the model: each takes its block's domain, class and density, and an equal "
+            "share of its tonnes. The change-of-support curve is drawn for that unit too; "
+            "the kriged curve is that of the model's blocks, a larger support."
+        )
     report.paragraph(
         f"{sim.realisations} realisations (seed {sim.seed}) per domain and grade. Normal "
         "scores of the declustered composites; an unconditional Gaussian field on nodes "
-        f"{spacing} m apart (the block discretisation), made by the spectral (FFT) method, "
+        f"{spacing} m apart, made by the spectral (FFT) method, "
         f"conditioned by simple kriging of its residuals from the {s.neighbours} nearest "
         "composites of the domain (hard boundaries; each composite moved to the node it "
         "falls in); back-transformed to grades (lower tail linear to "
         f"{s.minimum:g}, upper tail {tail} up to the maximum below) and averaged over each "
-        "block's nodes inside the domain's solid (all its nodes where none is inside, "
-        "counted below). Each block is a selective mining unit here; its tonnes are the "
-        "block model's. Grades are simulated independently of each other."
+        "simulated block's nodes inside the domain's solid (all its nodes where none is "
+        f"inside, counted below). {support} Grades are simulated independently of each other."
     )
     report.box("caution")
     report.paragraph(CAUTION)
@@ -121,18 +127,18 @@ def render_simulation(
             }
         )
     report.table(pd.DataFrame(rows))
-    _reproduction(sim, blocks, report)
-    table = simulation_grade_tonnage(project, sim, blocks)
+    _reproduction(sim, report)
+    table = simulation_grade_tonnage(project, sim)
     for g in project.grades:
         unit = project.data.grades[g]
         metal_unit, factor = metal_units(unit)[0]
-        curves = sim.curves(blocks, g)
+        curves = sim.curves(g)
         present = {k[0] for k in curves}
         for domain in [d.name for d in project.domains if d.name in present] + ["all"]:
             p = folder / f"simulation_grade_tonnage_{safe_stem(domain)}_{safe_stem(g)}.png"
             cos = None
-            if support is not None and support.grade == g and domain in support.by_domain:
-                cos = support.by_domain[domain].curve
+            if sim.support.grade == g and domain in sim.support.by_domain:
+                cos = sim.support.by_domain[domain].curve
             _bands_figure(
                 sim.cutoffs,
                 {c: v for (d, c), v in curves.items() if d == domain},
@@ -164,10 +170,10 @@ def render_simulation(
             report.table(_shown(by_class, unit, metal_unit))
 
 
-def _reproduction(sim: Simulation, blocks: pd.DataFrame, report: HtmlReport) -> None:
+def _reproduction(sim: Simulation, report: HtmlReport) -> None:
     """The realisations' mean grade beside the declustered mean, flagged beyond the
     tolerance."""
-    table = sim.reproduction(blocks)
+    table = sim.reproduction()
     report.paragraph(
         "Reproduction: the mean grade of the simulated blocks (weighted by tonnes) in each "
         "realisation, beside the declustered mean of the composites. Realisations that "

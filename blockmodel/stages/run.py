@@ -157,7 +157,15 @@ def run_stages(
         warn(message)
     with steps("validation"):
         validation = validate(project, composites.table, models, decl, domains.grid, blocks)
-        support = support_curves(project, composites.table, decl, models, domains.grid, blocks)
+        support = support_curves(
+            project,
+            composites.table,
+            decl,
+            models,
+            blocks,
+            domains.grid.block_size,
+            project.estimation.discretisation,
+        )
     for message in validation.warnings():
         warn(message)
     with steps("grade-tonnage"):
@@ -224,7 +232,7 @@ def simulate_results(
         progress=progress,
     )
     if warn is not None:
-        for _, r in sim.reproduction(results.blocks).iterrows():
+        for _, r in sim.reproduction().iterrows():
             if r["flagged"]:
                 warn(
                     f"{r['domain.grade']}: the realisations' mean grade is "

@@ -19,6 +19,8 @@ from blockmodel.errors import setting_error
 from blockmodel.simulation.conditional import plan_simulation, simulate_blocks
 from blockmodel.simulation.transform import GaussianTransform, gaussian_transform
 from blockmodel.stages.declustering import Declustering
+from blockmodel.stages.mining_units import MiningUnits, mining_units
+from blockmodel.stages.support import Support, support_curves
 from blockmodel.stages.tables import class_order
 from blockmodel.stages.variography import Variography, normal_score_model
 from blockmodel.variography.models import VariogramModel
@@ -91,6 +93,11 @@ class Simulation:
     cutoffs : (k,) float64
     by_key : dict of ``domain.grade`` to DomainSimulation
     classes : list of str, confidence order
+    units : MiningUnits
+        The simulated blocks (the grid's blocks or smaller mining units);
+        ``DomainSimulation.rows`` index ``units.table``.
+    support : Support
+        The change-of-support curves at the units' size, drawn under the bands.
     """
 
     realisations: int
@@ -98,12 +105,15 @@ class Simulation:
     cutoffs: np.ndarray
     by_key: dict[str, DomainSimulation]
     classes: list[str]
+    units: MiningUnits
+    support: Support
 
-    def block_table(self, blocks: pd.DataFrame) -> pd.DataFrame:
-        """Per simulated block row: position, domain, tonnes, class and, per grade,
+    def block_table(self) -> pd.DataFrame:
+        """Per simulated block (or unit): position, domain, tonnes, class and, per grade,
         ``<g>_etype, <g>_sim_variance, <g>_p10, <g>_p50, <g>_p90`` and
         ``<g>_above_<cutoff>`` (probability at or above)."""
         keep = ["x", "y", "z", "i", "j", "k", "domain", "tonnes", "class"]
+        blocks = self.units.table
         rows = np.unique(np.concatenate([s.rows for s in self.by_key.values()]))
         frame = blocks.iloc[rows][[c for c in keep if c in blocks]].reset_index(drop=True)
         for s in self.by_key.values():  # a grade not simulated in a block stays empty
@@ -116,12 +126,12 @@ class Simulation:
                 frame.loc[at, column] = values
         return frame
 
-    def realisation_table(self, blocks: pd.DataFrame) -> pd.DataFrame:
-        """Every realisation's block grades, long: ``domain, i, j, k, realisation`` and one
-        column per grade."""
+    def realisation_table(self) -> pd.DataFrame:
+        """Every realisation's block (or unit) grades, long: ``domain, grade_name, i, j, k,
+        realisation, value``."""
         frames = []
         for s in self.by_key.values():
-            b = blocks.iloc[s.rows]
+            b = self.units.table.iloc[s.rows]
             n, r = s.grades.shape
             frames.append(
                 pd.DataFrame(
@@ -138,7 +148,7 @@ class Simulation:
             )
         return pd.concat(frames, ignore_index=True)
 
-    def reproduction(self, blocks: pd.DataFrame) -> pd.DataFrame:
+    def reproduction(self) -> pd.DataFrame:
         """Per domain and grade: the declustered mean of the composites beside the mean
         grade of the simulated blocks (weighted by their tonnes) in each realisation (P10,
         P50, P90), the relative difference of the realisations' average, and whether it
@@ -147,7 +157,7 @@ class Simulation:
         declustering does not reach)."""
         rows = []
         for key, s in self.by_key.items():
-            tonnes = blocks["tonnes"].to_numpy(float)[s.rows]
+            tonnes = self.units.table["tonnes"].to_numpy(float)[s.rows]
             means = tonnes @ s.grades / tonnes.sum()
             p10, p50, p90 = np.percentile(means, [10, 50, 90])
             difference = means.mean() / s.declustered_mean - 1.0
@@ -164,7 +174,7 @@ class Simulation:
             )
         return pd.DataFrame(rows)
 
-    def curves(self, blocks: pd.DataFrame, grade: str) -> dict[tuple[str, str], tuple]:
+    def curves(self, grade: str) -> dict[tuple[str, str], tuple]:
         """Tonnes and metal (tonnes x grade units) above each cut-off in every realisation,
         (r, k) each, per (domain, class) with ``all`` totals; realisation r of every
         domain adds up to realisation r of the total."""
@@ -172,7 +182,7 @@ class Simulation:
         for s in self.by_key.values():
             if s.grade != grade:
                 continue
-            b = blocks.iloc[s.rows]
+            b = self.units.table.iloc[s.rows]
             tonnes = b["tonnes"].to_numpy(float)
             classes = b["class"].to_numpy() if "class" in b else np.full(len(b), "all")
             groups = [("all", np.ones(len(b), dtype=bool))]
@@ -187,13 +197,13 @@ class Simulation:
                         out[key] = [t, m]
         return {k: tuple(v) for k, v in out.items()}
 
-    def grade_tonnage(self, blocks: pd.DataFrame, grade: str) -> pd.DataFrame:
+    def grade_tonnage(self, grade: str) -> pd.DataFrame:
         """Per domain, class and cut-off: P10, P50, P90, mean and coefficient of variation
         of the tonnes, grade and metal (tonnes x grade units) over the realisations."""
         rows = []
         order = {c: n for n, c in enumerate(["all", *self.classes])}
         keys = sorted(
-            self.curves(blocks, grade).items(),
+            self.curves(grade).items(),
             key=lambda kv: (kv[0][0] != "all", kv[0][0], order.get(kv[0][1], 99)),
         )
         for (domain, cls), (t, m) in keys:
@@ -243,7 +253,8 @@ def simulate(
     grid_origin, block_size : (3,) float, metres
     blocks : DataFrame
         The estimated (and classified) block model: ``i, j, k, domain, tonnes`` and the
-        grades; blocks whose grade was estimated are simulated.
+        grades; blocks whose grade was estimated are simulated, as themselves or as the
+        mining units of ``simulation.block_size`` (:func:`mining_units`).
     cluster : str
         Address of a running ``dask.distributed`` scheduler; empty: this machine.
     progress : callable(key, done, total), optional
@@ -258,7 +269,8 @@ def simulate(
     seed = s.seed if seed is None else int(seed)
     workers = s.workers if workers is None else int(workers)
     threads = workers or os.cpu_count() or 1
-    disc = s.discretisation or project.estimation.discretisation
+    units = mining_units(project, blocks, grid_origin, block_size)
+    table = units.table
     out = {}
     solids = _solids(project)
     keys = [(d, g) for d in project.domains if d.estimate for g in project.grades]
@@ -266,7 +278,7 @@ def simulate(
         key = f"{d.name}.{g}"
         start = time.perf_counter()
         rows = np.flatnonzero(
-            (blocks["domain"] == d.name).to_numpy() & np.isfinite(blocks[g].to_numpy(float))
+            (table["domain"] == d.name).to_numpy() & np.isfinite(table[g].to_numpy(float))
         )
         if len(rows) == 0:
             continue
@@ -291,10 +303,10 @@ def simulate(
             project, composites[own], declustering.weights[own], variography[key]
         )
         plan = plan_simulation(
-            blocks.iloc[rows][["i", "j", "k"]].to_numpy(np.int64),
+            table.iloc[rows][["i", "j", "k"]].to_numpy(np.int64),
             np.asarray(grid_origin, dtype=float),
-            np.asarray(block_size, dtype=float),
-            tuple(disc),
+            units.size,
+            units.discretisation,
             composites.loc[own, ["x", "y", "z"]].to_numpy(float),
             scores,
             model,
@@ -328,7 +340,16 @@ def simulate(
             },
         )
     cutoffs = np.asarray(project.report.cutoffs, dtype=float)
-    return Simulation(realisations, seed, cutoffs, out, class_order(project))
+    support = support_curves(
+        project,
+        composites,
+        declustering,
+        {k: v.model for k, v in variography.items()},
+        blocks,
+        units.size,
+        units.discretisation,
+    )
+    return Simulation(realisations, seed, cutoffs, out, class_order(project), units, support)
 
 
 def _solids(project: Project) -> dict:

@@ -10,7 +10,6 @@ import pandas as pd
 
 from blockmodel.assess.support import BlockSupportCurve, change_of_support
 from blockmodel.config.project import Project
-from blockmodel.model.grid import BlockGrid
 from blockmodel.report.tables import metal_units
 from blockmodel.stages.declustering import Declustering
 
@@ -62,12 +61,24 @@ def support_curves(
     composites: pd.DataFrame,
     declustering: Declustering,
     models: dict,
-    grid: BlockGrid,
     blocks: pd.DataFrame,
+    block_size,
+    discretisation,
 ) -> Support:
     """The discrete Gaussian model of each estimated domain (declustered composites, block
     variance from the variogram model, the domain's estimated tonnes) at the report
-    cut-offs, and the kriged curve at the same cut-offs."""
+    cut-offs, and the kriged curve at the same cut-offs.
+
+    Parameters
+    ----------
+    project, composites, declustering
+    models : dict of ``domain.grade`` to VariogramModel
+    blocks : DataFrame, the kriged block model
+    block_size : (3,) float, metres
+        The support of the curve (the grid's block, or a selective mining unit).
+    discretisation : (3,) int
+        Points per block along x, y, z for the block variance.
+    """
     primary = project.grades[0]
     cut = np.asarray(project.report.cutoffs, dtype=float)
     out = {}
@@ -81,8 +92,8 @@ def support_curves(
             sub[primary].to_numpy(float),
             declustering.weights[rows],
             models[f"{d.name}.{primary}"],
-            grid.block_size,
-            project.estimation.discretisation,
+            block_size,
+            discretisation,
             cut,
             float(b["tonnes"].sum()),
         )
