@@ -220,6 +220,19 @@ def _check_values(p: Project, r: Reader) -> None:
                 f"({' x '.join(f'{b:g}' for b in p.grid.block_size)} m) a whole number of "
                 f"times; got {' x '.join(f'{u:g}' for u in unit)} m",
             )
+    volumes = [v.name for v in p.simulation.volumes]
+    for i, v in enumerate(p.simulation.volumes):
+        key = f"simulation.volumes[{i}]"
+        if v.name.strip().lower() == "all" or not v.name.strip():
+            r.fail(f"{key}.name", f"volume name {v.name!r} is not allowed")
+        if volumes.count(v.name) > 1:
+            r.fail(f"{key}.name", f"volume names must be unique; '{v.name}' is repeated")
+        if not all(a < b for a, b in zip(v.low, v.high, strict=True)):
+            r.fail(
+                f"{key}.high",
+                f"each side of 'high' must exceed 'low'; got low {list(v.low)}, "
+                f"high {list(v.high)}",
+            )
     sweep = p.declustering.cell_sizes
     if not sweep.smallest < sweep.largest:
         r.fail(

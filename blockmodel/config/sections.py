@@ -292,6 +292,16 @@ class Validation:
 
 
 @dataclass(frozen=True)
+class ProductionVolume:
+    """A volume mined in one period (a year, a quarter, a set of benches): the simulated
+    blocks whose centre lies in the box ``low <= centre < high``."""
+
+    name: str = setting(doc="the period or volume, e.g. 'year 1' ('all' is reserved)")
+    low: tuple[float, float, float] = setting(doc="lowest corner x, y, z, metres")
+    high: tuple[float, float, float] = setting(doc="highest corner x, y, z, metres")
+
+
+@dataclass(frozen=True)
 class Simulation:
     """Conditional simulation of grades: normal scores, spectral fields conditioned by
     simple kriging, back to grades on the block discretisation, averaged to blocks."""
@@ -349,6 +359,11 @@ class Simulation:
     workers: int = setting(1, doc="threads over realisations; 0: all cores", low=0)
     keep_realisations: bool = setting(
         False, doc="also write every realisation's block grades (long Parquet table)"
+    )
+    volumes: tuple[ProductionVolume, ...] = setting(
+        (),
+        doc="production volumes whose tonnes, grade and metal above the statement cut-off "
+        "are reported with their bands, e.g. [[simulation.volumes]] name = 'year 1'",
     )
 
 

@@ -17,7 +17,12 @@ from blockmodel.report.html import HtmlReport
 from blockmodel.report.tables import metal_units, round_significant
 from blockmodel.stages.simulation import REPRODUCTION_TOLERANCE, Simulation
 
-__all__ = ["render_simulation", "simulation_grade_tonnage", "write_simulation_files"]
+__all__ = [
+    "render_simulation",
+    "simulation_grade_tonnage",
+    "simulation_volumes",
+    "write_simulation_files",
+]
 
 CAUTION = (
     "The bands are the spread of the realisations under the stated model: one stationary "
@@ -43,13 +48,31 @@ def simulation_grade_tonnage(project: Project, sim: Simulation) -> pd.DataFrame:
     return pd.concat(frames, ignore_index=True)
 
 
+def simulation_volumes(project: Project, sim: Simulation) -> pd.DataFrame:
+    """The production volumes' bands (:meth:`Simulation.volumes`) of every grade in one
+    table, at each domain's statement cut-off; metal as in
+    :func:`simulation_grade_tonnage`."""
+    cut = {d.name: project.statement_cutoff(d.name) for d in project.domains if d.estimate}
+    frames = []
+    for g in project.grades:
+        unit, factor = metal_units(project.data.grades[g])[0]
+        table = sim.volumes(project.simulation.volumes, g, cut)
+        metal = [c for c in table if "metal" in c and c != "metal_cv"]
+        table[metal] = table[metal] * factor
+        frames.append(table.assign(grade_name=g, metal_unit=unit))
+    return pd.concat(frames, ignore_index=True)
+
+
 def write_simulation_files(project: Project, sim: Simulation, folder: Path) -> None:
     """``simulation_summary.parquet`` (per simulated block or mining unit),
-    ``simulation_grade_tonnage.csv`` and, when the project asks,
-    ``simulation_realisations.parquet`` (long: one row per block, grade and realisation)."""
+    ``simulation_grade_tonnage.csv`` and, when the project asks, ``simulation_volumes.csv``
+    (production volumes) and ``simulation_realisations.parquet`` (long: one row per block,
+    grade and realisation)."""
     summary = sim.block_table()
     summary.to_parquet(folder / "simulation_summary.parquet", index=False)
     write_table(simulation_grade_tonnage(project, sim), folder / "simulation_grade_tonnage.csv")
+    if project.simulation.volumes:
+        write_table(simulation_volumes(project, sim), folder / "simulation_volumes.csv")
     if project.simulation.keep_realisations:
         sim.realisation_table().to_parquet(folder / "simulation_realisations.parquet", index=False)
 
@@ -168,6 +191,36 @@ def render_simulation(
         if len(by_class):
             report.paragraph(f"{g}: by class at each domain's statement cut-off.")
             report.table(_shown(by_class, unit, metal_unit))
+    if project.simulation.volumes:
+        _volumes(project, sim, report)
+
+
+def _volumes(project: Project, sim: Simulation, report: HtmlReport) -> None:
+    """The production volumes' table per grade."""
+    table = simulation_volumes(project, sim)
+    for g in project.grades:
+        unit = project.data.grades[g]
+        rows = table[table["grade_name"] == g]
+        metal_unit = rows["metal_unit"].iloc[0]
+        report.paragraph(
+            f"{g}, production volumes: tonnes, grade and metal at or above each domain's "
+            "statement cut-off in the blocks whose centre lies in each volume, P10, P50 and "
+            "P90 over the realisations beside the kriged blocks (tonnes and metal to 3 "
+            f"significant figures; metal in {metal_unit}). A volume's spread is what a "
+            "plan for that period should allow for under this model."
+        )
+        out = rows[["volume", "blocks"]].copy()
+        for q in ("p10", "p50", "p90"):
+            out[f"Mt {q.upper()}"] = round_significant(rows[f"tonnes_{q}"] / 1e6, 3)
+        out["Mt kriged"] = round_significant(rows["kriged_tonnes"] / 1e6, 3)
+        for q in ("p10", "p50", "p90"):
+            out[f"grade {q.upper()} ({unit})"] = rows[f"grade_{q}"].round(3)
+        out[f"grade kriged ({unit})"] = rows["kriged_grade"].round(3)
+        for q in ("p10", "p50", "p90"):
+            out[f"metal {q.upper()}"] = round_significant(rows[f"metal_{q}"], 3)
+        out["metal kriged"] = round_significant(rows["kriged_metal"], 3)
+        out["metal CV"] = rows["metal_cv"].round(3)
+        report.table(out.reset_index(drop=True))
 
 
 def _reproduction(sim: Simulation, report: HtmlReport) -> None:
