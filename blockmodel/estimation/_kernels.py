@@ -54,53 +54,50 @@ def reduced(points, mats):
 
 
 @njit(cache=_CACHE, inline="always")
-def _mean_correlation(kind, px, py, pz, ox, oy, oz, c):
-    """Mean correlation between one reduced point (px, py, pz) and every discretisation
-    offset (ox, oy, oz: (d,) each); ``c`` (d,) is scratch.  The correlations are computed
-    in a loop of one kind with no branch and no sum (so the compiler vectorises it), then
-    summed in four partial sums in a fixed order: every call does the same arithmetic."""
+def _mean_correlations(kind, x, y, z, k, tx, ty, tz, ox, oy, oz, out):
+    """Mean correlation between each of the k reduced points (x, y, z: (>= k,) each) and
+    the discretisation points of a target (tx, ty, tz) + (ox, oy, oz)[o] into ``out[:k]``.
+
+    Offset by offset, one loop over the points of one kind with no branch and no sum
+    across the loop (so the compiler vectorises it); each point's sum over the offsets is
+    in offset order, the same arithmetic in every call."""
     d = ox.shape[0]
-    if kind == 0:
-        for o in range(d):
-            dx = px - ox[o]
-            dy = py - oy[o]
-            dz = pz - oz[o]
-            r2c = min(dx * dx + dy * dy + dz * dz, 1.0)
-            r = np.sqrt(r2c)
-            c[o] = 1.0 - r * (1.5 - 0.5 * r2c)
-    elif kind == 1:
-        for o in range(d):
-            dx = px - ox[o]
-            dy = py - oy[o]
-            dz = pz - oz[o]
-            c[o] = np.exp(-3.0 * np.sqrt(dx * dx + dy * dy + dz * dz))
-    elif kind == 2:
-        for o in range(d):
-            dx = px - ox[o]
-            dy = py - oy[o]
-            dz = pz - oz[o]
-            c[o] = np.exp(-3.0 * (dx * dx + dy * dy + dz * dz))
-    else:
-        for o in range(d):
-            dx = px - ox[o]
-            dy = py - oy[o]
-            dz = pz - oz[o]
-            r2c = min(dx * dx + dy * dy + dz * dz, 1.0)
-            r = np.sqrt(r2c)
-            c[o] = 1.0 - r2c * (7.0 - r * (8.75 - r2c * (3.5 - 0.75 * r2c)))
-    s0 = 0.0
-    s1 = 0.0
-    s2 = 0.0
-    s3 = 0.0
-    top = d - d % 4
-    for o in range(0, top, 4):
-        s0 += c[o]
-        s1 += c[o + 1]
-        s2 += c[o + 2]
-        s3 += c[o + 3]
-    for o in range(top, d):
-        s0 += c[o]
-    return ((s0 + s1) + (s2 + s3)) / d
+    for i in range(k):
+        out[i] = 0.0
+    for o in range(d):
+        qx = tx + ox[o]
+        qy = ty + oy[o]
+        qz = tz + oz[o]
+        if kind == 0:
+            for i in range(k):
+                dx = x[i] - qx
+                dy = y[i] - qy
+                dz = z[i] - qz
+                r2c = min(dx * dx + dy * dy + dz * dz, 1.0)
+                r = np.sqrt(r2c)
+                out[i] += 1.0 - r * (1.5 - 0.5 * r2c)
+        elif kind == 1:
+            for i in range(k):
+                dx = x[i] - qx
+                dy = y[i] - qy
+                dz = z[i] - qz
+                out[i] += np.exp(-3.0 * np.sqrt(dx * dx + dy * dy + dz * dz))
+        elif kind == 2:
+            for i in range(k):
+                dx = x[i] - qx
+                dy = y[i] - qy
+                dz = z[i] - qz
+                out[i] += np.exp(-3.0 * (dx * dx + dy * dy + dz * dz))
+        else:
+            for i in range(k):
+                dx = x[i] - qx
+                dy = y[i] - qy
+                dz = z[i] - qz
+                r2c = min(dx * dx + dy * dy + dz * dz, 1.0)
+                r = np.sqrt(r2c)
+                out[i] += 1.0 - r2c * (7.0 - r * (8.75 - r2c * (3.5 - 0.75 * r2c)))
+    for i in range(k):
+        out[i] /= d
 
 
 @njit(cache=_CACHE)
@@ -267,7 +264,7 @@ def krige_groups(
     for st in range(n_struct):
         c0 += sills[st]
     local = np.empty((n_struct, 3, neighbours.shape[1]))
-    scratch = np.empty(offsets_r.shape[2])
+    scratch = np.empty(neighbours.shape[1])
     for g in range(first, last):
         lead = order[group_starts[g]]
         k = counts[lead]
@@ -306,20 +303,26 @@ def krige_groups(
                         + mats[st, r, 2] * targets[b, 2]
                     )
             for i in range(k):
+                cbar[i] = 0.0
+            for st in range(n_struct):
+                _mean_correlations(
+                    kinds[st],
+                    local[st, 0],
+                    local[st, 1],
+                    local[st, 2],
+                    k,
+                    tr[st, 0],
+                    tr[st, 1],
+                    tr[st, 2],
+                    offsets_r[st, 0],
+                    offsets_r[st, 1],
+                    offsets_r[st, 2],
+                    scratch,
+                )
+                for i in range(k):
+                    cbar[i] += sills[st] * scratch[i]
+            for i in range(k):
                 s_i = idx[i]
-                acc = 0.0
-                for st in range(n_struct):
-                    acc += sills[st] * _mean_correlation(
-                        kinds[st],
-                        samples_r[st, s_i, 0] - tr[st, 0],
-                        samples_r[st, s_i, 1] - tr[st, 1],
-                        samples_r[st, s_i, 2] - tr[st, 2],
-                        offsets_r[st, 0],
-                        offsets_r[st, 1],
-                        offsets_r[st, 2],
-                        scratch,
-                    )
-                cbar[i] = acc
                 if point_support:
                     at_target = True
                     for st in range(n_struct):
