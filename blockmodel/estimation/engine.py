@@ -91,7 +91,9 @@ def _init_worker() -> None:
     set_threads(1)
 
 
-_POOL: dict = {"workers": 0, "pool": None, "client": None, "address": ""}
+_POOL: dict = {"workers": 0, "pool": None}
+# the client of the cluster session open in this process, if any
+_SESSION: dict = {"client": None, "address": ""}
 
 
 def _process_pool(workers: int):
@@ -133,11 +135,11 @@ def cluster_session(address: str):
     from distributed import Client
 
     with Client(address) as client:
-        _POOL["client"], _POOL["address"] = client, address
+        _SESSION["client"], _SESSION["address"] = client, address
         try:
             yield
         finally:
-            _POOL["client"], _POOL["address"] = None, ""
+            _SESSION["client"], _SESSION["address"] = None, ""
 
 
 def _cluster_chunk(job: EstimationJob, targets: np.ndarray) -> dict[str, np.ndarray]:
@@ -235,7 +237,7 @@ def run_job(
             raise RuntimeError(
                 "the dask backend needs the 'cluster' extra: pip install 'blockmodel[cluster]'"
             ) from None
-        session = _POOL["client"] if _POOL["address"] == cluster else None
+        session = _SESSION["client"] if _SESSION["address"] == cluster else None
         with nullcontext(session) if session is not None else Client(cluster) as client:
             job_future = client.scatter(job, broadcast=True, hash=False)
             futures = [

@@ -214,6 +214,8 @@ def find_neighbours(
     if search.max_per_hole and hole_codes is None:
         raise ValueError("SearchEllipsoid.max_per_hole needs hole_ids")
     edge = GROUP_CELL if limited else NEAREST_CELL * index.reach
+    if m:  # at most 100,000 cells along an axis, so the cells' keys stay small
+        edge = max(edge, float(np.ptp(targets_t, axis=0).max()) / 1e5)
     centres, group_of = _cells_of(targets_t, edge)
     half = edge * np.sqrt(3.0) / 2.0
     radius = np.full(len(centres), 1.0 + half)
