@@ -52,7 +52,7 @@ def simulation_volumes(project: Project, sim: Simulation) -> pd.DataFrame:
     """The production volumes' bands (:meth:`Simulation.volumes`) of every grade in one
     table, at each domain's statement cut-off; metal as in
     :func:`simulation_grade_tonnage`."""
-    cut = {d.name: project.statement_cutoff(d.name) for d in project.domains if d.estimate}
+    cut = _statement_cutoffs(project)
     frames = []
     for g in project.grades:
         unit, factor = metal_units(project.data.grades[g])[0]
@@ -182,7 +182,7 @@ def render_simulation(
             f"(tonnes and metal to 3 significant figures; metal in {metal_unit})."
         )
         report.table(_shown(rows, unit, metal_unit))
-        cut = {d.name: project.statement_cutoff(d.name) for d in project.domains if d.estimate}
+        cut = _statement_cutoffs(project)
         by_class = table[
             (table["grade_name"] == g)
             & (table["domain"] != "all")
@@ -254,6 +254,11 @@ def _reproduction(sim: Simulation, report: HtmlReport) -> None:
             "declustering and consider splitting the domain before relying on these bands."
         )
         report.end_box()
+
+
+def _statement_cutoffs(project: Project) -> dict[str, float]:
+    """Each estimated domain's statement cut-off."""
+    return {d.name: project.statement_cutoff(d.name) for d in project.domains if d.estimate}
 
 
 def _shown(rows: pd.DataFrame, unit: str, metal_unit: str) -> pd.DataFrame:
