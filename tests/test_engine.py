@@ -119,3 +119,33 @@ def test_a_cluster_task_limits_only_its_own_thread():
         assert _threads.threads() == 3
     finally:
         _threads.set_threads(before)
+
+
+def test_one_cluster_session_runs_the_same_job_twice(rng):
+    """Within one connection to a cluster (as a run keeps for all its domains and grades)
+    the same job can be sent twice; both runs equal the serial one bit for bit (each
+    scatter of the job gets a fresh key, so releasing the first cannot drop the second)."""
+    import numpy as np
+    from distributed import LocalCluster
+
+    from blockmodel.estimation.engine import EstimationJob, cluster_session, run_job
+    from blockmodel.estimation.search import SearchEllipsoid
+    from blockmodel.variography.models import Structure, VariogramModel
+
+    pts = rng.uniform(0, 100, (300, 3))
+    model = VariogramModel(0.2, [Structure("spherical", 0.8, (50.0, 50.0, 50.0))])
+    job = EstimationJob(
+        pts, rng.lognormal(0.0, 0.5, 300), None, model, (SearchEllipsoid((60.0, 60.0, 60.0)),)
+    )
+    targets = rng.uniform(10, 90, (2000, 3))
+    serial = run_job(job, targets, backend="serial")
+    with LocalCluster(
+        n_workers=2, threads_per_worker=1, host="127.0.0.1", dashboard_address=None, processes=True
+    ) as cluster:
+        with cluster_session(cluster.scheduler_address):
+            for _ in range(2):
+                out = run_job(
+                    job, targets, backend="dask", cluster=cluster.scheduler_address, chunk_size=250
+                )
+                for key, values in serial.items():
+                    np.testing.assert_array_equal(out[key], values)
