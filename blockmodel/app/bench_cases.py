@@ -136,7 +136,9 @@ def point_kriging_versus_pykrige(
     rng = np.random.default_rng(3)
     pts = rng.uniform(0, 300, size=(n_samples, 3))
     vals = rng.lognormal(size=n_samples)
-    targets = rng.uniform(20, 280, size=(n_targets, 3))
+    # distinct targets throughout: repeated ones would share their systems here
+    big = rng.uniform(20, 280, size=(50 * n_targets, 3))  # ours is fast: more targets
+    targets = big[:n_targets]
     model = VariogramModel(0.2, [Structure("spherical", 0.8, (120.0, 120.0, 120.0))])
     search = SearchEllipsoid((1e6, 1e6, 1e6), min_samples=1, max_samples=24)
     ok = OrdinaryKriging3D(
@@ -149,7 +151,6 @@ def point_kriging_versus_pykrige(
     ref, _ = ok.execute("points", *targets.T, backend="loop", n_closest_points=24)
     t_ref = time.perf_counter() - t
     estimate(pts, vals, targets[:10], model, search)
-    big = np.tile(targets, (50, 1))  # ours is fast: time more targets for a stable figure
     t = time.perf_counter()
     ours = estimate(pts, vals, big, model, search)
     t_ours = time.perf_counter() - t

@@ -118,50 +118,90 @@ def mean_block_covariance(offsets, kinds, sills, mats):
     return total / (d * d)
 
 
+# pivots per panel of the Cholesky factorisation
+_PANEL = 4
+
+
+@njit(cache=_CACHE, inline="always")
+def _pivot(a, q, n):
+    """Take the square root of pivot q and scale the rest of row q by it; return the
+    squared pivot (not positive: the matrix is not positive definite)."""
+    s = a[q, q]
+    if s > 0.0:
+        d = np.sqrt(s)
+        a[q, q] = d
+        inv = 1.0 / d
+        for i in range(q + 1, n):
+            a[q, i] = a[q, i] * inv
+    return s
+
+
 @njit(cache=_CACHE)
 def _cholesky(a):
     """In-place upper Cholesky factor U (C = U'U) of a symmetric matrix given by its upper
     triangle; returns the ratio of the smallest to the largest squared pivot (0 if not
     positive definite).
 
-    Right-looking: after each pivot the rows below are updated along contiguous rows (the
+    Right-looking, by panels of four pivots: each panel is factored alone, then the rows
+    below it receive the panel's four updates in one pass along contiguous rows (the
     compiler vectorises it).  Each entry receives the same subtractions in the same order
     as the textbook inner-product form, so the factor is the same to the last bit."""
     n = a.shape[0]
     pmin = np.inf
     pmax = 0.0
-    for j in range(n):
-        s = a[j, j]
-        if not s > 0.0:
-            return 0.0
-        pmin = min(pmin, s)
-        pmax = max(pmax, s)
-        d = np.sqrt(s)
-        a[j, j] = d
-        inv = 1.0 / d
-        for i in range(j + 1, n):
-            a[j, i] = a[j, i] * inv
-        for r in range(j + 1, n):
-            f = a[j, r]
-            for i in range(r, n):
-                a[r, i] -= f * a[j, i]
+    j = 0
+    while j < n:
+        e = min(j + _PANEL, n)
+        for q in range(j, e):
+            s = _pivot(a, q, n)
+            if not s > 0.0:
+                return 0.0
+            pmin = min(pmin, s)
+            pmax = max(pmax, s)
+            for r in range(q + 1, e):
+                f = a[q, r]
+                for i in range(r, n):
+                    a[r, i] -= f * a[q, i]
+        if e - j == _PANEL:
+            for r in range(e, n):
+                f0 = a[j, r]
+                f1 = a[j + 1, r]
+                f2 = a[j + 2, r]
+                f3 = a[j + 3, r]
+                for i in range(r, n):
+                    a[r, i] = (
+                        a[r, i]
+                        - f0 * a[j, i]
+                        - f1 * a[j + 1, i]
+                        - f2 * a[j + 2, i]
+                        - f3 * a[j + 3, i]
+                    )
+        j = e
     return pmin / pmax
 
 
 @njit(cache=_CACHE, inline="always")
-def _cholesky_solve(upper, b):
-    """Solve U'U x = b in place, U from :func:`_cholesky`."""
+def _cholesky_solve(upper, b, columns):
+    """Solve U'U x = b in place for the first ``columns`` columns of b (k, >= columns), U
+    from :func:`_cholesky`.  The columns are solved side by side (the compiler vectorises
+    across them); each gets the same arithmetic as when solved alone."""
     n = upper.shape[0]
     for p in range(n):
-        b[p] = b[p] / upper[p, p]
-        f = b[p]
+        d = upper[p, p]
+        for c in range(columns):
+            b[p, c] = b[p, c] / d
         for i in range(p + 1, n):
-            b[i] -= upper[p, i] * f
+            u = upper[p, i]
+            for c in range(columns):
+                b[i, c] -= u * b[p, c]
     for i in range(n - 1, -1, -1):
-        s = b[i]
         for p in range(i + 1, n):
-            s -= upper[i, p] * b[p]
-        b[i] = s / upper[i, i]
+            u = upper[i, p]
+            for c in range(columns):
+                b[i, c] -= u * b[p, c]
+        d = upper[i, i]
+        for c in range(columns):
+            b[i, c] = b[i, c] / d
 
 
 @njit(cache=_CACHE, inline="always")
@@ -200,6 +240,70 @@ def _add_correlation_row(kind, sill, x, y, z, j, k, row):
             r2c = min(dx * dx + dy * dy + dz * dz, 1.0)
             r = np.sqrt(r2c)
             row[i] += sill * (1.0 - r2c * (7.0 - r * (8.75 - r2c * (3.5 - 0.75 * r2c))))
+
+
+# targets whose systems are solved together (with the group's v)
+_BATCH = 8
+
+
+@njit(cache=_CACHE, inline="always")
+def _target_covariances(
+    samples_r,
+    target,
+    offsets_r,
+    idx,
+    local,
+    k,
+    kinds,
+    sills,
+    mats,
+    nugget,
+    point_support,
+    tr,
+    scratch,
+    cbar,
+):
+    """Mean covariance between each of the k neighbours and the target's discretisation
+    into ``cbar[:k]`` (nugget added where a point target coincides with the sample); the
+    target in each structure's reduced frame into ``tr``."""
+    n_struct = kinds.shape[0]
+    for st in range(n_struct):
+        for r in range(3):
+            tr[st, r] = (
+                mats[st, r, 0] * target[0] + mats[st, r, 1] * target[1] + mats[st, r, 2] * target[2]
+            )
+    for i in range(k):
+        cbar[i] = 0.0
+    for st in range(n_struct):
+        _mean_correlations(
+            kinds[st],
+            local[st, 0],
+            local[st, 1],
+            local[st, 2],
+            k,
+            tr[st, 0],
+            tr[st, 1],
+            tr[st, 2],
+            offsets_r[st, 0],
+            offsets_r[st, 1],
+            offsets_r[st, 2],
+            scratch,
+        )
+        for i in range(k):
+            cbar[i] += sills[st] * scratch[i]
+    if point_support:
+        for i in range(k):
+            s_i = idx[i]
+            at_target = True
+            for st in range(n_struct):
+                if (
+                    samples_r[st, s_i, 0] != tr[st, 0]
+                    or samples_r[st, s_i, 1] != tr[st, 1]
+                    or samples_r[st, s_i, 2] != tr[st, 2]
+                ):
+                    at_target = False
+            if at_target:
+                cbar[i] += nugget
 
 
 @njit(cache=_CACHE, nogil=True)
@@ -263,8 +367,13 @@ def krige_groups(
     c0 = 0.0
     for st in range(n_struct):
         c0 += sills[st]
-    local = np.empty((n_struct, 3, neighbours.shape[1]))
-    scratch = np.empty(neighbours.shape[1])
+    kmax = neighbours.shape[1]
+    local = np.empty((n_struct, 3, kmax))
+    scratch = np.empty(kmax)
+    work = np.empty((kmax, _BATCH + 1))  # right-hand sides solved together, by row
+    cbars = np.empty((_BATCH, kmax))
+    v = np.empty(kmax)
+    tr = np.empty((n_struct, 3))
     for g in range(first, last):
         lead = order[group_starts[g]]
         k = counts[lead]
@@ -282,95 +391,83 @@ def krige_groups(
                     kinds[st], sills[st], local[st, 0], local[st, 1], local[st, 2], j, k, a[j]
                 )
         # C = U'U once per group. Ordinary kriging by the Schur complement of the bordered
-        # system: C u = cbar, C v = 1, mu = (1'u - 1) / 1'v, lambda = u - mu v.
+        # system: C u = cbar, C v = 1, mu = (1'u - 1) / 1'v, lambda = u - mu v; v is solved
+        # with the group's first batch of targets, all in one pass
         ratio = _cholesky(a)
-        v = np.ones(k)
         sum_v = 0.0
-        if ratio > 0.0:
-            _cholesky_solve(a, v)
-            for i in range(k):
-                sum_v += v[i]
-        rhs = np.empty(k)
-        cbar = np.zeros(k)
-        tr = np.empty((n_struct, 3))
-        for t in range(group_starts[g], group_starts[g + 1]):
-            b = order[t]
-            for st in range(n_struct):
-                for r in range(3):
-                    tr[st, r] = (
-                        mats[st, r, 0] * targets[b, 0]
-                        + mats[st, r, 1] * targets[b, 1]
-                        + mats[st, r, 2] * targets[b, 2]
-                    )
-            for i in range(k):
-                cbar[i] = 0.0
-            for st in range(n_struct):
-                _mean_correlations(
-                    kinds[st],
-                    local[st, 0],
-                    local[st, 1],
-                    local[st, 2],
+        lo = group_starts[g]
+        hi = group_starts[g + 1]
+        for start in range(lo, hi, _BATCH):
+            stop = min(start + _BATCH, hi)
+            shift = 1 if start == lo and not simple else 0
+            if shift:
+                for i in range(k):
+                    work[i, 0] = 1.0
+            for t in range(start, stop):
+                b = order[t]
+                cbar = cbars[t - start]
+                _target_covariances(
+                    samples_r,
+                    targets[b],
+                    offsets_r,
+                    idx,
+                    local,
                     k,
-                    tr[st, 0],
-                    tr[st, 1],
-                    tr[st, 2],
-                    offsets_r[st, 0],
-                    offsets_r[st, 1],
-                    offsets_r[st, 2],
+                    kinds,
+                    sills,
+                    mats,
+                    nugget,
+                    point_support,
+                    tr,
                     scratch,
+                    cbar,
                 )
                 for i in range(k):
-                    cbar[i] += sills[st] * scratch[i]
-            for i in range(k):
-                s_i = idx[i]
-                if point_support:
-                    at_target = True
-                    for st in range(n_struct):
-                        if (
-                            samples_r[st, s_i, 0] != tr[st, 0]
-                            or samples_r[st, s_i, 1] != tr[st, 1]
-                            or samples_r[st, s_i, 2] != tr[st, 2]
-                        ):
-                            at_target = False
-                    if at_target:
-                        cbar[i] += nugget
-                rhs[i] = cbar[i]
-            ill_conditioned[b] = ratio < condition_limit
+                    work[i, shift + t - start] = cbar[i]
+                ill_conditioned[b] = ratio < condition_limit
             if ratio == 0.0:
                 continue
-            _cholesky_solve(a, rhs)
-            mu = 0.0
-            if not simple:
-                sum_u = 0.0
+            _cholesky_solve(a, work, shift + stop - start)
+            if shift:
                 for i in range(k):
-                    sum_u += rhs[i]
-                mu = (sum_u - 1.0) / sum_v
+                    v[i] = work[i, 0]
+                    sum_v += v[i]
+            for t in range(start, stop):
+                b = order[t]
+                cbar = cbars[t - start]
+                col = shift + t - start
+                mu = 0.0
+                if not simple:
+                    sum_u = 0.0
+                    for i in range(k):
+                        sum_u += work[i, col]
+                    mu = (sum_u - 1.0) / sum_v
+                    for i in range(k):
+                        work[i, col] -= mu * v[i]
+                est = 0.0
+                lc = 0.0
+                wsum = 0.0
+                neg = 0.0
+                n_neg = 0.0
                 for i in range(k):
-                    rhs[i] -= mu * v[i]
-            est = 0.0
-            lc = 0.0
-            wsum = 0.0
-            neg = 0.0
-            n_neg = 0.0
-            for i in range(k):
-                w = rhs[i]
-                wsum += w
-                lc += w * cbar[i]
-                if w < 0.0:
-                    neg += w
-                    n_neg += 1.0
+                    w = work[i, col]
+                    wsum += w
+                    lc += w * cbar[i]
+                    if w < 0.0:
+                        neg += w
+                        n_neg += 1.0
+                    if simple:
+                        est += w * (values[idx[i]] - mean)
+                    else:
+                        est += w * values[idx[i]]
                 if simple:
-                    est += w * (values[idx[i]] - mean)
-                else:
-                    est += w * values[idx[i]]
-            if simple:
-                est += mean
-            estimate[b] = est
-            variance[b] = cvv - lc - mu
-            # lambda' C lambda = lambda' cbar - mu * sum(lambda); sum(lambda) = 1 for OK
-            var_est = lc - mu * wsum
-            slope[b] = lc / var_est if var_est > 0.0 else np.nan
-            lagrange[b] = mu
-            negative_weights[b] = neg
-            negative_count[b] = n_neg
-            weight_sum[b] = wsum
+                    est += mean
+                estimate[b] = est
+                variance[b] = cvv - lc - mu
+                # lambda' C lambda = lambda' cbar - mu * sum(lambda); sum(lambda) = 1 for OK
+                var_est = lc - mu * wsum
+                slope[b] = lc / var_est if var_est > 0.0 else np.nan
+                lagrange[b] = mu
+                negative_weights[b] = neg
+                negative_count[b] = n_neg
+                weight_sum[b] = wsum
