@@ -271,6 +271,26 @@ def _sort_bucket(order, lo, hi, dist, near):
 
 
 @njit(cache=_CACHE, nogil=True)
+def order_by_centre(first, last, offsets, candidates, samples_t, centres, centre_distance):
+    """Per group ``first .. last - 1``: sort its candidates (``candidates[offsets[g]:
+    offsets[g + 1]]``, in place) by their distance from the group's centre (g, 3), written
+    to ``centre_distance`` beside them."""
+    for g in range(first, last):
+        a, b = offsets[g], offsets[g + 1]
+        for c in range(a, b):
+            s = candidates[c]
+            dx = samples_t[s, 0] - centres[g, 0]
+            dy = samples_t[s, 1] - centres[g, 1]
+            dz = samples_t[s, 2] - centres[g, 2]
+            centre_distance[c] = np.sqrt(dx * dx + dy * dy + dz * dz)
+        rank = np.argsort(centre_distance[a:b])
+        sorted_candidates = candidates[a:b][rank]
+        sorted_distance = centre_distance[a:b][rank]
+        candidates[a:b] = sorted_candidates
+        centre_distance[a:b] = sorted_distance
+
+
+@njit(cache=_CACHE, nogil=True)
 def nearest_in_groups(
     first,
     last,
@@ -280,6 +300,8 @@ def nearest_in_groups(
     samples_t,
     targets_t,
     skip_coincident,
+    centre_distance,
+    half,
     out,
     distance,
     counts,
@@ -288,31 +310,32 @@ def nearest_in_groups(
     group's candidate list inside the unit sphere, by increasing distance (ties by sample
     index), kept by insertion into a sorted list of k.
 
-    Parameters are as in :func:`select_in_groups`; ``distance`` (m, k) float64 receives the
-    distances (inf where padded), ``out`` is padded with n.
+    The candidates come sorted by their distance D from the group's centre
+    (:func:`order_by_centre`), so they mostly arrive in order, and a target at most
+    ``half`` from the centre stops once ``D - half`` exceeds its k-th distance: no later
+    candidate can be nearer (triangle inequality; a margin of 1e-9 covers rounding).
+
+    Parameters are as in :func:`select_in_groups`; ``centre_distance`` as written by
+    :func:`order_by_centre`; ``distance`` (m, k) float64 receives the distances (inf where
+    padded), ``out`` is padded with n.
     """
     n = samples_t.shape[0]
     k = out.shape[1]
-    longest = 0
-    for t in range(first, last):
-        longest = max(longest, offsets[group_of[t] + 1] - offsets[group_of[t]])
-    scratch = np.empty(longest)
     for t in range(first, last):
         a, b = offsets[group_of[t]], offsets[group_of[t] + 1]
         tx, ty, tz = targets_t[t, 0], targets_t[t, 1], targets_t[t, 2]
-        for c in range(a, b):  # no branch: vectorised
+        used = 0
+        worst = 1.0 + 1e-12
+        for c in range(a, b):
+            if used == k and centre_distance[c] - half > worst + 1e-9:
+                break
             s = candidates[c]
             dx = samples_t[s, 0] - tx
             dy = samples_t[s, 1] - ty
             dz = samples_t[s, 2] - tz
-            scratch[c - a] = np.sqrt(dx * dx + dy * dy + dz * dz)
-        used = 0
-        worst = 1.0 + 1e-12
-        for c in range(a, b):
-            d = scratch[c - a]
+            d = np.sqrt(dx * dx + dy * dy + dz * dz)
             if d > worst or (skip_coincident and d <= 1e-12):
                 continue
-            s = candidates[c]
             if used == k and d == worst and s > out[t, k - 1]:
                 continue
             i = used if used < k else k - 1

@@ -228,6 +228,16 @@ def find_neighbours(
     dist = np.empty((m, kmax))
     count = np.empty(m, dtype=np.int64)
     if not limited:
+        centre_distance = np.empty(len(candidates))
+        run_split(
+            _neighbours.order_by_centre,
+            len(centres),
+            offsets,
+            candidates,
+            samples_t,
+            np.ascontiguousarray(centres),
+            centre_distance,
+        )
         run_split(
             _neighbours.nearest_in_groups,
             m,
@@ -237,6 +247,8 @@ def find_neighbours(
             samples_t,
             targets_t,
             bool(skip_coincident),
+            centre_distance,
+            float(half),
             out,
             dist,
             count,
