@@ -230,3 +230,54 @@ def test_bad_arguments(rng):
         bm.krige(pts, vals, targets, MODEL, SEARCH, method="simple")
     with pytest.raises(ValueError, match="min_samples"):
         bm.SearchEllipsoid((10, 10, 10), min_samples=5, max_samples=2)
+
+
+def _textbook_cholesky(a):
+    """Oracle: the inner-product Cholesky form, one entry at a time (C = U'U, U upper),
+    subtracting the products in increasing order and scaling by the pivot's reciprocal."""
+    n = len(a)
+    u = np.zeros_like(a)
+    for j in range(n):
+        s = a[j, j]
+        for p in range(j):
+            s -= u[p, j] * u[p, j]
+        u[j, j] = np.sqrt(s)
+        inv = 1.0 / u[j, j]
+        for i in range(j + 1, n):
+            s = a[j, i]
+            for p in range(j):
+                s -= u[p, j] * u[p, i]
+            u[j, i] = s * inv
+    return u
+
+
+@pytest.mark.parametrize("n", [1, 3, 4, 5, 8, 13, 24, 25, 31])
+def test_cholesky_by_panels_equals_the_textbook_form_bit_for_bit(rng, n):
+    """Oracle: the kernel's factor (panels of four pivots) equals the inner-product form
+    to the last bit, whatever n modulo four; several right-hand sides solved side by side
+    each equal the same one solved alone, and numpy's solve to 1e-10."""
+    from blockmodel.estimation import _kernels
+
+    x = rng.normal(size=(n, n))
+    a = x @ x.T + n * np.eye(n)
+    u = np.triu(a)
+    ratio = _kernels._cholesky(u)
+    assert ratio > 0.0
+    np.testing.assert_array_equal(np.triu(u), _textbook_cholesky(a))
+    rhs = rng.normal(size=(n, 5))
+    together = rhs.copy()
+    _kernels._cholesky_solve(u, together, 5)
+    for c in range(5):
+        alone = rhs[:, c : c + 1].copy()
+        _kernels._cholesky_solve(u, alone, 1)
+        np.testing.assert_array_equal(together[:, c], alone[:, 0])
+    np.testing.assert_allclose(together, np.linalg.solve(a, rhs), rtol=1e-10, atol=1e-12)
+
+
+def test_cholesky_reports_a_matrix_that_is_not_positive_definite():
+    """A pivot that is not positive (here the fifth, inside the second panel) gives 0."""
+    from blockmodel.estimation import _kernels
+
+    a = np.eye(6)
+    a[4, 4] = -1.0
+    assert _kernels._cholesky(a) == 0.0
