@@ -27,7 +27,7 @@ from blockmodel.variography.experimental import experimental_variogram
 MODEL = bm.VariogramModel(0.1, [bm.Structure("spherical", 0.9, (8.0, 8.0, 8.0), bm.Orientation())])
 
 
-def _small_plan(rng, shape=(12, 12, 2), n_data=10, model=MODEL, neighbours=50):
+def _small_plan(rng, shape=(12, 12, 2), n_data=10, model=MODEL, neighbours=50, mean_weights=None):
     """Nodes = blocks of 1 m on a small grid; data at node centres; scores N(0, 1)."""
     ijk = np.stack(np.meshgrid(*[np.arange(n) for n in shape], indexing="ij"), -1)
     ijk = ijk.reshape(-1, 3)
@@ -45,6 +45,7 @@ def _small_plan(rng, shape=(12, 12, 2), n_data=10, model=MODEL, neighbours=50):
         transform,
         (7,),
         neighbours=neighbours,
+        mean_weights=mean_weights,
     )
     return plan, data, scores
 
@@ -71,6 +72,82 @@ def test_simple_kriging_identity(rng):
     # the data are honoured exactly at their nodes (simple kriging is an exact interpolator)
     at = np.flatnonzero(np.isin(plan.targets, plan.data_nodes))
     np.testing.assert_allclose(ys[:, at].std(axis=0), 0.0, atol=1e-12)
+
+
+def test_simple_kriging_identity_with_an_uncertain_mean(rng):
+    """Each realisation draws its mean m_r ~ N(0, s_m^2) independently of its field, so
+    (conditioning as in Journel & Huijbregts 1978, §VII.C, with mean m_r) the ensemble mean
+    is still the simple-kriging estimate and the ensemble variance at a node is the
+    simple-kriging variance plus (1 - sum of its weights)^2 s_m^2.  s_m^2 is the variance
+    of the declustered mean at the data kept.  Tolerances as in the test above (R = 1000)."""
+    from blockmodel.simulation.mean_uncertainty import declustered_mean_variance
+
+    weights = rng.uniform(0.5, 2.0, 10)
+    plan, _, _ = _small_plan(rng, mean_weights=weights)
+    expected_sd = np.sqrt(
+        declustered_mean_variance(plan.nodes.centres(plan.data_nodes), weights, MODEL)
+    )
+    assert plan.mean_sd == pytest.approx(expected_sd, rel=1e-12) and plan.mean_sd > 0.1
+    R = 1000
+    ys = np.array([plan.realisation_scores(r) for r in range(R)])
+    sk = plan.weights.apply(plan.data_scores)
+    free_share = 1.0 - plan.weights.weights.sum(axis=1)
+    var = plan.weights.variance + free_share**2 * plan.mean_sd**2
+    free = var > 1e-9
+    z = (ys.mean(axis=0) - sk)[free] / np.sqrt(var[free] / R)
+    assert np.abs(z).max() < 4.5
+    rel = (ys.var(axis=0, ddof=1) - var)[free] / var[free]
+    assert np.abs(rel).max() < 4.5 * np.sqrt(2 / (R - 1))
+    # the nodes' errors share each realisation's mean: 0.02 is about 3 standard errors here
+    assert abs(rel.mean()) < 0.02
+    # the added variance is large enough here for the check to see it
+    assert (free_share[free] ** 2 * plan.mean_sd**2 / var[free]).max() > 0.2
+    at = np.flatnonzero(np.isin(plan.targets, plan.data_nodes))
+    np.testing.assert_allclose(ys[:, at].std(axis=0), 0.0, atol=1e-12)
+
+
+def test_variance_of_the_declustered_mean(rng):
+    """Reference: for n equally spaced values with correlation rho^|i - j| (an exponential
+    covariance along a line) the variance of their plain mean is
+    (1/n) (1 + rho) / (1 - rho) - 2 rho (1 - rho^n) / (n^2 (1 - rho)^2), the variance of
+    the mean of a first-order autoregressive series (e.g. Box, Jenkins & Reinsel, *Time
+    Series Analysis*; recalled from memory).  Oracle: w'Cw by a plain double loop on an
+    anisotropic nested model with a nugget and uneven weights, the same for 1 and 2
+    threads."""
+    from blockmodel.estimation import _threads
+    from blockmodel.simulation.mean_uncertainty import declustered_mean_variance
+
+    n, spacing, a = 60, 2.0, 30.0
+    line = np.column_stack([np.arange(n) * spacing, np.zeros(n), np.zeros(n)])
+    model = bm.VariogramModel(0.0, [bm.Structure("exponential", 1.0, (a, a, a))])
+    rho = np.exp(-3.0 * spacing / a)
+    expected = (1 + rho) / (1 - rho) / n - 2 * rho * (1 - rho**n) / (n**2 * (1 - rho) ** 2)
+    assert declustered_mean_variance(line, np.ones(n), model) == pytest.approx(expected, rel=1e-12)
+
+    o = bm.Orientation(30.0, 10.0, 0.0)
+    nested = bm.VariogramModel(
+        0.15,
+        [
+            bm.Structure("spherical", 0.5, (40, 20, 8), o),
+            bm.Structure("gaussian", 0.35, (90, 60, 30), o),
+        ],
+    )
+    pts = rng.uniform(0, 100, size=(300, 3))
+    w = rng.uniform(0.2, 3.0, 300)
+    wn = w / w.sum()
+    plain = 0.0
+    for i in range(300):
+        plain += wn[i] * float(np.dot(wn, nested.covariance(pts[i] - pts)))
+    before = _threads.threads()
+    try:
+        _threads.set_threads(1)
+        one = declustered_mean_variance(pts, w, nested)
+        _threads.set_threads(2)
+        two = declustered_mean_variance(pts, w, nested)
+    finally:
+        _threads.set_threads(before)
+    assert one == two
+    assert one == pytest.approx(plain, rel=1e-12)
 
 
 def test_realisations_reproduce_histogram_and_variogram(rng):
@@ -330,7 +407,7 @@ def test_reproduction_of_the_declustered_mean(rng):
     for name, rows, shift in (("near", np.arange(0, 25), 1.0), ("far", np.arange(25, 40), 1.2)):
         grades = rng.lognormal(0.0, 0.3, (len(rows), 30)) * shift
         by_key[f"{name}.au"] = DomainSimulation(
-            name, "au", None, "", None, rows, grades, 0, 0, mean, 0, 0, 0, {}
+            name, "au", None, "", None, rows, grades, 0, 0, mean, 0, 0, 0, 0.0, {}
         )
     units = MiningUnits(blocks, np.ones(3), np.ones(3, dtype=np.int64), (1, 1, 1))
     sim = Simulation(30, 1, np.array([0.0]), by_key, [], units, None)

@@ -325,6 +325,12 @@ class Simulation:
         high=20,
     )
     neighbours: int = setting(24, doc="data per node in the conditioning kriging", low=1)
+    mean_uncertainty: bool = setting(
+        True,
+        doc="each realisation draws its domain's mean normal score from the variance of "
+        "the declustered mean under the normal scores' model; false: the mean is known "
+        "and the bands leave out its uncertainty",
+    )
     model: str = setting(
         "fit",
         doc="the normal scores' variogram (sill 1) of a domain and grade not in "

@@ -27,7 +27,9 @@ __all__ = [
 CAUTION = (
     "The bands are the spread of the realisations under the stated model: one stationary "
     "Gaussian field per domain, this variogram of the normal scores, these tails and these "
-    "domain boundaries. They leave out the uncertainty of the geological interpretation, "
+    "domain boundaries. Each realisation draws its domain's mean from the uncertainty of "
+    "the declustered mean when simulation.mean_uncertainty is on (its standard deviation is "
+    "listed below). They leave out the uncertainty of the geological interpretation, "
     "the density, the variogram itself and the sampling and assaying, so the real "
     "uncertainty is wider. They are evidence for the qualified person's judgement of "
     "relative accuracy and confidence under the applicable reporting code, not a "
@@ -144,6 +146,9 @@ def render_simulation(
                 "sharing a node (dropped)": d.data_dropped,
                 "nodes": d.nodes,
                 "blocks with no node inside the solid": d.blocks_without_inside_nodes,
+                "mean's standard deviation (normal scores)": (
+                    round(d.mean_sd, 3) if d.mean_sd > 0 else "0 (known)"
+                ),
                 "FFT grid nodes": d.fft_cells,
                 "preparation (s)": d.timings["preparation"],
                 "realisations (s)": d.timings["realisations"],

@@ -5,8 +5,10 @@ data (weights computed once), back-transformed to grades and averaged to the blo
 The data are moved to the node they fall in (the nearest node of the regular node grid;
 where two share a node the nearest to its centre is kept), so the unconditional field is
 known at the data exactly and the realisations honour the data at those nodes.  Each
-realisation draws its noise from ``numpy.random.default_rng([seed, stream, r])``: it is
-the same whatever the order, batching, threads or machines that compute it.
+realisation draws its noise from ``numpy.random.default_rng([seed, stream, r])`` and,
+when the mean is uncertain (:mod:`blockmodel.simulation.mean_uncertainty`), its mean
+from ``default_rng([seed, stream, r, 1])``: it is the same whatever the order, batching,
+threads or machines that compute it.
 """
 
 from __future__ import annotations
@@ -18,6 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from blockmodel.simulation.conditioning import KrigingWeights, simple_kriging_weights
+from blockmodel.simulation.mean_uncertainty import declustered_mean_variance
 from blockmodel.simulation.spectral import SpectralSimulator
 from blockmodel.simulation.transform import GaussianTransform
 from blockmodel.variography.models import VariogramModel
@@ -73,6 +76,9 @@ class SimulationPlan:
         Data dropped because another datum was nearer the centre of their node.
     blocks_without_inside_nodes : int
         Blocks none of whose nodes passed ``inside`` (simulated on all their nodes).
+    mean_sd : float
+        Standard deviation of each realisation's mean normal score
+        (:mod:`blockmodel.simulation.mean_uncertainty`); 0: the mean is known.
     """
 
     nodes: NodeGrid
@@ -87,6 +93,7 @@ class SimulationPlan:
     seed: tuple[int, ...]
     relocated_dropped: int
     blocks_without_inside_nodes: int = 0
+    mean_sd: float = 0.0
 
     def realisation_scores(self, r: int, clock: dict | None = None) -> np.ndarray:
         """Conditioned normal scores at the targets in realisation ``r``: (m,).
@@ -97,6 +104,9 @@ class SimulationPlan:
         drawn = time.perf_counter()
         residual = self.data_scores - field[self.data_nodes]
         out = field[self.targets] + self.weights.apply(residual)
+        if self.mean_sd > 0.0:
+            mean = self.mean_sd * np.random.default_rng([*self.seed, r, 1]).standard_normal()
+            out += mean * (1.0 - self.weights.weights.sum(axis=1))
         if clock is not None:
             clock["unconditional"] = clock.get("unconditional", 0.0) + drawn - start
             clock["conditioning"] = clock.get("conditioning", 0.0) + time.perf_counter() - drawn
@@ -132,6 +142,7 @@ def plan_simulation(
     neighbours: int = 24,
     workers: int = 1,
     inside: Callable[[NodeGrid, np.ndarray], np.ndarray] | None = None,
+    mean_weights: np.ndarray | None = None,
 ) -> SimulationPlan:
     """Prepare the conditional simulation of one domain and grade.
 
@@ -159,6 +170,11 @@ def plan_simulation(
     inside : callable(nodes, flat) -> (m,) bool, optional
         Which nodes of the blocks lie in the domain (its solid); a block none of whose
         nodes lies in it keeps them all.  None: every node of every block.
+    mean_weights : (n,) float64, optional
+        Declustering weights of the data: each realisation then draws its mean normal
+        score with the variance of the declustered mean at the data kept
+        (:func:`~blockmodel.simulation.mean_uncertainty.declustered_mean_variance`).
+        None: the mean is known (zero).
 
     Returns
     -------
@@ -200,6 +216,10 @@ def plan_simulation(
         nodes.centres(flat[keep]), nodes.centres(targets), model, neighbours=neighbours
     )
     simulator = SpectralSimulator(shape, tuple(spacing), model, workers=workers)
+    mean_sd = 0.0
+    if mean_weights is not None:
+        kept = np.asarray(mean_weights, dtype=np.float64)[keep]
+        mean_sd = float(np.sqrt(declustered_mean_variance(nodes.centres(flat[keep]), kept, model)))
     return SimulationPlan(
         nodes,
         simulator,
@@ -213,6 +233,7 @@ def plan_simulation(
         tuple(int(s) for s in seed),
         len(data) - len(keep),
         empty,
+        mean_sd,
     )
 
 

@@ -122,6 +122,7 @@ def simulate(
             neighbours=s.neighbours,
             workers=1,
             inside=_inside(project, d.name, solids),
+            mean_weights=declustering.weights[own] if s.mean_uncertainty else None,
         )
         prepared = time.perf_counter()
         clock: dict[str, float] = {}
@@ -140,6 +141,7 @@ def simulate(
             len(values),
             plan.relocated_dropped,
             plan.blocks_without_inside_nodes,
+            plan.mean_sd,
             {
                 "preparation": round(prepared - start, 3),
                 "realisations": round(time.perf_counter() - prepared, 3),

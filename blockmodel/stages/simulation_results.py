@@ -50,6 +50,8 @@ class DomainSimulation:
     data_dropped : int
     blocks_without_inside_nodes : int
         Blocks of the domain none of whose nodes lies inside its solid.
+    mean_sd : float
+        Standard deviation of each realisation's mean normal score (0: the mean known).
     timings : dict
         Seconds: ``preparation`` (transform, variogram, kriging weights, spectrum),
         ``realisations`` (wall clock of all realisations) and, summed over threads (not on
@@ -70,6 +72,7 @@ class DomainSimulation:
     data: int
     data_dropped: int
     blocks_without_inside_nodes: int
+    mean_sd: float
     timings: dict[str, float]
 
 
