@@ -313,13 +313,15 @@ def _truth_in_the_bands(truth, sim, grade, cutoffs):
 
 @pytest.mark.slow
 @pytest.mark.xfail(
-    reason="not met on the demo (measured 2026-12-02): the lode's realisations average "
-    "+4 to +6 % over the truth (kriging +4 %; the declustered mean is right) and its bands "
-    "(metal CV 3 %) are narrower than that, so the truth lies below P10 above 1 g/t; the "
-    "lode's shoot (3.3 times its grade at the axis, drilled at 20 m against 40 m) is a "
-    "trend inside one stationary domain: with the shoot removed the lode meets the bar "
-    "(88 % of the points inside, 40 realisations); the halo's truth has "
-    "blocks above its largest capped composite, the default maximum",
+    reason="not met on the demo (measured 2026-12-03, 60 and 100 realisations, the mean's "
+    "uncertainty drawn): the lode's realisations average +6 % over the truth (kriging +4 %, "
+    "the declustered mean +1 %): the kriging weights favour the shoot's clustered "
+    "composites (the conditioned normal scores average +0.03 to +0.05 where the declustered "
+    "scores average 0), and the metal band at zero cut-off runs +1 to +11 %, so the truth "
+    "lies below P10; the lode's shoot (3.3 times its grade at the axis, drilled at 20 m "
+    "against 40 m) is a trend inside one stationary domain: with the shoot removed the lode "
+    "met the bar (88 % of the points inside, 40 realisations, 2026-12-02); the halo's truth "
+    "has blocks above its largest capped composite, the default maximum",
     strict=True,
 )
 def test_demo_truth_lies_in_the_bands(tmp_path):
@@ -349,10 +351,12 @@ def test_demo_truth_lies_in_the_bands(tmp_path):
         pytest.param(
             "pipe",
             marks=pytest.mark.xfail(
-                reason="not met (measured 2026-12-02, 100 realisations): 2 of the 4 points "
-                "inside; above the median cut-off the bands run +3 to +21 % (tonnes) and "
-                "+0 to +19 % (metal) over the truth, the kriged blocks +16 % and +8 %; the "
-                "realisations average +3 % over the declustered mean",
+                reason="not met (measured 2026-12-03, 100 realisations, the mean's "
+                "uncertainty drawn): 2 of the 4 points inside; above the median cut-off the "
+                "bands run +4 to +21 % (tonnes) and +0.3 to +19 % (metal) over the truth; "
+                "the normal-score model found in this small domain has ranges 43/35/17 m "
+                "where the truth's are 90/35/30 m (orientation found 11/16/-84 against "
+                "30/75/0), so its block grades vary more than the truth's",
                 strict=True,
             ),
         ),
