@@ -283,11 +283,34 @@ def order_by_centre(first, last, offsets, candidates, samples_t, centres, centre
             dy = samples_t[s, 1] - centres[g, 1]
             dz = samples_t[s, 2] - centres[g, 2]
             centre_distance[c] = np.sqrt(dx * dx + dy * dy + dz * dz)
-        rank = np.argsort(centre_distance[a:b])
-        sorted_candidates = candidates[a:b][rank]
-        sorted_distance = centre_distance[a:b][rank]
-        candidates[a:b] = sorted_candidates
-        centre_distance[a:b] = sorted_distance
+        _shell_sort(centre_distance, candidates, a, b)
+
+
+# gaps of the Shell sort (Ciura's sequence, extended by 2.25 times)
+_GAPS = np.array([1, 4, 10, 23, 57, 132, 301, 701, 1577, 3548, 7983, 17961, 40412, 90927])
+
+
+@njit(cache=_CACHE, inline="always")
+def _shell_sort(keys, items, lo, hi):
+    """Sort ``keys[lo:hi]`` ascending in place, moving ``items[lo:hi]`` with them (a hand
+    written sort: numba's own argsort costs seconds to compile)."""
+    n = hi - lo
+    g = 0
+    while g + 1 < _GAPS.shape[0] and _GAPS[g + 1] < n:
+        g += 1
+    while g >= 0:
+        gap = _GAPS[g]
+        for i in range(lo + gap, hi):
+            key = keys[i]
+            item = items[i]
+            j = i
+            while j - gap >= lo and keys[j - gap] > key:
+                keys[j] = keys[j - gap]
+                items[j] = items[j - gap]
+                j -= gap
+            keys[j] = key
+            items[j] = item
+        g -= 1
 
 
 @njit(cache=_CACHE, nogil=True)
