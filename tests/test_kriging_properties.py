@@ -254,8 +254,8 @@ def _textbook_cholesky(a):
 @pytest.mark.parametrize("n", [1, 3, 4, 5, 8, 13, 24, 25, 31])
 def test_cholesky_by_panels_equals_the_textbook_form_bit_for_bit(rng, n):
     """Oracle: the kernel's factor (panels of four pivots) equals the inner-product form
-    to the last bit, whatever n modulo four; several right-hand sides solved side by side
-    each equal the same one solved alone, and numpy's solve to 1e-10."""
+    to the last bit, whatever n modulo four; right-hand sides solved two at a time each
+    equal the same one solved alone, and numpy's solve to 1e-10."""
     from blockmodel.estimation import _kernels
 
     x = rng.normal(size=(n, n))
@@ -264,14 +264,14 @@ def test_cholesky_by_panels_equals_the_textbook_form_bit_for_bit(rng, n):
     ratio = _kernels._cholesky(u)
     assert ratio > 0.0
     np.testing.assert_array_equal(np.triu(u), _textbook_cholesky(a))
-    rhs = rng.normal(size=(n, 5))
+    rhs = rng.normal(size=(5, n))  # one right-hand side per row
     together = rhs.copy()
     _kernels._cholesky_solve(u, together, 5)
     for c in range(5):
-        alone = rhs[:, c : c + 1].copy()
+        alone = rhs[c : c + 1].copy()
         _kernels._cholesky_solve(u, alone, 1)
-        np.testing.assert_array_equal(together[:, c], alone[:, 0])
-    np.testing.assert_allclose(together, np.linalg.solve(a, rhs), rtol=1e-10, atol=1e-12)
+        np.testing.assert_array_equal(together[c], alone[0])
+    np.testing.assert_allclose(together.T, np.linalg.solve(a, rhs.T), rtol=1e-10, atol=1e-12)
 
 
 def test_cholesky_reports_a_matrix_that_is_not_positive_definite():

@@ -138,8 +138,8 @@ def _pivot(a, q, n):
 
 @njit(cache=_CACHE)
 def _cholesky(a):
-    """In-place upper Cholesky factor U (C = U'U) of a symmetric matrix given by its upper
-    triangle; returns the ratio of the smallest to the largest squared pivot (0 if not
+    """In-place upper Cholesky factor U (C = U'U) of a symmetric matrix given by the
+    upper triangle of ``a`` (k, >= k; columns past k are left alone); returns the ratio of the smallest to the largest squared pivot (0 if not
     positive definite).
 
     Right-looking, by panels of four pivots: each panel is factored alone, then the rows
@@ -182,38 +182,70 @@ def _cholesky(a):
 
 @njit(cache=_CACHE, inline="always")
 def _cholesky_solve(upper, b, columns):
-    """Solve U'U x = b in place for the first ``columns`` columns of b (k, >= columns), U
-    from :func:`_cholesky`.  The columns are solved side by side (the compiler vectorises
-    across them); each gets the same arithmetic as when solved alone."""
+    """Solve U'U x = b in place for the right-hand sides ``b[:columns]`` (each a row of
+    b, (>= columns, >= k)), U (k, >= k) from :func:`_cholesky`.  Two at a time, so the
+    back substitution runs two independent chains of products; each gets the same
+    arithmetic as when solved alone."""
+    c = 0
+    while c + 1 < columns:
+        _solve_pair(upper, b[c], b[c + 1])
+        c += 2
+    if c < columns:
+        _solve_one(upper, b[c])
+
+
+@njit(cache=_CACHE, inline="always")
+def _solve_one(upper, x):
+    n = upper.shape[0]
+    for p in range(n):
+        x[p] = x[p] / upper[p, p]
+        f = x[p]
+        for i in range(p + 1, n):
+            x[i] -= upper[p, i] * f
+    for i in range(n - 1, -1, -1):
+        s = x[i]
+        for p in range(i + 1, n):
+            s -= upper[i, p] * x[p]
+        x[i] = s / upper[i, i]
+
+
+@njit(cache=_CACHE, inline="always")
+def _solve_pair(upper, x, y):
     n = upper.shape[0]
     for p in range(n):
         d = upper[p, p]
-        for c in range(columns):
-            b[p, c] = b[p, c] / d
+        x[p] = x[p] / d
+        y[p] = y[p] / d
+        f = x[p]
+        g = y[p]
         for i in range(p + 1, n):
             u = upper[p, i]
-            for c in range(columns):
-                b[i, c] -= u * b[p, c]
+            x[i] -= u * f
+            y[i] -= u * g
     for i in range(n - 1, -1, -1):
+        s = x[i]
+        t = y[i]
         for p in range(i + 1, n):
             u = upper[i, p]
-            for c in range(columns):
-                b[i, c] -= u * b[p, c]
+            s -= u * x[p]
+            t -= u * y[p]
         d = upper[i, i]
-        for c in range(columns):
-            b[i, c] = b[i, c] / d
+        x[i] = s / d
+        y[i] = t / d
 
 
 @njit(cache=_CACHE, inline="always")
 def _add_correlation_row(kind, sill, x, y, z, j, k, row):
-    """Add ``sill`` times the correlation between reduced point j and points j + 1 .. k - 1
-    (coordinates x, y, z: (k,) each) to ``row[j + 1:k]``: one loop per kind, no branch in
-    it, so the compiler vectorises it."""
+    """Add ``sill`` times the correlation between reduced point j and points 0 .. k - 1
+    (coordinates x, y, z: (k,) each) to ``row[:k]``: one loop per kind, no branch in it,
+    so the compiler vectorises it.  The whole row, though only the part right of the
+    diagonal is used: a loop of fixed length from 0 runs about three times faster than
+    the shorter one from j + 1, and the entries used get the same arithmetic."""
     px = x[j]
     py = y[j]
     pz = z[j]
     if kind == 0:
-        for i in range(j + 1, k):
+        for i in range(k):
             dx = x[i] - px
             dy = y[i] - py
             dz = z[i] - pz
@@ -221,19 +253,19 @@ def _add_correlation_row(kind, sill, x, y, z, j, k, row):
             r = np.sqrt(r2c)
             row[i] += sill * (1.0 - r * (1.5 - 0.5 * r2c))
     elif kind == 1:
-        for i in range(j + 1, k):
+        for i in range(k):
             dx = x[i] - px
             dy = y[i] - py
             dz = z[i] - pz
             row[i] += sill * np.exp(-3.0 * np.sqrt(dx * dx + dy * dy + dz * dz))
     elif kind == 2:
-        for i in range(j + 1, k):
+        for i in range(k):
             dx = x[i] - px
             dy = y[i] - py
             dz = z[i] - pz
             row[i] += sill * np.exp(-3.0 * (dx * dx + dy * dy + dz * dz))
     else:
-        for i in range(j + 1, k):
+        for i in range(k):
             dx = x[i] - px
             dy = y[i] - py
             dz = z[i] - pz
@@ -368,16 +400,19 @@ def krige_groups(
     for st in range(n_struct):
         c0 += sills[st]
     kmax = neighbours.shape[1]
-    local = np.empty((n_struct, 3, kmax))
+    # rows of C padded to a multiple of four entries, so the row loops have no remainder
+    # (the padding's entries are computed from stale coordinates and never read)
+    local = np.zeros((n_struct, 3, -(-kmax // 4) * 4))
     scratch = np.empty(kmax)
-    work = np.empty((kmax, _BATCH + 1))  # right-hand sides solved together, by row
+    work = np.empty((_BATCH + 1, kmax))  # right-hand sides solved together, one per row
     cbars = np.empty((_BATCH, kmax))
     v = np.empty(kmax)
     tr = np.empty((n_struct, 3))
     for g in range(first, last):
         lead = order[group_starts[g]]
         k = counts[lead]
-        a = np.zeros((k, k))
+        width = -(-k // 4) * 4
+        a = np.zeros((k, width))
         idx = neighbours[lead, :k]
         # the neighbourhood's reduced coordinates, contiguous; the upper triangle of C
         for st in range(n_struct):
@@ -385,11 +420,11 @@ def krige_groups(
                 for i in range(k):
                     local[st, r, i] = samples_r[st, idx[i], r]
         for j in range(k):
-            a[j, j] = nugget + c0
             for st in range(n_struct):
                 _add_correlation_row(
-                    kinds[st], sills[st], local[st, 0], local[st, 1], local[st, 2], j, k, a[j]
+                    kinds[st], sills[st], local[st, 0], local[st, 1], local[st, 2], j, width, a[j]
                 )
+            a[j, j] = nugget + c0
         # C = U'U once per group. Ordinary kriging by the Schur complement of the bordered
         # system: C u = cbar, C v = 1, mu = (1'u - 1) / 1'v, lambda = u - mu v; v is solved
         # with the group's first batch of targets, all in one pass
@@ -402,7 +437,7 @@ def krige_groups(
             shift = 1 if start == lo and not simple else 0
             if shift:
                 for i in range(k):
-                    work[i, 0] = 1.0
+                    work[0, i] = 1.0
             for t in range(start, stop):
                 b = order[t]
                 cbar = cbars[t - start]
@@ -423,14 +458,14 @@ def krige_groups(
                     cbar,
                 )
                 for i in range(k):
-                    work[i, shift + t - start] = cbar[i]
+                    work[shift + t - start, i] = cbar[i]
                 ill_conditioned[b] = ratio < condition_limit
             if ratio == 0.0:
                 continue
             _cholesky_solve(a, work, shift + stop - start)
             if shift:
                 for i in range(k):
-                    v[i] = work[i, 0]
+                    v[i] = work[0, i]
                     sum_v += v[i]
             for t in range(start, stop):
                 b = order[t]
@@ -440,17 +475,17 @@ def krige_groups(
                 if not simple:
                     sum_u = 0.0
                     for i in range(k):
-                        sum_u += work[i, col]
+                        sum_u += work[col, i]
                     mu = (sum_u - 1.0) / sum_v
                     for i in range(k):
-                        work[i, col] -= mu * v[i]
+                        work[col, i] -= mu * v[i]
                 est = 0.0
                 lc = 0.0
                 wsum = 0.0
                 neg = 0.0
                 n_neg = 0.0
                 for i in range(k):
-                    w = work[i, col]
+                    w = work[col, i]
                     wsum += w
                     lc += w * cbar[i]
                     if w < 0.0:
