@@ -139,8 +139,8 @@ def _pivot(a, q, n):
 @njit(cache=_CACHE)
 def _cholesky(a):
     """In-place upper Cholesky factor U (C = U'U) of a symmetric matrix given by the
-    upper triangle of ``a`` (k, >= k; columns past k are left alone); returns the ratio of the smallest to the largest squared pivot (0 if not
-    positive definite).
+    upper triangle of ``a`` (k, >= k; columns past k are left alone); returns the ratio
+    of the smallest to the largest squared pivot (0 if not positive definite).
 
     Right-looking, by panels of four pivots: each panel is factored alone, then the rows
     below it receive the panel's four updates in one pass along contiguous rows (the
@@ -196,6 +196,7 @@ def _cholesky_solve(upper, b, columns):
 
 @njit(cache=_CACHE, inline="always")
 def _solve_one(upper, x):
+    """Solve U'U x = b in place for one right-hand side x (k,)."""
     n = upper.shape[0]
     for p in range(n):
         x[p] = x[p] / upper[p, p]
@@ -211,6 +212,7 @@ def _solve_one(upper, x):
 
 @njit(cache=_CACHE, inline="always")
 def _solve_pair(upper, x, y):
+    """Solve U'U x = b for two right-hand sides x and y (k,) in place, interleaved."""
     n = upper.shape[0]
     for p in range(n):
         d = upper[p, p]

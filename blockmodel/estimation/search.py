@@ -188,8 +188,9 @@ def find_neighbours(
     ``d_k(c) + 2 r`` of c, ``d_k(c)`` being the distance of c's k-th nearest sample: a
     target t of the cell has its k nearest within ``d_k(c) + r`` of itself (triangle
     inequality), so within ``d_k(c) + 2 r`` of c.  With limits the list holds every sample
-    within reach of the cell (``1 + r``).  Either way the result equals a brute-force
-    search over all samples.
+    within reach of the cell (``1 + r``); without limits the list is sorted by distance
+    from c, so each target stops once no later candidate can be nearer.  Either way the
+    result equals a brute-force search over all samples.
 
     Parameters
     ----------
