@@ -163,11 +163,21 @@ def select_in_groups(
     """
     n = hole_of.shape[0]
     k_max = out.shape[1]
+    longest = 0
+    for t in range(first, last):
+        longest = max(longest, offsets[group_of[t] + 1] - offsets[group_of[t]])
+    # work arrays for the longest candidate list, reused by every target
+    dist = np.empty(longest)
+    near = np.empty(longest, dtype=np.int64)
+    order = np.empty(longest, dtype=np.int64)
+    starts = np.empty(longest + 1, dtype=np.int64)
+    bucket = np.empty(longest, dtype=np.int64)
+    holes_seen = np.empty(k_max, dtype=np.int64)
+    holes_count = np.empty(k_max, dtype=np.int64)
+    octant_count = np.empty(8, dtype=np.int64)
     for t in range(first, last):
         g = group_of[t]
         a, b = offsets[g], offsets[g + 1]
-        dist = np.empty(b - a)
-        near = np.empty(b - a, dtype=np.int64)
         k = 0
         for c in range(a, b):
             s = candidates[c]
@@ -179,14 +189,12 @@ def select_in_groups(
                 dist[k] = d
                 near[k] = s
                 k += 1
-        order, starts = _buckets_by_volume(dist, k)
-        holes_seen = np.full(k_max, -1, dtype=np.int64)
-        holes_count = np.zeros(k_max, dtype=np.int64)
+        _buckets_by_volume(dist, k, order, starts, bucket)
         n_seen = 0
-        octant_count = np.zeros(8, dtype=np.int64)
+        octant_count[:] = 0
         used = 0
-        for bucket in range(len(starts) - 1):
-            lo, hi = starts[bucket], starts[bucket + 1]
+        for b_i in range(k):
+            lo, hi = starts[b_i], starts[b_i + 1]
             _sort_bucket(order, lo, hi, dist, near)
             for c in range(lo, hi):
                 s = near[order[c]]
@@ -235,24 +243,26 @@ def select_in_groups(
 
 
 @njit(cache=_CACHE, inline="always")
-def _buckets_by_volume(dist, k):
+def _buckets_by_volume(dist, k, order, starts, bucket):
     """Positions 0 .. k - 1 of ``dist`` (all in [0, 1 + 1e-12]) placed in k buckets by
-    ``floor(k d^3)``, which never puts a larger distance in an earlier bucket; returns the
-    positions by bucket and the (k + 1,) bucket starts."""
-    starts = np.zeros(k + 1, dtype=np.int64)
-    bucket = np.empty(k, dtype=np.int64)
+    ``floor(k d^3)``, which never puts a larger distance in an earlier bucket: the
+    positions by bucket into ``order[:k]``, the bucket starts into ``starts[:k + 1]``
+    (``bucket``: work space of k)."""
+    for j in range(k + 1):
+        starts[j] = 0
     for i in range(k):
         d = dist[i]
         bucket[i] = min(int(d * d * d * k), k - 1)
         starts[bucket[i] + 1] += 1
     for j in range(k):
         starts[j + 1] += starts[j]
-    fill = starts[:k].copy()
-    order = np.empty(k, dtype=np.int64)
+    # fill each bucket from its start, then step the starts back one bucket
     for i in range(k):
-        order[fill[bucket[i]]] = i
-        fill[bucket[i]] += 1
-    return order, starts
+        order[starts[bucket[i]]] = i
+        starts[bucket[i]] += 1
+    for j in range(k, 0, -1):
+        starts[j] = starts[j - 1]
+    starts[0] = 0
 
 
 @njit(cache=_CACHE, inline="always")
