@@ -172,8 +172,12 @@ def select_in_groups(
     order = np.empty(longest, dtype=np.int64)
     starts = np.empty(longest + 1, dtype=np.int64)
     bucket = np.empty(longest, dtype=np.int64)
-    holes_seen = np.empty(k_max, dtype=np.int64)
-    holes_count = np.empty(k_max, dtype=np.int64)
+    # samples chosen per hole code for the current target (valid where stamped with it)
+    n_holes = 0
+    for s in range(n):
+        n_holes = max(n_holes, hole_of[s] + 1)
+    hole_stamp = np.full(n_holes, -1, dtype=np.int64)
+    hole_count = np.empty(n_holes, dtype=np.int64)
     octant_count = np.empty(8, dtype=np.int64)
     for t in range(first, last):
         g = group_of[t]
@@ -190,7 +194,6 @@ def select_in_groups(
                 near[k] = s
                 k += 1
         _buckets_by_volume(dist, k, order, starts, bucket)
-        n_seen = 0
         octant_count[:] = 0
         used = 0
         for b_i in range(k):
@@ -199,14 +202,8 @@ def select_in_groups(
             for c in range(lo, hi):
                 s = near[order[c]]
                 h = hole_of[s]
-                pos = -1
-                if max_per_hole > 0:
-                    for u in range(n_seen):
-                        if holes_seen[u] == h:
-                            pos = u
-                            break
-                    if pos >= 0 and holes_count[pos] >= max_per_hole:
-                        continue
+                if max_per_hole > 0 and hole_stamp[h] == t and hole_count[h] >= max_per_hole:
+                    continue
                 octant = 0
                 if samples_t[s, 0] - targets_t[t, 0] < 0.0:
                     octant += 1
@@ -218,12 +215,11 @@ def select_in_groups(
                     continue
                 octant_count[octant] += 1
                 if max_per_hole > 0:
-                    if pos >= 0:
-                        holes_count[pos] += 1
+                    if hole_stamp[h] == t:
+                        hole_count[h] += 1
                     else:
-                        holes_seen[n_seen] = h
-                        holes_count[n_seen] = 1
-                        n_seen += 1
+                        hole_stamp[h] = t
+                        hole_count[h] = 1
                 out[t, used] = s
                 distance[t, used] = dist[order[c]]
                 used += 1
