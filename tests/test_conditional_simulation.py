@@ -91,7 +91,7 @@ def test_simple_kriging_identity_with_an_uncertain_mean(rng):
     R = 1000
     ys = np.array([plan.realisation_scores(r) for r in range(R)])
     sk = plan.weights.apply(plan.data_scores)
-    free_share = 1.0 - plan.weights.weights.sum(axis=1)
+    free_share = 1.0 - plan.weights.weights.sum(axis=1)  # recomputed here, not read
     var = plan.weights.variance + free_share**2 * plan.mean_sd**2
     free = var > 1e-9
     z = (ys.mean(axis=0) - sk)[free] / np.sqrt(var[free] / R)

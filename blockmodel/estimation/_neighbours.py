@@ -131,6 +131,7 @@ def select_in_groups(
     samples_t,
     targets_t,
     hole_of,
+    n_holes,
     max_per_hole,
     max_per_octant,
     skip_coincident,
@@ -154,6 +155,7 @@ def select_in_groups(
         (every sample within reach of any target of the group)
     samples_t, targets_t : (n, 3), (m, 3) float64, the search frame
     hole_of : (n,) int64, hole code of each sample
+    n_holes : int, more than the largest hole code
     max_per_hole, max_per_octant : int (<= 0 means no limit)
     skip_coincident : bool, leave out a sample at the target itself
     out : (m, k) int64, chosen indices (written), padded with n
@@ -173,9 +175,6 @@ def select_in_groups(
     starts = np.empty(longest + 1, dtype=np.int64)
     bucket = np.empty(longest, dtype=np.int64)
     # samples chosen per hole code for the current target (valid where stamped with it)
-    n_holes = 0
-    for s in range(n):
-        n_holes = max(n_holes, hole_of[s] + 1)
     hole_stamp = np.full(n_holes, -1, dtype=np.int64)
     hole_count = np.empty(n_holes, dtype=np.int64)
     octant_count = np.empty(8, dtype=np.int64)

@@ -268,6 +268,7 @@ def find_neighbours(
         samples_t,
         targets_t,
         holes,
+        int(holes.max()) + 1 if n else 0,
         int(search.max_per_hole or 0),
         int(search.max_per_octant or 0),
         bool(skip_coincident),

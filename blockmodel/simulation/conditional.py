@@ -106,7 +106,7 @@ class SimulationPlan:
         out = field[self.targets] + self.weights.apply(residual)
         if self.mean_sd > 0.0:
             mean = self.mean_sd * np.random.default_rng([*self.seed, r, 1]).standard_normal()
-            out += mean * (1.0 - self.weights.weights.sum(axis=1))
+            out += mean * self.weights.mean_share
         if clock is not None:
             clock["unconditional"] = clock.get("unconditional", 0.0) + drawn - start
             clock["conditioning"] = clock.get("conditioning", 0.0) + time.perf_counter() - drawn

@@ -34,11 +34,14 @@ class KrigingWeights:
     weights : (m, k) float64
     variance : (m,) float64
         Simple-kriging variance (units of the model's sill).
+    mean_share : (m,) float64
+        ``1 - sum of the weights``: the share of each node left to the mean.
     """
 
     index: np.ndarray
     weights: np.ndarray
     variance: np.ndarray
+    mean_share: np.ndarray
 
     def apply(self, data: np.ndarray) -> np.ndarray:
         """Simple-kriging estimates (zero mean) from ``data`` ((n,) or (n, r) float64):
@@ -110,4 +113,4 @@ def simple_kriging_weights(
         index[start : start + len(part)] = near
         weights[start : start + len(part)] = w
         variance[start : start + len(part)] = sill - np.einsum("pk,pk->p", w, rhs)
-    return KrigingWeights(index, weights, variance)
+    return KrigingWeights(index, weights, variance, 1.0 - weights.sum(axis=1))
