@@ -27,12 +27,25 @@ from blockmodel.variography.experimental import experimental_variogram
 MODEL = bm.VariogramModel(0.1, [bm.Structure("spherical", 0.9, (8.0, 8.0, 8.0), bm.Orientation())])
 
 
-def _small_plan(rng, shape=(12, 12, 2), n_data=10, model=MODEL, neighbours=50, mean_weights=None):
-    """Nodes = blocks of 1 m on a small grid; data at node centres; scores N(0, 1)."""
+def _small_plan(
+    rng,
+    shape=(12, 12, 2),
+    n_data=10,
+    model=MODEL,
+    neighbours=50,
+    weights=None,
+    *,
+    mean_uncertainty=False,
+    local_mean_window=0.0,
+    trend=0.0,
+    spread=1.0,
+):
+    """Nodes = blocks of 1 m on a small grid; data at node centres; scores N(0, 1) times
+    ``spread`` plus ``trend`` times x / 12."""
     ijk = np.stack(np.meshgrid(*[np.arange(n) for n in shape], indexing="ij"), -1)
     ijk = ijk.reshape(-1, 3)
     data = ijk[rng.choice(len(ijk), n_data, replace=False)] + 0.5
-    scores = rng.standard_normal(n_data)
+    scores = spread * rng.standard_normal(n_data) + trend * data[:, 0] / 12.0
     _, transform = gaussian_transform(rng.lognormal(size=50), np.ones(50))
     plan = plan_simulation(
         ijk,
@@ -45,7 +58,9 @@ def _small_plan(rng, shape=(12, 12, 2), n_data=10, model=MODEL, neighbours=50, m
         transform,
         (7,),
         neighbours=neighbours,
-        mean_weights=mean_weights,
+        weights=weights,
+        mean_uncertainty=mean_uncertainty,
+        local_mean_window=local_mean_window,
     )
     return plan, data, scores
 
@@ -83,7 +98,7 @@ def test_simple_kriging_identity_with_an_uncertain_mean(rng):
     from blockmodel.simulation.mean_uncertainty import declustered_mean_variance
 
     weights = rng.uniform(0.5, 2.0, 10)
-    plan, _, _ = _small_plan(rng, mean_weights=weights)
+    plan, _, _ = _small_plan(rng, weights=weights, mean_uncertainty=True)
     expected_sd = np.sqrt(
         declustered_mean_variance(plan.nodes.centres(plan.data_nodes), weights, MODEL)
     )
@@ -104,6 +119,89 @@ def test_simple_kriging_identity_with_an_uncertain_mean(rng):
     assert (free_share[free] ** 2 * plan.mean_sd**2 / var[free]).max() > 0.2
     at = np.flatnonzero(np.isin(plan.targets, plan.data_nodes))
     np.testing.assert_allclose(ys[:, at].std(axis=0), 0.0, atol=1e-12)
+
+
+def test_simple_kriging_identity_with_a_local_mean(rng):
+    """Simple kriging with varying local means (Goovaerts 1997, chapter 6; recalled from
+    memory) conditioning a field of the residuals' variance s^2: the ensemble mean at a
+    node is m(u) + the simple-kriging estimate of the residuals y - m, the ensemble
+    variance s^2 times the simple-kriging variance (Journel & Huijbregts 1978, §VII.C,
+    applied to the residuals).  m and s are recomputed here by a plain loop over the data
+    (kernel weight times declustering weight, window 0.4 of the 8 m ranges, cut at 4
+    windows).  Tolerances as in the identity tests above (R = 1000)."""
+    weights = rng.uniform(0.5, 2.0, 30)
+    plan, _, _ = _small_plan(
+        rng, n_data=30, weights=weights, local_mean_window=0.4, trend=3.0, spread=0.5
+    )
+    kept = plan.nodes.centres(plan.data_nodes)
+    assert len(kept) == 30  # no two data share a node here
+
+    def plain(u):
+        d2 = (((u - kept) / 8.0) ** 2).sum(axis=1) / 0.4**2
+        k = np.where(d2 <= 16.0, weights * np.exp(-0.5 * d2), 0.0)
+        return (k * plan.data_scores).sum() / k.sum()
+
+    targets = plan.nodes.centres(plan.targets)
+    np.testing.assert_allclose(plan.target_mean, [plain(u) for u in targets], atol=1e-12)
+    np.testing.assert_allclose(plan.data_mean, [plain(u) for u in kept], atol=1e-12)
+    residual = plan.data_scores - plan.data_mean
+    s = np.sqrt(np.sum(weights * residual**2) / weights.sum())
+    assert plan.residual_sd == pytest.approx(s, rel=1e-12)
+    # the trend is real here: the local mean spans more than the residuals' spread, and
+    # their variance is far enough from 1 for the variance check to see it
+    assert np.ptp(plan.target_mean) > 2 * s and s < 0.7
+    R = 1000
+    ys = np.array([plan.realisation_scores(r) for r in range(R)])
+    expected = plan.target_mean + plan.weights.apply(residual)
+    var = s**2 * plan.weights.variance
+    free = var > 1e-9
+    z = (ys.mean(axis=0) - expected)[free] / np.sqrt(var[free] / R)
+    assert np.abs(z).max() < 4.5
+    rel = (ys.var(axis=0, ddof=1) - var)[free] / var[free]
+    assert np.abs(rel).max() < 4.5 * np.sqrt(2 / (R - 1))
+    assert abs(rel.mean()) < 0.01
+    at = np.flatnonzero(np.isin(plan.targets, plan.data_nodes))
+    np.testing.assert_allclose(ys[:, at].std(axis=0), 0.0, atol=1e-12)
+
+
+def test_kernel_mean_equals_a_plain_loop(rng):
+    """Oracle: the cell-sorted kernel average equals a plain loop over every datum, in a
+    rotated anisotropic frame, for points at a datum, near the data and beyond the cut
+    (those take the weighted mean of all the data), with 1 and 2 threads."""
+    from blockmodel.estimation import _threads
+    from blockmodel.simulation.local_mean import CUT, kernel_mean
+
+    data = rng.uniform(0.0, 100.0, (400, 3))
+    values = rng.standard_normal(400)
+    w = rng.uniform(0.2, 3.0, 400)
+    points = rng.uniform(-60.0, 160.0, (3000, 3))
+    points[:7] = data[:7]
+    metric = bm.Structure("spherical", 1.0, (60.0, 25.0, 10.0), bm.Orientation(35, 20, -10))
+    metric = metric.transform()
+    window = 0.3
+    plain = np.empty(len(points))
+    for i, u in enumerate(points):
+        d2 = (((u - data) @ metric.T) ** 2).sum(axis=1) / window**2
+        k = np.where(d2 <= CUT**2, w * np.exp(-0.5 * d2), 0.0)
+        plain[i] = (k * values).sum() / k.sum() if k.sum() > 0 else np.average(values, weights=w)
+    outside = np.array([np.isclose(p, np.average(values, weights=w)) for p in plain]).sum()
+    assert 50 < outside < len(points) - 50  # both kinds of point are checked
+    before = _threads.threads()
+    try:
+        _threads.set_threads(1)
+        one = kernel_mean(data, values, w, points, metric, window)
+        _threads.set_threads(2)
+        two = kernel_mean(data, values, w, points, metric, window)
+    finally:
+        _threads.set_threads(before)
+    np.testing.assert_array_equal(one, two)
+    np.testing.assert_allclose(one, plain, rtol=0, atol=1e-12)
+
+
+def test_a_local_mean_needs_a_structure(rng):
+    """A pure-nugget model has no ranges to scale the local mean's window by."""
+    with pytest.raises(ValueError, match="structure"):
+        _small_plan(rng, model=bm.VariogramModel(1.0, []), local_mean_window=0.5)
 
 
 def test_variance_of_the_declustered_mean(rng):

@@ -331,6 +331,14 @@ class Simulation:
         "the declustered mean under the normal scores' model; false: the mean is known "
         "and the bands leave out its uncertainty",
     )
+    local_mean_window: float = setting(
+        0.0,
+        doc="0: each domain's mean is one number (stationary); positive: the mean of the "
+        "normal scores varies locally (a trend, e.g. a high-grade shoot inside a domain), "
+        "a Gaussian-kernel average of the declustered scores whose window is this "
+        "fraction of the ranges of the normal scores' longest structure",
+        low=0.0,
+    )
     model: str = setting(
         "fit",
         doc="the normal scores' variogram (sill 1) of a domain and grade not in "

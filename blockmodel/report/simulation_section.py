@@ -115,11 +115,18 @@ def render_simulation(
             "share of its tonnes. The change-of-support curve is drawn for that unit too; "
             "the kriged curve is that of the model's blocks, a larger support."
         )
+    mean = ""
+    if s.local_mean_window > 0:
+        mean = (
+            "about a locally varying mean (a Gaussian-kernel average of the declustered "
+            f"scores, window {s.local_mean_window:g} of the longest structure's ranges; its "
+            "residuals keep the model's correlation, scaled to their variance), "
+        )
     report.paragraph(
         f"{sim.realisations} realisations (seed {sim.seed}) per domain and grade. Normal "
         "scores of the declustered composites; an unconditional Gaussian field on nodes "
         f"{spacing} m apart, made by the spectral (FFT) method, "
-        f"conditioned by simple kriging of its residuals from the {s.neighbours} nearest "
+        f"{mean}conditioned by simple kriging of its residuals from the {s.neighbours} nearest "
         "composites of the domain (hard boundaries; each composite moved to the node it "
         "falls in); back-transformed to grades (lower tail linear to "
         f"{s.minimum:g}, upper tail {tail} up to the maximum below) and averaged over each "
@@ -146,6 +153,11 @@ def render_simulation(
                 "sharing a node (dropped)": d.data_dropped,
                 "nodes": d.nodes,
                 "blocks with no node inside the solid": d.blocks_without_inside_nodes,
+                "mean (normal scores)": (
+                    "one number"
+                    if s.local_mean_window == 0
+                    else f"local; residual standard deviation {d.residual_sd:.2f}"
+                ),
                 "mean's standard deviation (normal scores)": (
                     round(d.mean_sd, 3) if d.mean_sd > 0 else "0 (known)"
                 ),

@@ -4,7 +4,9 @@ data (weights computed once), back-transformed to grades and averaged to the blo
 
 The data are moved to the node they fall in (the nearest node of the regular node grid;
 where two share a node the nearest to its centre is kept), so the unconditional field is
-known at the data exactly and the realisations honour the data at those nodes.  Each
+known at the data exactly and the realisations honour the data at those nodes.  The mean
+is the declustered one (zero in normal scores) or, in a domain with a trend, a locally
+varying one (:mod:`blockmodel.simulation.local_mean`).  Each
 realisation draws its noise from ``numpy.random.default_rng([seed, stream, r])`` and,
 when the mean is uncertain (:mod:`blockmodel.simulation.mean_uncertainty`), its mean
 from ``default_rng([seed, stream, r, 1])``: it is the same whatever the order, batching,
@@ -20,6 +22,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from blockmodel.simulation.conditioning import KrigingWeights, simple_kriging_weights
+from blockmodel.simulation.local_mean import local_mean
 from blockmodel.simulation.mean_uncertainty import declustered_mean_variance
 from blockmodel.simulation.spectral import SpectralSimulator
 from blockmodel.simulation.transform import GaussianTransform
@@ -79,6 +82,11 @@ class SimulationPlan:
     mean_sd : float
         Standard deviation of each realisation's mean normal score
         (:mod:`blockmodel.simulation.mean_uncertainty`); 0: the mean is known.
+    data_mean, target_mean : (n,) and (m,) float64, or None
+        The local mean of the normal scores at the data and the targets
+        (:mod:`blockmodel.simulation.local_mean`); None: zero everywhere.
+    residual_sd : float
+        Standard deviation of the scores about their mean: the unconditional field's.
     """
 
     nodes: NodeGrid
@@ -94,6 +102,9 @@ class SimulationPlan:
     relocated_dropped: int
     blocks_without_inside_nodes: int = 0
     mean_sd: float = 0.0
+    data_mean: np.ndarray | None = None
+    target_mean: np.ndarray | None = None
+    residual_sd: float = 1.0
 
     def realisation_scores(self, r: int, clock: dict | None = None) -> np.ndarray:
         """Conditioned normal scores at the targets in realisation ``r``: (m,).
@@ -101,9 +112,15 @@ class SimulationPlan:
         conditioning."""
         start = time.perf_counter()
         field = self.simulator.draw(np.random.default_rng([*self.seed, r])).ravel()
+        if self.residual_sd != 1.0:
+            field *= self.residual_sd
         drawn = time.perf_counter()
         residual = self.data_scores - field[self.data_nodes]
+        if self.data_mean is not None:
+            residual -= self.data_mean
         out = field[self.targets] + self.weights.apply(residual)
+        if self.target_mean is not None:
+            out += self.target_mean
         if self.mean_sd > 0.0:
             mean = self.mean_sd * np.random.default_rng([*self.seed, r, 1]).standard_normal()
             out += mean * self.weights.mean_share
@@ -142,7 +159,9 @@ def plan_simulation(
     neighbours: int = 24,
     workers: int = 1,
     inside: Callable[[NodeGrid, np.ndarray], np.ndarray] | None = None,
-    mean_weights: np.ndarray | None = None,
+    weights: np.ndarray | None = None,
+    mean_uncertainty: bool = False,
+    local_mean_window: float = 0.0,
 ) -> SimulationPlan:
     """Prepare the conditional simulation of one domain and grade.
 
@@ -170,11 +189,17 @@ def plan_simulation(
     inside : callable(nodes, flat) -> (m,) bool, optional
         Which nodes of the blocks lie in the domain (its solid); a block none of whose
         nodes lies in it keeps them all.  None: every node of every block.
-    mean_weights : (n,) float64, optional
-        Declustering weights of the data: each realisation then draws its mean normal
-        score with the variance of the declustered mean at the data kept
-        (:func:`~blockmodel.simulation.mean_uncertainty.declustered_mean_variance`).
-        None: the mean is known (zero).
+    weights : (n,) float64, optional
+        Declustering weights of the data; None: equal.
+    mean_uncertainty : bool
+        Each realisation draws its mean normal score with the variance of the declustered
+        mean at the data kept
+        (:func:`~blockmodel.simulation.mean_uncertainty.declustered_mean_variance`, under
+        the residuals' model); false: the mean is known.
+    local_mean_window : float
+        Positive: the mean varies locally, a kernel average of the declustered scores
+        with a window of this fraction of the longest structure's ranges
+        (:func:`~blockmodel.simulation.local_mean.local_mean`); 0: the mean is zero.
 
     Returns
     -------
@@ -212,14 +237,24 @@ def plan_simulation(
         keep_node |= (per_block == 0)[target_block]
         empty = int((per_block == 0).sum())
         targets, target_block = targets[keep_node], target_block[keep_node]
-    weights = simple_kriging_weights(
-        nodes.centres(flat[keep]), nodes.centres(targets), model, neighbours=neighbours
-    )
+    at_data = nodes.centres(flat[keep])
+    at_targets = nodes.centres(targets)
+    kept_scores = np.asarray(scores, dtype=np.float64)[keep]
+    if weights is None:
+        weights = np.ones(len(data))
+    kept_weights = np.asarray(weights, dtype=np.float64)[keep]
+    kriging = simple_kriging_weights(at_data, at_targets, model, neighbours=neighbours)
     simulator = SpectralSimulator(shape, tuple(spacing), model, workers=workers)
+    local = None
+    if local_mean_window > 0.0:
+        if not model.structures:
+            raise ValueError("a local mean needs a model with a structure (its ranges)")
+        local = local_mean(at_data, kept_scores, kept_weights, at_targets, model, local_mean_window)
+    residual_sd = 1.0 if local is None else local.residual_sd
     mean_sd = 0.0
-    if mean_weights is not None:
-        kept = np.asarray(mean_weights, dtype=np.float64)[keep]
-        mean_sd = float(np.sqrt(declustered_mean_variance(nodes.centres(flat[keep]), kept, model)))
+    if mean_uncertainty:
+        variance = declustered_mean_variance(at_data, kept_weights, model)
+        mean_sd = residual_sd * float(np.sqrt(variance))
     return SimulationPlan(
         nodes,
         simulator,
@@ -227,13 +262,16 @@ def plan_simulation(
         target_block,
         np.bincount(target_block, minlength=len(blocks)),
         flat[keep],
-        np.asarray(scores, dtype=np.float64)[keep],
-        weights,
+        kept_scores,
+        kriging,
         transform,
         tuple(int(s) for s in seed),
         len(data) - len(keep),
         empty,
         mean_sd,
+        None if local is None else local.at_data,
+        None if local is None else local.at_targets,
+        residual_sd,
     )
 
 

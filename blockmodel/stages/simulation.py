@@ -109,6 +109,13 @@ def simulate(
         model, source = normal_score_model(
             project, composites[own], declustering.weights[own], variography[key]
         )
+        if s.local_mean_window > 0.0 and not model.structures:
+            raise setting_error(
+                project.source,
+                "simulation.local_mean_window",
+                f"the normal scores' model of {key} is a pure nugget: no ranges to scale "
+                "the window by",
+            )
         plan = plan_simulation(
             table.iloc[rows][["i", "j", "k"]].to_numpy(np.int64),
             np.asarray(grid_origin, dtype=float),
@@ -122,7 +129,9 @@ def simulate(
             neighbours=s.neighbours,
             workers=1,
             inside=_inside(project, d.name, solids),
-            mean_weights=declustering.weights[own] if s.mean_uncertainty else None,
+            weights=declustering.weights[own],
+            mean_uncertainty=s.mean_uncertainty,
+            local_mean_window=s.local_mean_window,
         )
         prepared = time.perf_counter()
         clock: dict[str, float] = {}
@@ -147,6 +156,7 @@ def simulate(
                 "realisations": round(time.perf_counter() - prepared, 3),
                 **{k: round(v, 3) for k, v in clock.items()},
             },
+            plan.residual_sd,
         )
     cutoffs = np.asarray(project.report.cutoffs, dtype=float)
     support = support_curves(

@@ -57,6 +57,9 @@ class DomainSimulation:
         ``realisations`` (wall clock of all realisations) and, summed over threads (not on
         a cluster), its parts ``unconditional`` (spectral fields), ``conditioning``
         (kriged residuals) and ``to_blocks`` (back-transform, block averages).
+    residual_sd : float
+        Standard deviation of the normal scores about a locally varying mean; 1: the mean
+        is one number.
     """
 
     domain: str
@@ -74,6 +77,7 @@ class DomainSimulation:
     blocks_without_inside_nodes: int
     mean_sd: float
     timings: dict[str, float]
+    residual_sd: float = 1.0
 
 
 @dataclass(frozen=True)
