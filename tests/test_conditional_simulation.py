@@ -409,37 +409,50 @@ def _truth_in_the_bands(truth, sim, grade, cutoffs):
     return out
 
 
-@pytest.mark.slow
-@pytest.mark.xfail(
-    reason="not met on the demo (measured 2026-12-03, 60 and 100 realisations, the mean's "
-    "uncertainty drawn): the lode's realisations average +6 % over the truth (kriging +4 %, "
-    "the declustered mean +1 %): the kriging weights favour the shoot's clustered "
-    "composites (the conditioned normal scores average +0.03 to +0.05 where the declustered "
-    "scores average 0), and the metal band at zero cut-off runs +1 to +11 %, so the truth "
-    "lies below P10; the lode's shoot (3.3 times its grade at the axis, drilled at 20 m "
-    "against 40 m) is a trend inside one stationary domain: with the shoot removed the lode "
-    "met the bar (88 % of the points inside, 40 realisations, 2026-12-02); the halo's truth "
-    "has blocks above its largest capped composite, the default maximum",
-    strict=True,
-)
-def test_demo_truth_lies_in_the_bands(tmp_path):
-    """On the invented demo, whose true blocks are known: per domain, the true block
-    tonnes and metal above each report cut-off inside the realisations' P10-P90 band at
-    80 % or more of the cut-offs with true tonnes, and the true metal above the middle
-    report cut-off (1.5 g/t) inside the P5-P95 band (acceptance bar of the simulation,
-    100 realisations)."""
+@pytest.fixture(scope="module")
+def demo_bands(tmp_path_factory):
+    """The demo's truth against its realisations' bands (100 realisations), per domain."""
     from blockmodel.config.project import load_project
     from blockmodel.demo.deposit import write_demo
     from blockmodel.stages.run import run_stages, simulate_results
 
-    write_demo(tmp_path / "demo")
-    project = load_project(tmp_path / "demo" / "project.toml")
+    folder = tmp_path_factory.mktemp("demo")
+    write_demo(folder / "demo")
+    project = load_project(folder / "demo" / "project.toml")
     results = run_stages(project)
     sim = simulate_results(results, realisations=100, workers=0)
     truth = pd.read_parquet(project.truth)
-    cutoffs = np.asarray(project.report.cutoffs)
-    for key, (share, middle) in _truth_in_the_bands(truth, sim, "au", cutoffs).items():
-        assert share >= 0.8 and middle, (key, share, middle)
+    return _truth_in_the_bands(truth, sim, "au", np.asarray(project.report.cutoffs))
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize(
+    "domain",
+    [
+        "lode",
+        pytest.param(
+            "halo",
+            marks=pytest.mark.xfail(
+                reason="not met (measured 2026-12-03, 40 realisations, local mean): 8 of "
+                "14 points inside; the truth has a pocket of 2 to 4 g/t halo at the foot "
+                "of the model (z 900-920 m, x 512355-512375), undrilled and Inferred, "
+                "where the data give 0.5 g/t: the true tonnes above 1.5, 2 and 3 g/t lie "
+                "above P90, and the simulated grades stop at the largest capped "
+                "composite, the default maximum",
+                strict=True,
+            ),
+        ),
+    ],
+)
+def test_demo_truth_lies_in_the_bands(demo_bands, domain):
+    """On the invented demo, whose true blocks are known: per domain, the true block
+    tonnes and metal above each report cut-off inside the realisations' P10-P90 band at
+    80 % or more of the cut-offs with true tonnes, and the true metal above the middle
+    report cut-off (1.5 g/t) inside the P5-P95 band (acceptance bar of the simulation,
+    100 realisations).  The demo project simulates about a locally varying mean (the
+    lode's shoot is a trend inside the domain)."""
+    share, middle = demo_bands[f"{domain}.au"]
+    assert share >= 0.8 and middle, (share, middle)
 
 
 @pytest.mark.slow

@@ -25,9 +25,10 @@ __all__ = [
 ]
 
 CAUTION = (
-    "The bands are the spread of the realisations under the stated model: one stationary "
-    "Gaussian field per domain, this variogram of the normal scores, these tails and these "
-    "domain boundaries. Each realisation draws its domain's mean from the uncertainty of "
+    "The bands are the spread of the realisations under the stated model: one Gaussian "
+    "field per domain about one mean (or about the local mean of "
+    "simulation.local_mean_window, when set), this variogram of the normal scores, these "
+    "tails and these domain boundaries. Each realisation draws its domain's mean from the uncertainty of "
     "the declustered mean when simulation.mean_uncertainty is on (its standard deviation is "
     "listed below). They leave out the uncertainty of the geological interpretation, "
     "the density, the variogram itself and the sampling and assaying, so the real "
@@ -264,11 +265,12 @@ def _reproduction(sim: Simulation, report: HtmlReport) -> None:
                 f"{r['domain.grade']} ({r['difference']:+.1%})" for _, r in flagged.iterrows()
             )
             + " do not reproduce the declustered mean. The model takes each domain as "
-            "one stationary field with the declustered distribution. A trend inside the "
-            "domain (a high-grade shoot, say), or clustered data that the declustering "
-            "does not account for, breaks that, and then the realisations, the declustered "
-            "mean or both are biased, by an amount the bands do not show. Check the "
-            "declustering and consider splitting the domain before relying on these bands."
+            "one field with the declustered distribution. A trend inside the domain (a "
+            "high-grade shoot, say), or clustered data that the declustering does not "
+            "account for, breaks that, and then the realisations, the declustered mean or "
+            "both are biased, by an amount the bands do not show. Check the declustering, "
+            "and consider splitting the domain or, for a trend, a local mean "
+            "(simulation.local_mean_window) before relying on these bands."
         )
         report.end_box()
 
