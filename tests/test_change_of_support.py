@@ -110,3 +110,19 @@ def test_against_blocks_of_a_simulated_field(s):
     true_g = np.array([blocks[blocks >= c].mean() for c in cutoffs])
     assert np.abs(got[:, 0] - true_t).max() < 0.02
     np.testing.assert_allclose(got[:, 1], true_g, rtol=0.04)
+
+
+def test_blocks_that_do_not_vary(rng):
+    """A pure-nugget model leaves no variance at block support: the support coefficient is
+    0 and every block carries the declustered mean, so all the tonnes lie above a cut-off
+    below the mean at the mean grade, and none above it (the discrete Gaussian model at
+    r = 0: ``Z_v = phi_0``, the mean; common practice)."""
+    values = rng.lognormal(0.0, 0.8, 400)
+    ana = empirical_anamorphosis(values)
+    assert support_coefficient(ana, 0.0) == 0.0
+    mean = float(np.mean(values))
+    curve = block_grade_tonnage(ana, 0.0, np.array([0.0, 0.9 * mean, 1.1 * mean]))
+    np.testing.assert_allclose(curve[:2, 0], 1.0)
+    np.testing.assert_allclose(curve[:2, 1], ana.coefficients[0], rtol=1e-12)
+    assert ana.coefficients[0] == pytest.approx(mean, rel=0.02)
+    assert curve[2, 0] == 0.0 and np.isnan(curve[2, 1])

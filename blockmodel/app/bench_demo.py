@@ -97,7 +97,7 @@ def demo_stages() -> dict:
                     own[p.grades[0]].to_numpy(float),
                     own["hole"].to_numpy(),
                     model,
-                    passes_from(p.passes_for(d.name), model.structures[0].orientation),
+                    passes_from(p.passes_for(d.name), model.orientation),
                 )
             out["cross_validation_s"] = time.perf_counter() - t
     return out

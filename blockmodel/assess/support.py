@@ -146,10 +146,13 @@ def empirical_anamorphosis(
 
 
 def support_coefficient(anamorphosis: GaussianAnamorphosis, block_variance: float) -> float:
-    """r in (0, 1] with ``sum phi_n^2 r^(2n) = block_variance``."""
+    """r in [0, 1] with ``sum phi_n^2 r^(2n) = block_variance``; 0 when the blocks do not
+    vary (a pure-nugget model: every block at the mean)."""
     if block_variance >= anamorphosis.variance:
         return 1.0
-    return float(brentq(lambda r: anamorphosis.block_variance(r) - block_variance, 1e-6, 1.0))
+    if block_variance <= 0.0:
+        return 0.0
+    return float(brentq(lambda r: anamorphosis.block_variance(r) - block_variance, 0.0, 1.0))
 
 
 def block_grade_tonnage(
@@ -161,7 +164,7 @@ def block_grade_tonnage(
     ----------
     anamorphosis : GaussianAnamorphosis
     r : float
-        Support coefficient in (0, 1].
+        Support coefficient in [0, 1].
     cutoffs : (k,) float64, grade units
 
     Returns

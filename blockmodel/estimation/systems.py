@@ -129,11 +129,14 @@ class KrigingSystems:
             res["ws"],
             flag,
         )
+        # kriging efficiency is undefined when the blocks do not vary (a pure-nugget model
+        # averaged over a block has no block variance)
+        efficiency = (self.cvv - res["var"]) / self.cvv if self.cvv > 0 else np.full(n, np.nan)
         return {
             "estimate": res["est"],
             "variance": res["var"],
             "slope": res["slope"],
-            "efficiency": (self.cvv - res["var"]) / self.cvv,
+            "efficiency": efficiency,
             "lagrange": res["mu"],
             "negative_weights": res["neg"],
             "negative_count": res["nneg"],

@@ -10,7 +10,6 @@ from blockmodel.assess.classification import classify_blocks
 from blockmodel.config.project import Project
 from blockmodel.errors import setting_error
 from blockmodel.estimation.engine import EstimationJob, cluster_session, passes_from, run_job
-from blockmodel.estimation.orientation import Orientation
 from blockmodel.model.grid import BlockGrid
 from blockmodel.variography.models import VariogramModel
 
@@ -101,7 +100,7 @@ def _estimate_grade(
         )
     passes = passes_from(
         project.passes_for(domain),
-        model.structures[0].orientation if model.structures else Orientation(),
+        model.orientation,
     )
     job = EstimationJob(
         source[["x", "y", "z"]].to_numpy(float),
@@ -192,7 +191,7 @@ def estimate_block_model(
             frame["_flat"] = flat
             if d.density_from_composites:
                 model = models[f"{d.name}.{project.grades[0]}"]
-                orientation = model.structures[0].orientation if model.structures else Orientation()
+                orientation = model.orientation
                 frame["density"] = _estimated_density(
                     project, table, d, centres, grid, e, orientation
                 )

@@ -22,7 +22,6 @@ from blockmodel.assess.neighbourhood import (
 from blockmodel.config.project import Project
 from blockmodel.estimation.engine import passes_from
 from blockmodel.estimation.kriging import estimate
-from blockmodel.estimation.orientation import Orientation
 from blockmodel.stages.declustering import Declustering
 from blockmodel.stages.domain_model import DomainModel
 from blockmodel.stages.estimate import require_search
@@ -213,7 +212,7 @@ def neighbourhood_analysis(
             composites if e.boundaries == "soft" else composites[composites["domain"] == d.name]
         )
         source = source[source[grade].notna()]
-        orientation = model.structures[0].orientation if model.structures else Orientation()
+        orientation = model.orientation
         spacing = drill_spacing(
             own[["x", "y", "z"]].to_numpy(float), own["hole"].to_numpy(), orientation
         )

@@ -106,7 +106,7 @@ def validate(
             sub[primary].to_numpy(float),
             sub["hole"].to_numpy(),
             model,
-            passes_from(project.passes_for(d.name), model.structures[0].orientation),
+            passes_from(project.passes_for(d.name), model.orientation),
             leave_out=project.validation.leave_out,
             method=method,
             mean=declustering.by_domain[d.name].declustered_mean[primary]

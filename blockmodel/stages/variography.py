@@ -171,7 +171,7 @@ def domain_variography(
     orientation_fit = None
     if given:
         model = _model_from_spec(project.variogram[key])
-        orient = model.structures[0].orientation if model.structures else Orientation()
+        orient = model.orientation
     elif v.orientation is not None:
         model, orient = None, Orientation(*v.orientation)
     else:  # find the orientation of continuity in 3D

@@ -151,6 +151,12 @@ class VariogramModel:
         """Nugget plus all partial sills: ``C(0)``."""
         return self.nugget + sum(s.sill for s in self.structures)
 
+    @property
+    def orientation(self) -> Orientation:
+        """The first structure's orientation, which the search ellipsoid follows; the
+        default (north, level) for a pure-nugget model."""
+        return self.structures[0].orientation if self.structures else Orientation()
+
     def packed(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Arrays for the compiled kernels: kind codes (s,), sills (s,), transforms (s, 3, 3)."""
         kinds = np.array([KINDS[s.kind] for s in self.structures], dtype=np.int64)
