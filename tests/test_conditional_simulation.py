@@ -571,3 +571,30 @@ def test_a_normal_score_model_given_in_the_project_file(tmp_path, capsys):
         project_file.write_text(base + f"\n{header}\n{body}")
         assert main(["check", str(project_file)]) == 2
         assert key in capsys.readouterr().err
+
+
+def test_a_local_mean_from_the_project_file(tmp_path, capsys):
+    """``simulation.local_mean_window`` reaches the plan (residual standard deviation named
+    on the page), and with a pure-nugget grade model (so a pure-nugget normal-score model,
+    which has no ranges to scale the window by), ``simulate`` stops with exit status 2
+    naming the key; without it, that model runs through a whole run."""
+    from tests.conftest import make_box_project
+
+    project_file = make_box_project(tmp_path)
+    base = project_file.read_text() + "\n[simulation]\nlocal_mean_window = 0.5\n"
+    project_file.write_text(base)
+    out = tmp_path / "sim"
+    assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 0
+    page = (out / "simulation.html").read_text()
+    assert "about a locally varying mean" in page and "residual standard deviation" in page
+    nugget = "\n[variogram.ore.cu]\nnugget = 1.0\nstructures = []\n"
+    project_file.write_text(base + nugget)
+    assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "simulation.local_mean_window" in err and "Traceback" not in err
+    # without the local mean, the pure-nugget model runs through every stage and the
+    # report: kriging efficiency is undefined where blocks do not vary
+    project_file.write_text(project_file.read_text().replace("local_mean_window = 0.5", ""))
+    assert main(["run", str(project_file)]) == 0
+    blocks = pd.read_parquet(tmp_path / "out" / "block_model.parquet")
+    assert blocks["cu"].notna().any() and blocks["cu_efficiency"].isna().all()
