@@ -193,7 +193,7 @@ def _check_values(p: Project, r: Reader) -> None:
                 f"report.statement_cutoffs.{name}",
                 f"unknown domain '{name}'; domains are {', '.join(names)}",
             )
-    for setting_name in ("maximum", "models"):
+    for setting_name in ("maximum", "models", "local_mean_window"):
         for key in getattr(p.simulation, setting_name):
             domain, _, grade = key.partition(".")
             if domain not in names or grade not in p.data.grades:

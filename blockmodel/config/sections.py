@@ -331,13 +331,15 @@ class Simulation:
         "the declustered mean under the normal scores' model; false: the mean is known "
         "and the bands leave out its uncertainty",
     )
-    local_mean_window: float = setting(
-        0.0,
-        doc="0: each domain's mean is one number (stationary); positive: the mean of the "
-        "normal scores varies locally (a trend, e.g. a high-grade shoot inside a domain), "
-        "a Gaussian-kernel average of the declustered scores whose window is this "
-        "fraction of the ranges of the normal scores' longest structure",
+    local_mean_window: dict[str, float] = setting(
+        doc="domains and grades whose normal scores follow a trend (e.g. a high-grade "
+        "shoot inside the domain), simulated about a local mean: a Gaussian-kernel "
+        "average of the declustered scores whose window is the given fraction of the "
+        'ranges of their longest structure, e.g. { "lode.au" = 0.5 }; others: one mean',
+        entry="DOMAIN.GRADE",
         low=0.0,
+        strict_low=True,
+        factory=dict,
     )
     model: str = setting(
         "fit",

@@ -26,8 +26,8 @@ __all__ = [
 
 CAUTION = (
     "The bands are the spread of the realisations under the stated model: one Gaussian "
-    "field per domain about one mean (or about the local mean of "
-    "simulation.local_mean_window, when set), this variogram of the normal scores, these "
+    "field per domain about one mean (or about a local mean where "
+    "simulation.local_mean_window asks for one), this variogram of the normal scores, these "
     "tails and these domain boundaries. Each realisation draws its domain's mean from the uncertainty of "
     "the declustered mean when simulation.mean_uncertainty is on (its standard deviation is "
     "listed below). They leave out the uncertainty of the geological interpretation, "
@@ -117,11 +117,13 @@ def render_simulation(
             "the kriged curve is that of the model's blocks, a larger support."
         )
     mean = ""
-    if s.local_mean_window > 0:
+    if s.local_mean_window:
+        windows = "; ".join(f"{k} {v:g}" for k, v in s.local_mean_window.items())
         mean = (
-            "about a locally varying mean (a Gaussian-kernel average of the declustered "
-            f"scores, window {s.local_mean_window:g} of the longest structure's ranges; its "
-            "residuals keep the model's correlation, scaled to their variance), "
+            "about a locally varying mean where the project asks for one (a Gaussian-kernel "
+            "average of the declustered scores, its window a fraction of the longest "
+            f"structure's ranges: {windows}; the residuals keep the model's correlation, "
+            "scaled to their variance), "
         )
     report.paragraph(
         f"{sim.realisations} realisations (seed {sim.seed}) per domain and grade. Normal "
@@ -155,9 +157,9 @@ def render_simulation(
                 "nodes": d.nodes,
                 "blocks with no node inside the solid": d.blocks_without_inside_nodes,
                 "mean (normal scores)": (
-                    "one number"
-                    if s.local_mean_window == 0
-                    else f"local; residual standard deviation {d.residual_sd:.2f}"
+                    f"local; residual standard deviation {d.residual_sd:.2f}"
+                    if key in s.local_mean_window
+                    else "one number"
                 ),
                 "mean's standard deviation (normal scores)": (
                     round(d.mean_sd, 3) if d.mean_sd > 0 else "0 (known)"

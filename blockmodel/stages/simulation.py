@@ -109,10 +109,11 @@ def simulate(
         model, source = normal_score_model(
             project, composites[own], declustering.weights[own], variography[key]
         )
-        if s.local_mean_window > 0.0 and not model.structures:
+        window = s.local_mean_window.get(key, 0.0)
+        if window > 0.0 and not model.structures:
             raise setting_error(
                 project.source,
-                "simulation.local_mean_window",
+                f"simulation.local_mean_window.{key}",
                 f"the normal scores' model of {key} is a pure nugget: no ranges to scale "
                 "the window by",
             )
@@ -131,7 +132,7 @@ def simulate(
             inside=_inside(project, d.name, solids),
             weights=declustering.weights[own],
             mean_uncertainty=s.mean_uncertainty,
-            local_mean_window=s.local_mean_window,
+            local_mean_window=window,
         )
         prepared = time.perf_counter()
         clock: dict[str, float] = {}
