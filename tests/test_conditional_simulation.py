@@ -65,6 +65,25 @@ def _small_plan(
     return plan, data, scores
 
 
+def _assert_ensemble(plan, expected, var, mean_tolerance=0.01, R=1000):
+    """The ensemble of R realisations: mean ``expected`` within 4.5 standard errors
+    (sqrt(var / R)) at every node, variance ``var`` within 4.5 relative standard errors
+    (sqrt(2 / (R - 1)) = 0.045) at every node and within ``mean_tolerance`` on average
+    over the nodes, and the data honoured exactly at their nodes.  Returns the nodes
+    where the variance is positive."""
+    ys = np.array([plan.realisation_scores(r) for r in range(R)])
+    free = var > 1e-9
+    z = (ys.mean(axis=0) - expected)[free] / np.sqrt(var[free] / R)
+    assert np.abs(z).max() < 4.5
+    rel = (ys.var(axis=0, ddof=1) - var)[free] / var[free]
+    assert np.abs(rel).max() < 4.5 * np.sqrt(2 / (R - 1))
+    assert abs(rel.mean()) < mean_tolerance
+    # simple kriging is an exact interpolator
+    at = np.flatnonzero(np.isin(plan.targets, plan.data_nodes))
+    np.testing.assert_allclose(ys[:, at].std(axis=0), 0.0, atol=1e-12)
+    return free
+
+
 def test_simple_kriging_identity(rng):
     """Journel & Huijbregts (1978) §VII.C: E[Y_c] = SK estimate, Var[Y_c] = SK variance.
 
@@ -74,19 +93,7 @@ def test_simple_kriging_identity(rng):
     error over the nodes within 0.01 (the nodes' errors are correlated, so 0.01 is
     about 3 of its standard errors here)."""
     plan, _, _ = _small_plan(rng)
-    R = 1000
-    ys = np.array([plan.realisation_scores(r) for r in range(R)])
-    sk = plan.weights.apply(plan.data_scores)
-    var = plan.weights.variance
-    free = var > 1e-9
-    z = (ys.mean(axis=0) - sk)[free] / np.sqrt(var[free] / R)
-    assert np.abs(z).max() < 4.5
-    rel = (ys.var(axis=0, ddof=1) - var)[free] / var[free]
-    assert np.abs(rel).max() < 4.5 * np.sqrt(2 / (R - 1))
-    assert abs(rel.mean()) < 0.01
-    # the data are honoured exactly at their nodes (simple kriging is an exact interpolator)
-    at = np.flatnonzero(np.isin(plan.targets, plan.data_nodes))
-    np.testing.assert_allclose(ys[:, at].std(axis=0), 0.0, atol=1e-12)
+    _assert_ensemble(plan, plan.weights.apply(plan.data_scores), plan.weights.variance)
 
 
 def test_simple_kriging_identity_with_an_uncertain_mean(rng):
@@ -103,22 +110,12 @@ def test_simple_kriging_identity_with_an_uncertain_mean(rng):
         declustered_mean_variance(plan.nodes.centres(plan.data_nodes), weights, MODEL)
     )
     assert plan.mean_sd == pytest.approx(expected_sd, rel=1e-12) and plan.mean_sd > 0.1
-    R = 1000
-    ys = np.array([plan.realisation_scores(r) for r in range(R)])
-    sk = plan.weights.apply(plan.data_scores)
     free_share = 1.0 - plan.weights.weights.sum(axis=1)  # recomputed here, not read
     var = plan.weights.variance + free_share**2 * plan.mean_sd**2
-    free = var > 1e-9
-    z = (ys.mean(axis=0) - sk)[free] / np.sqrt(var[free] / R)
-    assert np.abs(z).max() < 4.5
-    rel = (ys.var(axis=0, ddof=1) - var)[free] / var[free]
-    assert np.abs(rel).max() < 4.5 * np.sqrt(2 / (R - 1))
     # the nodes' errors share each realisation's mean: 0.02 is about 3 standard errors here
-    assert abs(rel.mean()) < 0.02
+    free = _assert_ensemble(plan, plan.weights.apply(plan.data_scores), var, 0.02)
     # the added variance is large enough here for the check to see it
     assert (free_share[free] ** 2 * plan.mean_sd**2 / var[free]).max() > 0.2
-    at = np.flatnonzero(np.isin(plan.targets, plan.data_nodes))
-    np.testing.assert_allclose(ys[:, at].std(axis=0), 0.0, atol=1e-12)
 
 
 def test_simple_kriging_identity_with_a_local_mean(rng):
@@ -150,18 +147,8 @@ def test_simple_kriging_identity_with_a_local_mean(rng):
     # the trend is real here: the local mean spans more than the residuals' spread, and
     # their variance is far enough from 1 for the variance check to see it
     assert np.ptp(plan.target_mean) > 2 * s and s < 0.7
-    R = 1000
-    ys = np.array([plan.realisation_scores(r) for r in range(R)])
     expected = plan.target_mean + plan.weights.apply(residual)
-    var = s**2 * plan.weights.variance
-    free = var > 1e-9
-    z = (ys.mean(axis=0) - expected)[free] / np.sqrt(var[free] / R)
-    assert np.abs(z).max() < 4.5
-    rel = (ys.var(axis=0, ddof=1) - var)[free] / var[free]
-    assert np.abs(rel).max() < 4.5 * np.sqrt(2 / (R - 1))
-    assert abs(rel.mean()) < 0.01
-    at = np.flatnonzero(np.isin(plan.targets, plan.data_nodes))
-    np.testing.assert_allclose(ys[:, at].std(axis=0), 0.0, atol=1e-12)
+    _assert_ensemble(plan, expected, s**2 * plan.weights.variance)
 
 
 def test_kernel_mean_equals_a_plain_loop(rng):
@@ -349,6 +336,9 @@ def test_simulate_command_writes_its_outputs(box_site, tmp_path, capsys):
 
     data = tmp_path / "data"
     shutil.copytree(box_site / "data", data)
+    # about a local mean (simulation.local_mean_window), named on the page
+    with open(data / "project.toml", "a") as f:
+        f.write('\n[simulation]\nlocal_mean_window = { "ore.cu" = 0.5 }\n')
     out = tmp_path / "sim"
     args = ["simulate", str(data / "project.toml"), "--realisations", "6", "--out", str(out)]
     assert main(args) == 0
@@ -362,7 +352,9 @@ def test_simulate_command_writes_its_outputs(box_site, tmp_path, capsys):
     estimated = blocks.loc[blocks["cu"].notna(), "tonnes"].sum()
     assert zero["tonnes_p10"].iloc[0] == pytest.approx(estimated)
     assert zero["tonnes_p90"].iloc[0] == pytest.approx(estimated)
-    assert "Reproduction: the mean grade" in (out / "simulation.html").read_text()
+    page = (out / "simulation.html").read_text()
+    assert "Reproduction: the mean grade" in page
+    assert "about a locally varying mean" in page and "residual standard deviation" in page
     # the same seed gives the same realisations
     again = tmp_path / "again"
     assert main([*args[:-1], str(again)]) == 0
@@ -573,30 +565,23 @@ def test_a_normal_score_model_given_in_the_project_file(tmp_path, capsys):
         assert key in capsys.readouterr().err
 
 
-def test_a_local_mean_from_the_project_file(tmp_path, capsys):
-    """``simulation.local_mean_window`` reaches the plan (residual standard deviation named
-    on the page), and with a pure-nugget grade model (so a pure-nugget normal-score model,
-    which has no ranges to scale the window by), ``simulate`` stops with exit status 2
-    naming the key; without it, that model runs through a whole run."""
+def test_a_local_mean_needs_ranges_and_a_pure_nugget_model_runs(tmp_path, capsys):
+    """With a pure-nugget grade model (so a pure-nugget normal-score model, which has no
+    ranges to scale the window by), a local mean makes ``simulate`` stop with exit status
+    2 naming the key; without it, that model runs through a whole run, kriging efficiency
+    undefined where blocks do not vary."""
     from tests.conftest import make_box_project
 
     project_file = make_box_project(tmp_path)
-    base = project_file.read_text() + '\n[simulation]\nlocal_mean_window = { "ore.cu" = 0.5 }\n'
-    project_file.write_text(base)
+    base = project_file.read_text() + "\n[variogram.ore.cu]\nnugget = 1.0\nstructures = []\n"
+    local = '\n[simulation]\nlocal_mean_window = { "ore.cu" = 0.5 }\n'
+    project_file.write_text(base + local)
     out = tmp_path / "sim"
-    assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 0
-    page = (out / "simulation.html").read_text()
-    assert "about a locally varying mean" in page and "residual standard deviation" in page
-    nugget = "\n[variogram.ore.cu]\nnugget = 1.0\nstructures = []\n"
-    project_file.write_text(base + nugget)
     assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 2
     err = capsys.readouterr().err
     assert "simulation.local_mean_window.ore.cu" in err and "Traceback" not in err
-    # without the local mean, the pure-nugget model runs through every stage and the
-    # report: kriging efficiency is undefined where blocks do not vary
-    project_file.write_text(
-        project_file.read_text().replace('local_mean_window = { "ore.cu" = 0.5 }', "")
-    )
+    assert not out.exists() and not list(tmp_path.glob(".sim*"))  # nothing half-written
+    project_file.write_text(base)
     assert main(["run", str(project_file)]) == 0
     blocks = pd.read_parquet(tmp_path / "out" / "block_model.parquet")
     assert blocks["cu"].notna().any() and blocks["cu_efficiency"].isna().all()

@@ -38,15 +38,18 @@ def _wait_for_staging(parent, name, proc, seconds=60):
     raise AssertionError("the run never started writing")
 
 
-@pytest.fixture(scope="module")
-def previous(tmp_path_factory):
-    parent = tmp_path_factory.mktemp("interrupts")
-    out = parent / "report"
+def _whole_run(out):
     subprocess.run(
         [sys.executable, "-m", "blockmodel", "run", str(DEMO / "project.toml"), "--out", str(out)],
         check=True,
         capture_output=True,
     )
+
+
+@pytest.fixture(scope="module")
+def previous(tmp_path_factory):
+    out = tmp_path_factory.mktemp("interrupts") / "report"
+    _whole_run(out)
     return out
 
 
@@ -55,19 +58,7 @@ def run_seconds(previous):
     """Seconds of a whole run once the compiled code is cached (the first run may have
     compiled it), which the kill times are fractions of."""
     start = time.perf_counter()
-    subprocess.run(
-        [
-            sys.executable,
-            "-m",
-            "blockmodel",
-            "run",
-            str(DEMO / "project.toml"),
-            "--out",
-            str(previous),
-        ],
-        check=True,
-        capture_output=True,
-    )
+    _whole_run(previous)
     return time.perf_counter() - start
 
 
