@@ -585,3 +585,45 @@ def test_a_local_mean_needs_ranges_and_a_pure_nugget_model_runs(tmp_path, capsys
     assert main(["run", str(project_file)]) == 0
     blocks = pd.read_parquet(tmp_path / "out" / "block_model.parquet")
     assert blocks["cu"].notna().any() and blocks["cu_efficiency"].isna().all()
+
+
+def test_nodes_of_a_domain_placed_by_codes(tmp_path):
+    """Oracle: a domain without a solid (the seam of tests/deposits.py, placed from its
+    interval codes) simulates only the nodes of its own part of each block.  With nodes at
+    the sub-cell centres, the share of each block's nodes that pass the domain's test equals
+    the block's proportion in the domain model (same nearest-composite rule); and each node
+    passes exactly when its nearest composite, found by brute force, is of the domain and
+    within ``grid.code_reach``."""
+    from blockmodel.config.project import load_project
+    from blockmodel.simulation.conditional import NodeGrid
+    from blockmodel.stages.composites import load_and_composite
+    from blockmodel.stages.domain_model import build_domain_model
+    from blockmodel.stages.simulation import _inside, _solids
+
+    from . import deposits
+
+    project_file, _, _ = deposits.build("seam", tmp_path / "seam")
+    project = load_project(project_file)
+    table = load_and_composite(project).table
+    model = build_domain_model(project, table)
+    grid, sub = model.grid, np.asarray(project.grid.subcells)
+    spacing = np.asarray(grid.block_size) / sub
+    nodes = NodeGrid(np.asarray(grid.origin) + spacing / 2, spacing, tuple(grid.shape * sub))
+    test = _inside(project, "main", _solids(project), table)
+    rows = np.flatnonzero(model.proportions[:, 0] > 0)
+    ijk = grid.ijk(rows)
+    local = np.stack(np.meshgrid(*[np.arange(s) for s in sub], indexing="ij"), -1).reshape(-1, 3)
+    abc = (ijk * sub)[:, None, :] + local[None]
+    flat = np.ravel_multi_index(abc.reshape(-1, 3).T, nodes.shape)
+    passed = test(nodes, flat)
+    share = passed.reshape(len(rows), len(local)).mean(axis=1)
+    np.testing.assert_allclose(share, model.proportions[rows, 0], atol=1e-6)
+    assert 0 < share.min() < 1  # the seam has partial blocks
+    pick = np.random.default_rng(3).choice(len(flat), 400, replace=False)
+    points = nodes.centres(flat[pick])
+    data = table[["x", "y", "z"]].to_numpy(float)
+    for point, ok in zip(points, passed[pick], strict=True):
+        d = np.linalg.norm(data - point, axis=1)
+        nearest = int(np.argmin(d))
+        expected = table["domain"].iloc[nearest] == "main" and d[nearest] <= project.grid.code_reach
+        assert ok == expected

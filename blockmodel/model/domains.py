@@ -78,11 +78,12 @@ def inside_domain(
     columns: np.ndarray,
     z: np.ndarray,
     solids: Sequence[Surface],
-    which: int,
+    which: int | None,
     topography: Surface | None = None,
 ) -> np.ndarray:
     """Whether points lie in solid ``which`` and in no solid listed before it (first
-    listed wins, as in :func:`block_proportions`), below the topography.
+    listed wins, as in :func:`block_proportions`), below the topography; with ``which``
+    None, in none of the solids (what the solids leave, below the topography).
 
     Parameters
     ----------
@@ -92,15 +93,18 @@ def inside_domain(
         Flat lattice column of each point.
     z : (n,) float64, metres
     solids : sequence of Surface, priority order
-    which : int
+    which : int or None
     topography : Surface, optional
 
     Returns
     -------
     (n,) bool
     """
-    inside = points_inside(column_crossings(solids[which], lattice), columns, z)
-    for earlier in solids[:which]:
+    if which is None:
+        inside = np.ones(len(z), dtype=bool)
+    else:
+        inside = points_inside(column_crossings(solids[which], lattice), columns, z)
+    for earlier in solids if which is None else solids[:which]:
         inside &= ~points_inside(column_crossings(earlier, lattice), columns, z)
     if topography is not None:
         top = surface_elevation(topography, lattice)[columns]

@@ -133,8 +133,9 @@ def render_simulation(
         "composites of the domain (hard boundaries; each composite moved to the node it "
         "falls in); back-transformed to grades (lower tail linear to "
         f"{s.minimum:g}, upper tail {tail} up to the maximum below) and averaged over each "
-        "simulated block's nodes inside the domain's solid (all its nodes where none is "
-        f"inside, counted below). {support} Grades are simulated independently of each other."
+        "simulated block's nodes inside the domain (its solid, or for a domain placed by "
+        "codes the nodes nearest a composite of its code, as its blocks' proportions; all "
+        f"of a block's nodes where none is inside, counted below). {support} Grades are simulated independently of each other."
     )
     report.box("caution")
     report.paragraph(CAUTION)
@@ -155,7 +156,7 @@ def render_simulation(
                 "composites": d.data,
                 "sharing a node (dropped)": d.data_dropped,
                 "nodes": d.nodes,
-                "blocks with no node inside the solid": d.blocks_without_inside_nodes,
+                "blocks with no node inside the domain": d.blocks_without_inside_nodes,
                 "mean (normal scores)": (
                     f"local; residual standard deviation {d.residual_sd:.2f}"
                     if key in s.local_mean_window

@@ -187,8 +187,9 @@ def plan_simulation(
     workers : int
         Threads for the Fourier transforms.
     inside : callable(nodes, flat) -> (m,) bool, optional
-        Which nodes of the blocks lie in the domain (its solid); a block none of whose
-        nodes lies in it keeps them all.  None: every node of every block.
+        Which nodes of the blocks lie in the domain (its solid, or its part placed by
+        codes); a block none of whose nodes lies in it keeps them all.  None: every node
+        of every block.
     weights : (n,) float64, optional
         Declustering weights of the data; None: equal.
     mean_uncertainty : bool

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -11,7 +12,7 @@ from blockmodel.config.project import Project
 from blockmodel.errors import InputError, Problem, setting_error
 from blockmodel.model.grid import BlockGrid
 
-__all__ = ["DomainModel", "build_domain_model", "model_proportions"]
+__all__ = ["DomainModel", "build_domain_model", "code_partition", "model_proportions"]
 
 
 @dataclass(frozen=True)
@@ -84,18 +85,17 @@ def model_proportions(
     box = box_surface(lo, hi)
     below = block_proportions(grid, [box], topo, subcells=project.grid.subcells)[:, 0]
     free = np.clip(below - out.sum(axis=1), 0.0, 1.0)
+    code_of = code_partition(composites, project.grid.code_reach)
     tree = cKDTree(composites[["x", "y", "z"]].to_numpy(float))
-    codes = composites["domain"].to_numpy()
     axes = [
         ((np.arange(n) + 0.5) / n - 0.5) * size
         for n, size in zip(project.grid.subcells, grid.block_size, strict=True)
     ]
     offsets = np.stack(np.meshgrid(*axes, indexing="ij"), axis=-1).reshape(-1, 3)
-    reach = project.grid.code_reach
     # only blocks whose centre lies within reach of a composite (plus half a diagonal)
     near = tree.query(
         grid.centres(),
-        distance_upper_bound=reach + 0.5 * np.linalg.norm(grid.block_size),
+        distance_upper_bound=project.grid.code_reach + 0.5 * np.linalg.norm(grid.block_size),
         workers=-1,
     )[0]
     candidates = np.flatnonzero(np.isfinite(near) & (free > 0))
@@ -103,13 +103,39 @@ def model_proportions(
     for start in range(0, len(candidates), step):
         flat = candidates[start : start + step]
         pts = (grid.centres(flat)[:, None, :] + offsets[None]).reshape(-1, 3)
-        dist, nearest = tree.query(pts, workers=-1)
-        names = codes[nearest].reshape(len(flat), len(offsets))
-        within = (dist <= reach).reshape(len(flat), len(offsets))
+        names = code_of(pts).reshape(len(flat), len(offsets))
         for n in coded:
-            share = ((names == project.domains[n].name) & within).mean(axis=1)
+            share = (names == project.domains[n].name).mean(axis=1)
             out[flat, n] = (free[flat] * share).astype(np.float32)
     return out
+
+
+def code_partition(composites: pd.DataFrame, reach: float) -> Callable[[np.ndarray], np.ndarray]:
+    """The composites' domain codes read as a nearest-composite partition of space.
+
+    Parameters
+    ----------
+    composites : DataFrame
+        ``x, y, z`` (metres) and ``domain`` of every composite.
+    reach : float, metres
+        Points farther than this from every composite take no code.
+
+    Returns
+    -------
+    callable
+        From (n, 3) float64 points (metres) to the (n,) code of each point's nearest
+        composite, ``""`` beyond ``reach``.
+    """
+    from scipy.spatial import cKDTree
+
+    tree = cKDTree(composites[["x", "y", "z"]].to_numpy(float))
+    codes = composites["domain"].to_numpy(dtype=object)
+
+    def code_of(points: np.ndarray) -> np.ndarray:
+        dist, nearest = tree.query(np.asarray(points, dtype=np.float64), workers=-1)
+        return np.where(dist <= reach, codes[nearest], "")
+
+    return code_of
 
 
 MIN_SOLID_SHARE = 0.99  # share of a solid's volume the grid must hold

@@ -17,6 +17,7 @@ from blockmodel.errors import setting_error
 from blockmodel.simulation.conditional import plan_simulation, simulate_blocks
 from blockmodel.simulation.transform import gaussian_transform
 from blockmodel.stages.declustering import Declustering
+from blockmodel.stages.domain_model import code_partition
 from blockmodel.stages.mining_units import mining_units
 from blockmodel.stages.simulation_results import (
     REPRODUCTION_TOLERANCE,
@@ -129,7 +130,7 @@ def simulate(
             (seed, stream),
             neighbours=s.neighbours,
             workers=1,
-            inside=_inside(project, d.name, solids),
+            inside=_inside(project, d.name, solids, composites),
             weights=declustering.weights[own],
             mean_uncertainty=s.mean_uncertainty,
             local_mean_window=window,
@@ -181,24 +182,30 @@ def _solids(project: Project) -> dict:
     return {"solids": out, "topography": read_surface(topo) if topo else None}
 
 
-def _inside(project: Project, name: str, solids: dict):
-    """The test of nodes in domain ``name`` (inside its solid, in no solid listed before,
-    below the topography), or None for a domain placed by codes."""
+def _inside(project: Project, name: str, solids: dict, composites: pd.DataFrame):
+    """The test of nodes in domain ``name``, as its blocks' proportions were found: inside
+    its solid and in no solid listed before it, or, for a domain placed by codes, in no
+    solid and nearest (within ``grid.code_reach``) to a composite of its code; below the
+    topography."""
     from blockmodel.model.domains import inside_domain
     from blockmodel.model.solids import Lattice
 
-    if project.domain(name).solid is None:
-        return None
     order = [d.name for d in project.domains if d.name in solids["solids"]]
     surfaces = [solids["solids"][n] for n in order]
+    coded = project.domain(name).solid is None
+    code_of = code_partition(composites, project.grid.code_reach) if coded else None
 
     def test(nodes, flat: np.ndarray) -> np.ndarray:
         (ox, oy, oz), (dx, dy, dz), (nx, ny, _) = nodes.origin, nodes.spacing, nodes.shape
         a, b, c = np.unravel_index(flat, nodes.shape)
         lattice = Lattice(ox, dx, nx, oy, dy, ny)
-        return inside_domain(
-            lattice, a + nx * b, oz + c * dz, surfaces, order.index(name), solids["topography"]
+        which = None if coded else order.index(name)
+        keep = inside_domain(
+            lattice, a + nx * b, oz + c * dz, surfaces, which, solids["topography"]
         )
+        if coded:
+            keep &= code_of(nodes.centres(flat)) == name
+        return keep
 
     return test
 

@@ -39,8 +39,9 @@ class DomainSimulation:
     grades : (b, r) float64
         Block grades of every realisation.
     nodes : int
-        Simulated nodes: those of the domain's blocks inside its solid (every node of a
-        block for a domain placed by codes, or when none of a block's nodes is inside).
+        Simulated nodes: those of the domain's blocks inside the domain (its solid; for a
+        domain placed by codes, nearest, within ``grid.code_reach``, to a composite of its
+        code), every node of a block none of whose nodes is inside.
     fft_cells : int
         Nodes of the padded grid of the unconditional simulation.
     declustered_mean : float
@@ -49,7 +50,7 @@ class DomainSimulation:
         Conditioning composites; ``data_dropped`` of them shared a node with a nearer one.
     data_dropped : int
     blocks_without_inside_nodes : int
-        Blocks of the domain none of whose nodes lies inside its solid.
+        Blocks of the domain none of whose nodes lies inside the domain.
     mean_sd : float
         Standard deviation of each realisation's mean normal score (0: the mean known).
     timings : dict
