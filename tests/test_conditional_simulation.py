@@ -376,13 +376,11 @@ def test_a_run_can_include_the_simulation(tmp_path):
     assert "Uncertainty: conditional simulation" in (out / "report.html").read_text()
 
 
-def _truth_in_the_bands(truth, sim, grade, cutoffs):
-    """Per simulated domain: the share of the (tonnes, metal) x report cut-off points with
-    true tonnes whose truth lies inside the realisations' P10-P90 band, and whether the true
-    metal above the middle report cut-off lies inside the P5-P95 band."""
+def _true_and_simulated_curves(truth, sim, grade, cutoffs):
+    """Per simulated domain: the true (1, k) and realised (r, k) tonnes and metal above each
+    cut-off, over the simulated blocks whose true grade is known."""
     from blockmodel.assess.uncertainty import realisation_curves
 
-    middle = len(cutoffs) // 2
     out = {}
     for key, s in sim.by_key.items():
         b = sim.units.table.iloc[s.rows].merge(
@@ -390,8 +388,22 @@ def _truth_in_the_bands(truth, sim, grade, cutoffs):
         )
         known = b[f"{grade}_true"].notna().to_numpy()
         tonnes, true = b["tonnes"].to_numpy()[known], b[f"{grade}_true"].to_numpy()[known]
-        t_true, m_true = realisation_curves(tonnes, true[:, None], cutoffs)
-        t_sim, m_sim = realisation_curves(tonnes, s.grades[known], cutoffs)
+        out[key] = (
+            *realisation_curves(tonnes, true[:, None], cutoffs),
+            *realisation_curves(tonnes, s.grades[known], cutoffs),
+        )
+    return out
+
+
+def _truth_in_the_bands(truth, sim, grade, cutoffs):
+    """Per simulated domain: the share of the (tonnes, metal) x report cut-off points with
+    true tonnes whose truth lies inside the realisations' P10-P90 band, and whether the true
+    metal above the middle report cut-off lies inside the P5-P95 band."""
+    middle = len(cutoffs) // 2
+    out = {}
+    for key, (t_true, m_true, t_sim, m_sim) in _true_and_simulated_curves(
+        truth, sim, grade, cutoffs
+    ).items():
         inside = []
         for values, real in ((t_sim, t_true[0]), (m_sim, m_true[0])):
             lo, hi = np.percentile(values, [10, 90], axis=0)
@@ -454,12 +466,12 @@ def test_demo_truth_lies_in_the_bands(demo_bands, domain):
         pytest.param(
             "pipe",
             marks=pytest.mark.xfail(
-                reason="not met (measured 2026-12-03, 100 realisations, the mean's "
-                "uncertainty drawn): 2 of the 4 points inside; above the median cut-off the "
-                "bands run +4 to +21 % (tonnes) and +0.3 to +19 % (metal) over the truth; "
-                "the normal-score model found in this small domain has ranges 43/35/17 m "
-                "where the truth's are 90/35/30 m (orientation found 11/16/-84 against "
-                "30/75/0), so its block grades vary more than the truth's",
+                reason="not met (measured 2026-12-03, 100 realisations): 2 of the 4 points "
+                "inside; the true tonnes and metal above the median lie below P10, at the 3rd "
+                "and 9th percentiles of the realisations. One seed decides this check: over "
+                "seeds 1 to 30 of the pipe it passes in 21 (a calibrated band passes it in "
+                "51 to 80 %), and the pipe's bands pass the calibration test over 20 seeds "
+                "(test_bands_hold_the_truth_over_many_deposits)",
                 strict=True,
             ),
         ),
@@ -483,6 +495,88 @@ def test_invented_deposits_truth_lies_in_the_bands(tmp_path, name):
     cutoffs = np.asarray(project.report.cutoffs)
     for key, (share, middle) in _truth_in_the_bands(truth.blocks, sim, spec.grade, cutoffs).items():
         assert share >= 0.8 and middle, (key, share, middle)
+
+
+COVERAGE_SEEDS = 20
+# Binomial(20, 0.8): 11 or fewer seeds inside happen with probability 0.010; Binomial(20,
+# 0.1): 6 or more seeds on one side with probability 0.011 (scipy.stats.binom)
+COVERAGE_LEAST = 12
+COVERAGE_ONE_SIDE = 5
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize(
+    "name",
+    [
+        "pipe",
+        pytest.param(
+            "seam",
+            marks=pytest.mark.xfail(
+                reason="not met (measured 2026-12-03): inside the band in 11, 13 and 12 "
+                "seeds (tonnes and metal above the median, metal above 0), below P10 in 4, 1 "
+                "and 0, above P90 in 5, 6 and 8: the realisations understate the metal (their "
+                "mean grade is 1.1 % below the truth's over the 20 seeds, standard deviation "
+                "2.0 %) and their bands are narrower than their error. Tried without bringing "
+                "it within the bounds: the truth's own model for the normal scores (nugget "
+                "0.24 with the assay error), cells of the drill spacing for declustering, and "
+                "partial blocks simulated on their part only (now the rule)",
+                strict=True,
+            ),
+        ),
+        pytest.param(
+            "lode",
+            marks=pytest.mark.xfail(
+                reason="not met (measured 2026-12-03): inside the band in 13, 14 and 14 "
+                "seeds, below P10 in none, above P90 in 7, 6 and 6: the realisations "
+                "understate the tonnes and metal; cause not found (their mean grade is "
+                "within 2 % of the truth's in seeds 1 to 4, where the declustered mean, "
+                "lowest-mean cell, is 4 to 9 % below it)",
+                strict=True,
+            ),
+        ),
+    ],
+)
+def test_bands_hold_the_truth_over_many_deposits(tmp_path, name):
+    """Calibration of the bands: over seeds 1 to 20 of an invented deposit (every seed, none
+    left out), each drawn, drilled and simulated anew (100 realisations), the true tonnes and
+    metal above the median cut-off and the true metal above cut-off 0 lie inside the
+    realisations' P10-P90 band.  For bands that are calibrated, the count of seeds with the
+    truth inside is Binomial(20, 0.8) for each quantity (expected 16; below 12 with
+    probability 1 %), and on each side Binomial(20, 0.1) (expected 2; above 5 with
+    probability 1 %): a band that is wide enough but off-centre fails the second bound.  One seed cannot tell a calibrated band from a poor one: the
+    single-seed check above asks for three such 80 % events at once (true metal above 0,
+    tonnes and metal above the median), which a calibrated band meets in 51 % (independent
+    events) to 80 % (fully dependent) of seeds."""
+    from blockmodel.config.project import load_project
+    from blockmodel.stages.run import run_stages, simulate_results
+
+    from . import deposits
+
+    below, above = np.zeros(3, dtype=int), np.zeros(3, dtype=int)
+    for seed in range(1, COVERAGE_SEEDS + 1):
+        project_file, truth, spec = deposits.build(name, tmp_path / f"{name}{seed}", seed)
+        project = load_project(project_file)
+        sim = simulate_results(run_stages(project), realisations=100, workers=0)
+        cutoffs = np.asarray(project.report.cutoffs)
+        middle = len(cutoffs) // 2
+        curves = _true_and_simulated_curves(truth.blocks, sim, spec.grade, cutoffs)
+        (t_true, m_true, t_sim, m_sim) = curves["main." + spec.grade]
+        for n, (values, real) in enumerate(
+            (
+                (t_sim[:, middle], t_true[0, middle]),
+                (m_sim[:, middle], m_true[0, middle]),
+                (m_sim[:, 0], m_true[0, 0]),
+            )
+        ):
+            lo, hi = np.percentile(values, [10, 90])
+            below[n] += real < lo
+            above[n] += real > hi
+    inside = COVERAGE_SEEDS - below - above
+    assert np.all(inside >= COVERAGE_LEAST), (inside, below, above)
+    assert np.all(below <= COVERAGE_ONE_SIDE) and np.all(above <= COVERAGE_ONE_SIDE), (
+        below,
+        above,
+    )
 
 
 def test_realisations_on_a_cluster_equal_the_local_ones(rng):
