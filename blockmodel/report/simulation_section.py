@@ -135,7 +135,8 @@ def render_simulation(
         f"{s.minimum:g}, upper tail {tail} up to the maximum below) and averaged over each "
         "simulated block's nodes inside the domain (its solid, or for a domain placed by "
         "codes the nodes nearest a composite of its code, as its blocks' proportions; all "
-        f"of a block's nodes where none is inside, counted below). {support} Grades are simulated independently of each other."
+        f"of a block's nodes where none is inside, counted below). {support} Grades are "
+        "simulated independently of each other."
     )
     report.box("caution")
     report.paragraph(CAUTION)

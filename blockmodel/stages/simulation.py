@@ -194,12 +194,12 @@ def _inside(project: Project, name: str, solids: dict, composites: pd.DataFrame)
     surfaces = [solids["solids"][n] for n in order]
     coded = project.domain(name).solid is None
     code_of = code_partition(composites, project.grid.code_reach) if coded else None
+    which = None if coded else order.index(name)
 
     def test(nodes, flat: np.ndarray) -> np.ndarray:
         (ox, oy, oz), (dx, dy, dz), (nx, ny, _) = nodes.origin, nodes.spacing, nodes.shape
         a, b, c = np.unravel_index(flat, nodes.shape)
         lattice = Lattice(ox, dx, nx, oy, dy, ny)
-        which = None if coded else order.index(name)
         keep = inside_domain(
             lattice, a + nx * b, oz + c * dz, surfaces, which, solids["topography"]
         )
