@@ -543,10 +543,11 @@ def test_bands_hold_the_truth_over_many_deposits(tmp_path, name):
     realisations' P10-P90 band.  For bands that are calibrated, the count of seeds with the
     truth inside is Binomial(20, 0.8) for each quantity (expected 16; below 12 with
     probability 1 %), and on each side Binomial(20, 0.1) (expected 2; above 5 with
-    probability 1 %): a band that is wide enough but off-centre fails the second bound.  One seed cannot tell a calibrated band from a poor one: the
-    single-seed check above asks for three such 80 % events at once (true metal above 0,
-    tonnes and metal above the median), which a calibrated band meets in 51 % (independent
-    events) to 80 % (fully dependent) of seeds."""
+    probability 1 %): a band that is wide enough but off-centre fails the second bound.
+    One seed cannot tell a calibrated band from a poor one: the single-seed check above
+    asks for three such 80 % events at once (true metal above 0, tonnes and metal above
+    the median), which a calibrated band meets in 51 % (independent events) to 80 % (fully
+    dependent) of seeds."""
     from blockmodel.config.project import load_project
     from blockmodel.stages.run import run_stages, simulate_results
 

@@ -73,7 +73,8 @@ class GaussianAnamorphosis:
 
     @property
     def variance(self) -> float:
-        """Variance of the modelled point distribution (sum of the squared Hermite coefficients after the first)."""
+        """Variance of the modelled point distribution (sum of the squared Hermite
+        coefficients after the first)."""
         return float(np.sum(self.coefficients[1:] ** 2))
 
     def block_variance(self, r: float) -> float:

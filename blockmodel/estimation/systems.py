@@ -93,8 +93,9 @@ class KrigingSystems:
 
     def solve(self, values, targets, idx, cnt) -> dict[str, np.ndarray]:
         """Estimate, variance, slope, efficiency, Lagrange multiplier, sum and count of
-        negative weights, weight sum and ill-conditioning of each target (n, 3) from its neighbours ``idx``
-        (first ``cnt`` of each row); targets sharing a neighbour set share one solve."""
+        negative weights, weight sum and ill-conditioning of each target (n, 3) from its
+        neighbours ``idx`` (first ``cnt`` of each row); targets sharing a neighbour set share
+        one solve."""
         canonical = np.sort(idx, axis=1)
         order, starts = _neighbours.group_rows(canonical)
         n = len(targets)

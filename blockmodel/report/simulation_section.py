@@ -28,13 +28,15 @@ CAUTION = (
     "The bands are the spread of the realisations under the stated model: one Gaussian "
     "field per domain about one mean (or about a local mean where "
     "simulation.local_mean_window asks for one), this variogram of the normal scores, these "
-    "tails and these domain boundaries. Each realisation draws its domain's mean from the uncertainty of "
-    "the declustered mean when simulation.mean_uncertainty is on (its standard deviation is "
-    "listed below). They leave out the uncertainty of the geological interpretation, "
-    "the density, the variogram itself and the sampling and assaying, so the real "
-    "uncertainty is wider. They are evidence for the qualified person's judgement of "
-    "relative accuracy and confidence under the applicable reporting code, not a "
-    "substitute for it."
+    "tails and these domain boundaries. Each realisation draws its domain's mean from the "
+    "uncertainty of the declustered mean when simulation.mean_uncertainty is on (its "
+    "standard deviation is listed below). They leave out the uncertainty of the geological "
+    "interpretation, the density, the variogram itself and the sampling and assaying, so "
+    "the real uncertainty is wider: on invented deposits whose truth is known, the P10-P90 "
+    "band of the metal held the truth in 60 to 80 % of trials rather than 80 %, the truth "
+    "lying above the band more often than below it. They are evidence for the qualified "
+    "person's judgement of relative accuracy and confidence under the applicable reporting "
+    "code, not a substitute for it."
 )
 
 
