@@ -235,6 +235,38 @@ def test_variance_of_the_declustered_mean(rng):
     assert one == pytest.approx(plain, rel=1e-12)
 
 
+def test_the_sill_gives_the_composites_their_variance(rng):
+    """Identity (derived in :mod:`blockmodel.simulation.dispersion`; the dispersion variance
+    of Journel & Huijbregts 1978, recalled from memory): under a stationary Gaussian model
+    of sill s and correlation R, the expected declustered variance of the values at the
+    data about their declustered mean is s (1 - w'Rw).  Monte Carlo, 4,000 draws at 80
+    data of a model whose ranges reach across them: at the sill found (1.2 or more) the
+    mean declustered variance is 1 within 4 standard errors, and at sill 1 it falls short
+    by more than 8.  A short-range model keeps a sill within 3 % of 1; ranges far beyond
+    the data stop with an error."""
+    from blockmodel.simulation.dispersion import dispersion_sill
+    from blockmodel.stages.variography import scaled_model
+
+    pts = rng.uniform(0.0, 1.0, (80, 3)) * [60.0, 60.0, 20.0]
+    w = rng.uniform(0.3, 3.0, 80)
+    wn = w / w.sum()
+    shape = bm.VariogramModel(0.1, [bm.Structure("spherical", 0.9, (150.0, 150.0, 50.0))])
+    sill = dispersion_sill(pts, w, shape)
+    assert sill >= 1.2
+    h = (pts[:, None, :] - pts[None, :, :]).reshape(-1, 3)
+    for s, at_sill in ((sill, True), (1.0, False)):
+        cov = scaled_model(shape, s).covariance(h).reshape(80, 80)
+        draws = rng.standard_normal((4000, 80)) @ np.linalg.cholesky(cov).T
+        spread = ((draws - (draws @ wn)[:, None]) ** 2) @ wn
+        z = (spread.mean() - 1.0) / (spread.std(ddof=1) / np.sqrt(len(spread)))
+        assert (abs(z) < 4.0) if at_sill else (z < -8.0), (s, spread.mean(), z)
+    short = bm.VariogramModel(0.1, [bm.Structure("spherical", 0.9, (3.0, 3.0, 3.0))])
+    assert dispersion_sill(pts, w, short) == pytest.approx(1.0, abs=0.03)
+    with pytest.raises(ValueError, match="too long against the domain"):
+        far = bm.VariogramModel(0.0, [bm.Structure("spherical", 1.0, (1e5, 1e5, 1e5))])
+        dispersion_sill(pts, w, far)
+
+
 def test_realisations_reproduce_histogram_and_variogram(rng):
     """Chilès & Delfiner (2012) §7.3: realisations reproduce the data's distribution and
     the variogram model.  Domain 40 x 40 x 6 m with a 8 m range (many ranges, so one
@@ -680,6 +712,33 @@ def test_a_local_mean_needs_ranges_and_a_pure_nugget_model_runs(tmp_path, capsys
     assert main(["run", str(project_file)]) == 0
     blocks = pd.read_parquet(tmp_path / "out" / "block_model.parquet")
     assert blocks["cu"].notna().any() and blocks["cu_efficiency"].isna().all()
+
+
+def test_ranges_beyond_the_domain_stop_the_simulation(tmp_path, capsys):
+    """A grade model whose ranges dwarf the domain leaves the normal scores' sill unfixed
+    by the composites (:mod:`blockmodel.simulation.dispersion`): ``simulate`` stops with
+    exit status 2 naming the key and writes nothing; a model given for the normal scores
+    is used as given and runs."""
+    from tests.conftest import make_box_project
+
+    project_file = make_box_project(tmp_path)
+    far = (
+        "\n[variogram.ore.cu]\nnugget = 0.0\nstructures = [{ kind = 'spherical', sill = 1.0, "
+        "ranges = [1e5, 1e5, 1e5] }]\n"
+    )
+    base = project_file.read_text() + far
+    project_file.write_text(base)
+    out = tmp_path / "sim"
+    assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "simulation.models.ore.cu" in err and "too long" in err and "Traceback" not in err
+    assert not out.exists() and not list(tmp_path.glob(".sim*"))
+    given = (
+        '\n[simulation.models."ore.cu"]\nnugget = 0.3\nstructures = [{ kind = '
+        "'exponential', sill = 0.7, ranges = [60.0, 40.0, 20.0] }]\n"
+    )
+    project_file.write_text(base + given)
+    assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 0
 
 
 def test_nodes_of_a_domain_placed_by_codes(tmp_path):

@@ -343,10 +343,12 @@ class Simulation:
     )
     model: str = setting(
         "fit",
-        doc="the normal scores' variogram (sill 1) of a domain and grade not in "
-        "simulation.models: fit: the grade model's structures and ranges with the nugget "
-        "and sills fitted to the normal scores' experimental variograms along its axes; "
-        "standardised: the grade model scaled to sill 1",
+        doc="the normal scores' variogram of a domain and grade not in simulation.models: "
+        "fit: the grade model's structures and ranges with the nugget and sills fitted to "
+        "the normal scores' experimental variograms along its axes; standardised: the grade "
+        "model's shape; either scaled so that its variance among the composites is theirs, "
+        "1 (a sill of 1 when its ranges are short against the domain; with a local mean: "
+        "the residuals' variance)",
         choices=("fit", "standardised"),
     )
     models: dict[str, ModelSpec] = setting(

@@ -129,7 +129,9 @@ def render_simulation(
         )
     report.paragraph(
         f"{sim.realisations} realisations (seed {sim.seed}) per domain and grade. Normal "
-        "scores of the declustered composites; an unconditional Gaussian field on nodes "
+        "scores of the declustered composites, their variogram model scaled so that its "
+        "variance among the composites is theirs, 1 (the sill in the table below; a model "
+        "given in the project file as given); an unconditional Gaussian field on nodes "
         f"{spacing} m apart, made by the spectral (FFT) method, "
         f"{mean}conditioned by simple kriging of its residuals from the {s.neighbours} nearest "
         "composites of the domain (hard boundaries; each composite moved to the node it "

@@ -179,7 +179,8 @@ def plan_simulation(
     scores : (n,) float64
         Their normal scores.
     model : VariogramModel
-        Of the normal scores (total sill 1).
+        Of the normal scores (its sill: their variance at a point); with a local mean,
+        of total sill 1: its correlation, scaled to the residuals' variance.
     transform : GaussianTransform
     seed : tuple of int
     neighbours : int

@@ -15,6 +15,7 @@ import pandas as pd
 from blockmodel.config.project import Project
 from blockmodel.errors import setting_error
 from blockmodel.simulation.conditional import plan_simulation, simulate_blocks
+from blockmodel.simulation.dispersion import dispersion_sill
 from blockmodel.simulation.transform import gaussian_transform
 from blockmodel.stages.declustering import Declustering
 from blockmodel.stages.domain_model import code_partition
@@ -26,7 +27,7 @@ from blockmodel.stages.simulation_results import (
 )
 from blockmodel.stages.support import support_curves
 from blockmodel.stages.tables import class_order
-from blockmodel.stages.variography import Variography, normal_score_model
+from blockmodel.stages.variography import Variography, normal_score_model, scaled_model
 
 __all__ = ["REPRODUCTION_TOLERANCE", "DomainSimulation", "Simulation", "simulate"]
 
@@ -99,17 +100,16 @@ def simulate(
                 f"simulation.maximum.{key}",
                 f"the maximum {maximum:g} is below the largest composite ({values.max():g})",
             )
+        weights = declustering.weights[own]
         scores, transform = gaussian_transform(
             values,
-            declustering.weights[own],
+            weights,
             minimum=min(s.minimum, float(values.min())),
             maximum=maximum,
             upper_tail=s.upper_tail,
             omega=s.omega,
         )
-        model, source = normal_score_model(
-            project, composites[own], declustering.weights[own], variography[key]
-        )
+        model, source = normal_score_model(project, composites[own], weights, variography[key])
         window = s.local_mean_window.get(key, 0.0)
         if window > 0.0 and not model.structures:
             raise setting_error(
@@ -118,12 +118,15 @@ def simulate(
                 f"the normal scores' model of {key} is a pure nugget: no ranges to scale "
                 "the window by",
             )
+        points = composites.loc[own, ["x", "y", "z"]].to_numpy(float)
+        if window == 0.0 and key not in s.models:
+            model, source = _sill_from_data(project, key, model, source, points, weights)
         plan = plan_simulation(
             table.iloc[rows][["i", "j", "k"]].to_numpy(np.int64),
             np.asarray(grid_origin, dtype=float),
             units.size,
             units.discretisation,
-            composites.loc[own, ["x", "y", "z"]].to_numpy(float),
+            points,
             scores,
             model,
             transform,
@@ -131,7 +134,7 @@ def simulate(
             neighbours=s.neighbours,
             workers=1,
             inside=_inside(project, d.name, solids, composites),
-            weights=declustering.weights[own],
+            weights=weights,
             mean_uncertainty=s.mean_uncertainty,
             local_mean_window=window,
         )
@@ -148,7 +151,7 @@ def simulate(
             grades,
             len(plan.targets),
             plan.simulator.cells,
-            float(np.average(values, weights=declustering.weights[own])),
+            float(np.average(values, weights=weights)),
             len(values),
             plan.relocated_dropped,
             plan.blocks_without_inside_nodes,
@@ -171,6 +174,22 @@ def simulate(
         units.discretisation,
     )
     return Simulation(realisations, seed, cutoffs, out, class_order(project), units, support)
+
+
+def _sill_from_data(project: Project, key: str, model, source: str, points, weights):
+    """The normal scores' model (total sill 1) scaled to the sill at which its variance
+    among the domain's composites is theirs, 1 (:mod:`blockmodel.simulation.dispersion`),
+    and its source saying so."""
+    try:
+        sill = dispersion_sill(points, weights, model)
+    except ValueError as exc:
+        raise setting_error(
+            project.source,
+            f"simulation.models.{key}",
+            f"{exc}; give {key} a local mean (simulation.local_mean_window) or its "
+            "normal-score model",
+        ) from None
+    return scaled_model(model, sill), f"{source}; sill {sill:.2f}, the composites' variance"
 
 
 def _solids(project: Project) -> dict:

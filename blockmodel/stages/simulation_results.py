@@ -30,7 +30,7 @@ class DomainSimulation:
     ----------
     domain, grade : str
     model : VariogramModel
-        Of the normal scores (total sill 1).
+        Of the normal scores, as simulated (its sill: their variance at a point).
     model_source : str
         ``fitted to the normal scores`` or ``grade model standardised``.
     transform : GaussianTransform
