@@ -3,12 +3,12 @@
 The normal scores of a domain's composites have declustered variance 1 by construction.
 That variance is a dispersion variance: the spread of point values about the domain's own
 mean, not about the mean of an unbounded field.  Under a stationary model of sill
-``sigma^2`` and correlation ``rho``, the expected declustered variance of the data about
+``sigma^2`` and correlation ``R``, the expected declustered variance of the data about
 their declustered mean is
 
     E[sum_a w_a (Y_a - sum_b w_b Y_b)^2] = sigma^2 (1 - w' R w),
 
-(weights summing to 1, ``R`` the data's correlations with 1 on the diagonal): the variance
+(weights summing to 1, ``R`` the correlations among the data, 1 on the diagonal): the variance
 about the field's mean less the variance of the weighted mean.  It is the dispersion
 variance of points within the domain, the mean of the variogram over its pairs (Journel &
 Huijbregts 1978, dispersion variance; recalled from memory), taken over the data.  Where
@@ -38,7 +38,8 @@ def dispersion_sill(data: np.ndarray, weights: np.ndarray, model: VariogramModel
     Parameters
     ----------
     data : (n, 3) float64, metres
-        Distinct positions of the normal scores.
+        Positions of the normal scores (two at one place correlate through the structures
+        only: the nugget is a datum's own).
     weights : (n,) float64
         Their declustering weights (any positive scale).
     model : VariogramModel
