@@ -32,7 +32,9 @@ class DomainSimulation:
     model : VariogramModel
         Of the normal scores, as simulated (its sill: their variance at a point).
     model_source : str
-        ``fitted to the normal scores`` or ``grade model standardised``.
+        ``nugget and sills fitted to the normal scores`` or ``the grade model's shape``,
+        each followed by the sill found from the composites' variance, or ``given in the
+        project file``.
     transform : GaussianTransform
     rows : (b,) int64
         Rows of the block model simulated (the domain's estimated blocks).

@@ -304,7 +304,7 @@ def normal_score_model(
         return _model_from_spec(given), "given in the project file"
     m = grade.model
     if project.simulation.model == "standardised" or not m.structures:
-        return scaled_model(m, 1.0 / m.total_sill), "grade model standardised to sill 1"
+        return scaled_model(m, 1.0 / m.total_sill), "the grade model's shape"
     o = m.structures[0].orientation
     ranges = {
         f"range{k + 1}_{axis}": r
