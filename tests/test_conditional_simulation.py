@@ -36,6 +36,7 @@ def _small_plan(
     weights=None,
     *,
     mean_uncertainty=False,
+    variance_uncertainty=False,
     local_mean_window=0.0,
     trend=0.0,
     spread=1.0,
@@ -60,6 +61,7 @@ def _small_plan(
         neighbours=neighbours,
         weights=weights,
         mean_uncertainty=mean_uncertainty,
+        variance_uncertainty=variance_uncertainty,
         local_mean_window=local_mean_window,
     )
     return plan, data, scores
@@ -116,6 +118,72 @@ def test_simple_kriging_identity_with_an_uncertain_mean(rng):
     free = _assert_ensemble(plan, plan.weights.apply(plan.data_scores), var, 0.02)
     # the added variance is large enough here for the check to see it
     assert (free_share[free] ** 2 * plan.mean_sd**2 / var[free]).max() > 0.2
+
+
+def test_simple_kriging_identity_with_an_uncertain_variance(rng):
+    """Each realisation scales its sill by a = nu / chi2(nu), independently of its field
+    and its mean, so (conditioning as in Journel & Huijbregts 1978, §VII.C, of a field of
+    sill a times the model's) the ensemble mean is still the simple-kriging estimate and
+    the ensemble variance at a node is E[a] = nu / (nu - 2) times the simple-kriging
+    variance plus (1 - sum of its weights)^2 E[a] s_m^2 (the mean's draw is scaled with
+    the field: its variance under sill a).  nu is that of the declustered variance at the
+    data kept.  Tolerances as in the tests above (R = 1000)."""
+    from blockmodel.simulation.variance_uncertainty import declustered_variance_dof
+
+    weights = rng.uniform(0.5, 2.0, 30)
+    plan, _, _ = _small_plan(
+        rng, n_data=30, weights=weights, mean_uncertainty=True, variance_uncertainty=True
+    )
+    at_data = plan.nodes.centres(plan.data_nodes)
+    nu = declustered_variance_dof(at_data, weights, MODEL)
+    # fewer degrees of freedom than data; enough (above 8) for the factor's spread to be
+    # finite and the ensemble's variance to settle
+    assert plan.variance_dof == pytest.approx(nu, rel=1e-12) and 8.0 < nu < 29.0
+    factors = np.array([plan.variance_factor(r) for r in range(20000)])
+    # the mean of nu / chi2(nu) is nu / (nu - 2); its draws' standard error sets the bound
+    expected = nu / (nu - 2.0)
+    assert abs(factors.mean() - expected) < 4.5 * factors.std() / np.sqrt(len(factors))
+    assert plan.variance_factor(7) == plan.variance_factor(7)  # its own seed
+    free_share = 1.0 - plan.weights.weights.sum(axis=1)
+    var = expected * (plan.weights.variance + free_share**2 * plan.mean_sd**2)
+    # a heavy-tailed factor shared by every node: 0.05 is about 3 standard errors here
+    _assert_ensemble(plan, plan.weights.apply(plan.data_scores), var, 0.05)
+
+
+def test_the_declustered_variance_has_its_degrees_of_freedom(rng):
+    """Reference: n independent values of equal weight: their variance about their mean
+    has n - 1 degrees of freedom (Cochran's theorem; recalled from memory).  Oracle: the
+    mean and variance of the quadratic form y'Ay, A = diag(w) - ww', of a Gaussian vector
+    of covariance C are tr(AC) and 2 tr(ACAC) (moments of Gaussian quadratic forms; recalled
+    from memory), computed with dense matrices on an anisotropic nested model with a
+    nugget and uneven weights, and by Monte Carlo (40,000 draws; the mean within 4.5 of its
+    standard errors)."""
+    from blockmodel.simulation.variance_uncertainty import declustered_variance_dof
+
+    points = rng.uniform(0, 100, size=(200, 3))
+    assert declustered_variance_dof(
+        points, np.ones(200), bm.VariogramModel(2.0, [])
+    ) == pytest.approx(199.0, rel=1e-12)
+    o = bm.Orientation(30.0, 10.0, 0.0)
+    model = bm.VariogramModel(
+        0.15,
+        [
+            bm.Structure("spherical", 0.5, (40, 20, 8), o),
+            bm.Structure("exponential", 0.35, (90, 60, 30), o),
+        ],
+    )
+    w = rng.uniform(0.2, 3.0, 200)
+    wn = w / w.sum()
+    cov = model.covariance((points[:, None, :] - points[None, :, :]).reshape(-1, 3))
+    cov = cov.reshape(200, 200)
+    a = np.diag(wn) - np.outer(wn, wn)
+    mean, spread = np.trace(a @ cov), 2.0 * np.trace(a @ cov @ a @ cov)
+    nu = declustered_variance_dof(points, w, model)
+    assert nu == pytest.approx(2.0 * mean**2 / spread, rel=1e-10)
+    y = np.linalg.cholesky(cov) @ rng.standard_normal((200, 40000))
+    v = (wn[:, None] * (y - wn @ y) ** 2).sum(axis=0)
+    assert abs(v.mean() - mean) < 4.5 * v.std() / np.sqrt(v.size)
+    assert v.var() == pytest.approx(spread, rel=0.05)  # 40,000 draws: under 1 % error
 
 
 def test_simple_kriging_identity_with_a_local_mean(rng):

@@ -331,6 +331,13 @@ class Simulation:
         "the declustered mean under the normal scores' model; false: the mean is known "
         "and the bands leave out its uncertainty",
     )
+    variance_uncertainty: bool = setting(
+        True,
+        doc="each realisation draws the factor on its normal scores' sill from the spread "
+        "the composites' declustered variance has under the model (a scaled inverse "
+        "chi-square); false: the sill is known and the bands leave out the uncertainty of "
+        "the histogram's spread",
+    )
     local_mean_window: dict[str, float] = setting(
         doc="domains and grades whose normal scores follow a trend (e.g. a high-grade "
         "shoot inside the domain), simulated about a local mean: a Gaussian-kernel "

@@ -30,8 +30,11 @@ CAUTION = (
     "simulation.local_mean_window asks for one), this variogram of the normal scores, these "
     "tails and these domain boundaries. Each realisation draws its domain's mean from the "
     "uncertainty of the declustered mean when simulation.mean_uncertainty is on (its "
-    "standard deviation is listed below). They leave out the uncertainty of the geological "
-    "interpretation, the density, the variogram itself and the sampling and assaying, so "
+    "standard deviation is listed below), and the factor on its sill from the uncertainty "
+    "of the composites' variance when simulation.variance_uncertainty is on (its degrees "
+    "of freedom are listed below). They leave out the uncertainty of the geological "
+    "interpretation, the density, the variogram's shape and ranges, and the sampling and "
+    "assaying, so "
     "the real uncertainty is wider: on invented deposits whose truth is known, the P10-P90 "
     "band of the metal held the truth in 70 to 80 % of trials rather than 80 %, the truth "
     "lying above the band more often than below it. They are evidence for the qualified "
@@ -170,6 +173,9 @@ def render_simulation(
                 ),
                 "mean's standard deviation (normal scores)": (
                     round(d.mean_sd, 3) if d.mean_sd > 0 else "0 (known)"
+                ),
+                "sill's degrees of freedom": (
+                    round(d.variance_dof) if np.isfinite(d.variance_dof) else "known"
                 ),
                 "FFT grid nodes": d.fft_cells,
                 "preparation (s)": d.timings["preparation"],

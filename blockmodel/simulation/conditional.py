@@ -26,6 +26,7 @@ from blockmodel.simulation.local_mean import local_mean
 from blockmodel.simulation.mean_uncertainty import declustered_mean_variance
 from blockmodel.simulation.spectral import SpectralSimulator
 from blockmodel.simulation.transform import GaussianTransform
+from blockmodel.simulation.variance_uncertainty import declustered_variance_dof
 from blockmodel.variography.models import VariogramModel
 
 __all__ = ["NodeGrid", "SimulationPlan", "plan_simulation", "simulate_blocks"]
@@ -87,6 +88,10 @@ class SimulationPlan:
         (:mod:`blockmodel.simulation.local_mean`); None: zero everywhere.
     residual_sd : float
         Standard deviation of the scores about their mean: the unconditional field's.
+    variance_dof : float
+        Degrees of freedom of the data's declustered variance; each realisation scales its
+        model's sill by ``nu / chi2(nu)`` (:meth:`variance_factor`); inf: the variance is
+        known.
     """
 
     nodes: NodeGrid
@@ -105,6 +110,16 @@ class SimulationPlan:
     data_mean: np.ndarray | None = None
     target_mean: np.ndarray | None = None
     residual_sd: float = 1.0
+    variance_dof: float = np.inf
+
+    def variance_factor(self, r: int) -> float:
+        """The factor on the model's sill in realisation ``r``: ``nu / chi2(nu)`` drawn
+        from ``default_rng([*seed, r, 2])`` (:mod:`blockmodel.simulation.variance_uncertainty`);
+        1 when the variance is known."""
+        if not np.isfinite(self.variance_dof):
+            return 1.0
+        rng = np.random.default_rng([*self.seed, r, 2])
+        return float(self.variance_dof / rng.chisquare(self.variance_dof))
 
     def realisation_scores(self, r: int, clock: dict | None = None) -> np.ndarray:
         """Conditioned normal scores at the targets in realisation ``r``: (m,).
@@ -112,8 +127,9 @@ class SimulationPlan:
         conditioning."""
         start = time.perf_counter()
         field = self.simulator.draw(np.random.default_rng([*self.seed, r])).ravel()
-        if self.residual_sd != 1.0:
-            field *= self.residual_sd
+        spread = self.variance_factor(r) ** 0.5
+        if spread * self.residual_sd != 1.0:
+            field *= spread * self.residual_sd
         drawn = time.perf_counter()
         residual = self.data_scores - field[self.data_nodes]
         if self.data_mean is not None:
@@ -122,7 +138,8 @@ class SimulationPlan:
         if self.target_mean is not None:
             out += self.target_mean
         if self.mean_sd > 0.0:
-            mean = self.mean_sd * np.random.default_rng([*self.seed, r, 1]).standard_normal()
+            draw = np.random.default_rng([*self.seed, r, 1]).standard_normal()
+            mean = spread * self.mean_sd * draw
             out += mean * self.weights.mean_share
         if clock is not None:
             clock["unconditional"] = clock.get("unconditional", 0.0) + drawn - start
@@ -161,6 +178,7 @@ def plan_simulation(
     inside: Callable[[NodeGrid, np.ndarray], np.ndarray] | None = None,
     weights: np.ndarray | None = None,
     mean_uncertainty: bool = False,
+    variance_uncertainty: bool = False,
     local_mean_window: float = 0.0,
 ) -> SimulationPlan:
     """Prepare the conditional simulation of one domain and grade.
@@ -198,6 +216,10 @@ def plan_simulation(
         mean at the data kept
         (:func:`~blockmodel.simulation.mean_uncertainty.declustered_mean_variance`, under
         the residuals' model); false: the mean is known.
+    variance_uncertainty : bool
+        Each realisation draws the factor on the model's sill from the scaled inverse
+        chi-square of the declustered variance's degrees of freedom at the data kept
+        (:mod:`blockmodel.simulation.variance_uncertainty`); false: the sill is known.
     local_mean_window : float
         Positive: the mean varies locally, a kernel average of the declustered scores
         with a window of this fraction of the longest structure's ranges
@@ -257,6 +279,9 @@ def plan_simulation(
     if mean_uncertainty:
         variance = declustered_mean_variance(at_data, kept_weights, model)
         mean_sd = residual_sd * float(np.sqrt(variance))
+    dof = np.inf
+    if variance_uncertainty:
+        dof = declustered_variance_dof(at_data, kept_weights, model)
     return SimulationPlan(
         nodes,
         simulator,
@@ -274,6 +299,7 @@ def plan_simulation(
         None if local is None else local.at_data,
         None if local is None else local.at_targets,
         residual_sd,
+        dof,
     )
 
 

@@ -21,10 +21,8 @@ on the wide side for the estimate actually used.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
 
-from blockmodel.estimation._kernels import _structured_cov
-from blockmodel.estimation._threads import run_split
+from blockmodel.simulation._pair_sums import pair_sums
 from blockmodel.variography.models import VariogramModel
 
 __all__ = ["declustered_mean_variance"]
@@ -50,32 +48,5 @@ def declustered_mean_variance(
         In the model's units squared.  Exact pair sum, ``O(n^2)`` covariances in compiled
         code; each row is summed alone, so the result does not depend on the threads.
     """
-    data = np.ascontiguousarray(data, dtype=np.float64)
-    w = np.asarray(weights, dtype=np.float64)
-    if data.ndim != 2 or data.shape[1] != 3 or w.shape != (len(data),):
-        raise ValueError("data must be (n, 3) and weights (n,)")
-    if len(w) == 0 or not np.all(w >= 0) or w.sum() <= 0:
-        raise ValueError("weights must be non-negative with a positive sum")
-    w = w / w.sum()
-    kinds, sills, mats = model.packed()
-    rows = np.empty(len(data))
-    run_split(_row_sums, len(data), data, w, kinds, sills, mats, rows)
-    return float(np.dot(w, rows) + model.nugget * np.dot(w, w))
-
-
-@njit(cache=True, nogil=True)
-def _row_sums(first, last, data, w, kinds, sills, mats, rows):
-    """rows[i] = sum_j w_j C_struct(x_i - x_j) for i in first .. last - 1 (nugget left out)."""
-    n = data.shape[0]
-    for i in range(first, last):
-        total = 0.0
-        for j in range(n):
-            total += w[j] * _structured_cov(
-                data[i, 0] - data[j, 0],
-                data[i, 1] - data[j, 1],
-                data[i, 2] - data[j, 2],
-                kinds,
-                sills,
-                mats,
-            )
-        rows[i] = total
+    w, u, _ = pair_sums(data, weights, model)
+    return float(np.dot(w, u))

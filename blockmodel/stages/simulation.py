@@ -136,6 +136,7 @@ def simulate(
             inside=_inside(project, d.name, solids, composites),
             weights=weights,
             mean_uncertainty=s.mean_uncertainty,
+            variance_uncertainty=s.variance_uncertainty,
             local_mean_window=window,
         )
         prepared = time.perf_counter()
@@ -162,6 +163,7 @@ def simulate(
                 **{k: round(v, 3) for k, v in clock.items()},
             },
             plan.residual_sd,
+            plan.variance_dof,
         )
     cutoffs = np.asarray(project.report.cutoffs, dtype=float)
     support = support_curves(

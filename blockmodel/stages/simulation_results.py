@@ -63,6 +63,9 @@ class DomainSimulation:
     residual_sd : float
         Standard deviation of the normal scores about a locally varying mean; 1: the mean
         is one number.
+    variance_dof : float
+        Degrees of freedom of the composites' declustered variance, from which each
+        realisation draws the factor on its sill; inf: the sill is known.
     """
 
     domain: str
@@ -81,6 +84,7 @@ class DomainSimulation:
     mean_sd: float
     timings: dict[str, float]
     residual_sd: float = 1.0
+    variance_dof: float = np.inf
 
 
 @dataclass(frozen=True)
