@@ -463,6 +463,40 @@ def test_simulate_command_writes_its_outputs(box_site, tmp_path, capsys):
     assert "--realisations" in capsys.readouterr().err
 
 
+def test_a_structure_fitted_to_no_sill_is_left_out_of_the_normal_scores_model(
+    monkeypatch, tmp_path
+):
+    """The normal scores' fit leaves out a structure whose sill comes out zero; each
+    structure kept takes the orientation of the grade model's structure with its kind and
+    ranges (the fit itself is replaced here by one that kept the second structure only)."""
+    import importlib
+    from types import SimpleNamespace
+
+    from blockmodel.config.project import load_project
+    from tests.conftest import make_box_project
+
+    stage = importlib.import_module("blockmodel.stages.variography")
+    project = load_project(make_box_project(tmp_path))
+
+    first, second = bm.Orientation(10.0, 0.0, 0.0), bm.Orientation(70.0, 20.0, 5.0)
+    grade_model = bm.VariogramModel(
+        0.1,
+        [
+            bm.Structure("spherical", 0.5, (30.0, 20.0, 10.0), first),
+            bm.Structure("exponential", 0.4, (90.0, 60.0, 30.0), second),
+        ],
+    )
+    kept = bm.VariogramModel(0.6, [bm.Structure("exponential", 0.4, (90.0, 60.0, 30.0), first)])
+    fitted = SimpleNamespace(fit=SimpleNamespace(model=kept))
+    monkeypatch.setattr(stage, "domain_variography", lambda *args, **kwargs: fitted)
+    grade = SimpleNamespace(domain="ore", grade="cu", model=grade_model)
+    model, source = stage.normal_score_model(project, None, None, grade)
+    assert source == "nugget and sills fitted to the normal scores"
+    (s,) = model.structures
+    assert s.kind == "exponential" and s.orientation == second
+    assert model.total_sill == pytest.approx(1.0) and model.nugget == pytest.approx(0.6)
+
+
 def test_a_run_can_include_the_simulation(tmp_path):
     """``[simulation] in_run = true``: the run's report gains the section and its files."""
     from tests.conftest import make_box_project

@@ -325,12 +325,20 @@ def normal_score_model(
         scores_project, grade.domain, grade.grade, composites, weights, scan=False
     )
     model = fitted.fit.model
-    # the grade model's orientation per structure (the fit takes the first's for all)
+    # the grade model's orientation per structure (the fit takes the first's for all); a
+    # structure whose sill was fitted to zero is left out, so each is found by its ranges
     model = VariogramModel(
         model.nugget,
         [
-            dataclasses.replace(st, orientation=g.orientation)
-            for st, g in zip(model.structures, m.structures, strict=True)
+            dataclasses.replace(
+                st,
+                orientation=next(
+                    g.orientation
+                    for g in m.structures
+                    if g.kind == st.kind and np.allclose(g.ranges, st.ranges)
+                ),
+            )
+            for st in model.structures
         ],
     )
     return scaled_model(
