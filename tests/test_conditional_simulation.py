@@ -128,6 +128,8 @@ def test_simple_kriging_identity_with_an_uncertain_variance(rng):
     variance plus (1 - sum of its weights)^2 E[a] s_m^2 (the mean's draw is scaled with
     the field: its variance under sill a).  nu is that of the declustered variance at the
     data kept.  Tolerances as in the tests above (R = 1000)."""
+    from blockmodel.report.simulation_section import _dof
+    from blockmodel.simulation.conditional import FEWEST_DOF
     from blockmodel.simulation.variance_uncertainty import declustered_variance_dof
 
     weights = rng.uniform(0.5, 2.0, 30)
@@ -148,6 +150,13 @@ def test_simple_kriging_identity_with_an_uncertain_variance(rng):
     var = expected * (plan.weights.variance + free_share**2 * plan.mean_sd**2)
     # a heavy-tailed factor shared by every node: 0.05 is about 3 standard errors here
     _assert_ensemble(plan, plan.weights.apply(plan.data_scores), var, 0.05)
+    # three data: too few degrees of freedom for the factor to have a finite variance; the
+    # sill is taken as known, and the page says so
+    few, _, _ = _small_plan(rng, n_data=3, variance_uncertainty=True)
+    assert few.variance_dof <= FEWEST_DOF
+    assert {few.variance_factor(r) for r in range(50)} == {1.0}
+    assert _dof(few.variance_dof).endswith("too few to draw, taken as known")
+    assert _dof(plan.variance_dof) == round(nu) and _dof(np.inf) == "known"
 
 
 def test_the_declustered_variance_has_its_degrees_of_freedom(rng):

@@ -15,6 +15,7 @@ from blockmodel.report.figures import CLASS_COLOURS, pyplot, save_png
 from blockmodel.report.files import safe_stem, write_table
 from blockmodel.report.html import HtmlReport
 from blockmodel.report.tables import metal_units, round_significant
+from blockmodel.simulation.conditional import FEWEST_DOF
 from blockmodel.stages.simulation import REPRODUCTION_TOLERANCE, Simulation
 
 __all__ = [
@@ -42,6 +43,15 @@ CAUTION = (
     "person's judgement of relative accuracy and confidence under the applicable reporting "
     "code, not a substitute for it."
 )
+
+
+def _dof(nu: float):
+    """The sill's degrees of freedom as the page lists them."""
+    if not np.isfinite(nu):
+        return "known"
+    if nu <= FEWEST_DOF:
+        return f"{nu:.1f}: too few to draw, taken as known"
+    return round(nu)
 
 
 def simulation_grade_tonnage(project: Project, sim: Simulation) -> pd.DataFrame:
@@ -175,9 +185,7 @@ def render_simulation(
                 "mean's standard deviation (normal scores)": (
                     round(d.mean_sd, 3) if d.mean_sd > 0 else "0 (known)"
                 ),
-                "sill's degrees of freedom": (
-                    round(d.variance_dof) if np.isfinite(d.variance_dof) else "known"
-                ),
+                "sill's degrees of freedom": _dof(d.variance_dof),
                 "FFT grid nodes": d.fft_cells,
                 "preparation (s)": d.timings["preparation"],
                 "realisations (s)": d.timings["realisations"],

@@ -29,7 +29,10 @@ from blockmodel.simulation.transform import GaussianTransform
 from blockmodel.simulation.variance_uncertainty import declustered_variance_dof
 from blockmodel.variography.models import VariogramModel
 
-__all__ = ["NodeGrid", "SimulationPlan", "plan_simulation", "simulate_blocks"]
+__all__ = ["FEWEST_DOF", "NodeGrid", "SimulationPlan", "plan_simulation", "simulate_blocks"]
+
+# the sill's factor nu / chi2(nu) has a finite variance only above 4 degrees of freedom
+FEWEST_DOF = 4.0
 
 
 @dataclass(frozen=True)
@@ -90,8 +93,8 @@ class SimulationPlan:
         Standard deviation of the scores about their mean: the unconditional field's.
     variance_dof : float
         Degrees of freedom of the data's declustered variance; each realisation scales its
-        model's sill by ``nu / chi2(nu)`` (:meth:`variance_factor`); inf: the variance is
-        known.
+        model's sill by ``nu / chi2(nu)`` (:meth:`variance_factor`; not at
+        :data:`FEWEST_DOF` or fewer); inf: the variance is known.
     """
 
     nodes: NodeGrid
@@ -115,8 +118,9 @@ class SimulationPlan:
     def variance_factor(self, r: int) -> float:
         """The factor on the model's sill in realisation ``r``: ``nu / chi2(nu)`` drawn
         from ``default_rng([*seed, r, 2])`` (:mod:`blockmodel.simulation.variance_uncertainty`);
-        1 when the variance is known."""
-        if not np.isfinite(self.variance_dof):
+        1 when the variance is known, or when ``nu`` is :data:`FEWEST_DOF` or fewer (the
+        factor would have no finite variance: the sill is then taken as known)."""
+        if not FEWEST_DOF < self.variance_dof < np.inf:
             return 1.0
         rng = np.random.default_rng([*self.seed, r, 2])
         return float(self.variance_dof / rng.chisquare(self.variance_dof))
