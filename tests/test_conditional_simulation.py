@@ -506,6 +506,35 @@ def test_a_structure_fitted_to_no_sill_is_left_out_of_the_normal_scores_model(
     assert model.total_sill == pytest.approx(1.0) and model.nugget == pytest.approx(0.6)
 
 
+def test_the_realisations_reproduce_the_grades_before_capping(tmp_path):
+    """A capped domain is simulated from its composites before capping (the transform's
+    table tops at the largest uncapped composite, their mean is the uncapped one);
+    ``simulation.capped_grades = true`` simulates the capped composites instead."""
+    from blockmodel.config.project import load_project
+    from blockmodel.stages.run import run_stages, simulate_results
+    from tests.conftest import make_box_project
+
+    path = make_box_project(tmp_path)
+    base = path.read_text()
+    path.write_text(base + '\n[[capping]]\ndomain = "ore"\ngrade = "cu"\npercentile = 90.0\n')
+    results = run_stages(load_project(path))
+    table = results.composites.table
+    ore = table[table["domain"] == "ore"]
+    cap, top = ore["cu"].max(), ore["cu_uncapped"].max()
+    assert top > 1.5 * cap
+    uncapped = simulate_results(results, realisations=4, workers=1).by_key["ore.cu"]
+    assert uncapped.transform.values[-1] == top
+    assert uncapped.declustered_mean > np.average(
+        ore["cu"], weights=results.declustering.weights[ore.index]
+    )
+    path.write_text(path.read_text() + "\n[simulation]\ncapped_grades = true\n")
+    results = run_stages(load_project(path))
+    capped = simulate_results(results, realisations=4, workers=1).by_key["ore.cu"]
+    assert capped.transform.values[-1] == cap
+    assert capped.declustered_mean < uncapped.declustered_mean
+    assert capped.grades.mean() < uncapped.grades.mean()
+
+
 def test_a_run_can_include_the_simulation(tmp_path):
     """``[simulation] in_run = true``: the run's report gains the section and its files."""
     from tests.conftest import make_box_project

@@ -364,10 +364,16 @@ class Simulation:
         entry="DOMAIN.GRADE",
         factory=dict,
     )
+    capped_grades: bool = setting(
+        False,
+        doc="the realisations reproduce the capped composites; false: the composites before "
+        "capping (in the normal-score transform each grade keeps its own quantile, and a "
+        "cap would take the upper tail's metal out of every realisation)",
+    )
     minimum: float = setting(0.0, doc="lowest grade of the back-transform (lower tail)", low=0.0)
     maximum: dict[str, float] = setting(
         doc="highest grade of the back-transform per domain and grade, e.g. "
-        '{ "lode.au" = 60.0 }; none: the largest composite',
+        '{ "lode.au" = 60.0 }; none: the largest composite simulated',
         entry="DOMAIN.GRADE",
         low=0.0,
         strict_low=True,

@@ -33,7 +33,10 @@ CAUTION = (
     "from the uncertainty of the declustered mean when simulation.mean_uncertainty is "
     "on (its standard deviation is listed below), and the factor on its sill from the "
     "uncertainty of the composites' variance when simulation.variance_uncertainty is on "
-    "(its degrees of freedom are listed below). They leave out the uncertainty of the "
+    "(its degrees of freedom are listed below). Unless simulation.capped_grades is on, "
+    "the realisations carry the composites' grades before capping, so where a cap bites "
+    "their metal exceeds the capped estimate's by about the metal the cap removes. "
+    "They leave out the uncertainty of the "
     "geological interpretation, the density, the variogram's shape and ranges, and the "
     "sampling and assaying, so the real uncertainty is wider: on invented deposits "
     "whose truth is known, the P10-P90 band of the metal held the truth in 75 to 85 % "
@@ -141,9 +144,14 @@ def render_simulation(
             f"structure's ranges: {windows}; the residuals keep the model's correlation, "
             "scaled to their variance), "
         )
+    capped = (
+        "as capped for the estimate"
+        if s.capped_grades
+        else "before capping (each grade at its own quantile)"
+    )
     report.paragraph(
         f"{sim.realisations} realisations (seed {sim.seed}) per domain and grade. Normal "
-        "scores of the declustered composites, their variogram model scaled so that its "
+        f"scores of the declustered composites {capped}, their variogram model scaled so that its "
         "variance among the composites is theirs, 1 (the sill in the table below; about a "
         "local mean, the residuals' variance instead; a model given in the project file as "
         "given); an unconditional Gaussian field on nodes "

@@ -54,7 +54,9 @@ def simulate(
     project : Project
         ``[simulation]`` settings; ``realisations``, ``seed`` and ``workers`` override them.
     composites : DataFrame
-        The composites (their domain, position and grades).
+        The composites (their domain, position and grades; a capped grade ``g`` with its
+        values before capping in ``g_uncapped``, which the realisations reproduce unless
+        ``simulation.capped_grades``).
     declustering : Declustering
         Weights of the composites, for the normal-score transform.
     variography : dict
@@ -92,7 +94,8 @@ def simulate(
         if len(rows) == 0:
             continue
         own = ((composites["domain"] == d.name) & composites[g].notna()).to_numpy()
-        values = composites.loc[own, g].to_numpy(float)
+        column = g if s.capped_grades or f"{g}_uncapped" not in composites else f"{g}_uncapped"
+        values = composites.loc[own, column].to_numpy(float)
         maximum = s.maximum.get(key)
         if maximum is not None and maximum < values.max():
             raise setting_error(
