@@ -464,6 +464,7 @@ def test_simulate_command_writes_its_outputs(box_site, tmp_path, capsys):
     page = (out / "simulation.html").read_text()
     assert "Reproduction: the mean grade" in page
     assert "about a locally varying mean" in page and "residual standard deviation" in page
+    assert "(the largest composite: nothing above it)" in page  # no maximum given
     # the same seed gives the same realisations
     again = tmp_path / "again"
     assert main([*args[:-1], str(again)]) == 0

@@ -180,7 +180,11 @@ def render_simulation(
                 "domain.grade": key,
                 "normal-score model": f"nugget {m.nugget:.2f}; {structures}",
                 "source": d.model_source,
-                "maximum": d.transform.maximum,
+                "maximum": (
+                    f"{d.transform.maximum:g} (given)"
+                    if key in s.maximum
+                    else f"{d.transform.maximum:g} (the largest composite: nothing above it)"
+                ),
                 "composites": d.data,
                 "sharing a node (dropped)": d.data_dropped,
                 "nodes": d.nodes,
