@@ -42,6 +42,12 @@ def test_wrong_type_names_key(small_project):
         ('folder = "out"', 'folder = "out"\ncutoffs = [1.0, 0.5]', "report.cutoffs"),
         ('grades = { au = "g/t" }', 'grades = { au = "oz/t" }', "data.grades.au"),
         ("density = 2.7", "density = 0.0", "domains[0].density"),
+        (
+            'folder = "out"',
+            'folder = "out"\nmetal_units = { au = "ounces" }',
+            "report.metal_units.au",
+        ),
+        ('folder = "out"', 'folder = "out"\nmetal_units = { zn = "t" }', "report.metal_units.zn"),
     ],
 )
 def test_out_of_range_values(small_project, old, new, key):

@@ -14,7 +14,7 @@ from blockmodel.assess.support import (
     support_coefficient,
 )
 from blockmodel.config.sections import ClassRule
-from blockmodel.report.tables import TROY_OUNCE_GRAMS, grade_tonnage
+from blockmodel.report.tables import TROY_OUNCE_GRAMS, grade_tonnage, metal_units, statement
 
 
 @pytest.fixture
@@ -28,6 +28,40 @@ def blocks(rng):
             "au": np.where(rng.uniform(size=n) < 0.05, np.nan, rng.lognormal(0, 1, size=n)),
         }
     )
+
+
+def test_metal_units_of_each_grade_unit():
+    """Metal per tonne at grade 1 in each unit, from the definitions: 1 ppm = 1 g/t,
+    1 % = 10,000 g/t, 1 troy oz = 31.1034768 g and 1 lb = 453.59237 g (international
+    definitions of 1958 and 1959)."""
+    assert metal_units("g/t") == [("troy oz", 1 / 31.1034768), ("kg", 1e-3)]
+    assert metal_units("%") == [("t", 1e-2)]
+    assert metal_units("ppb") == [("g", 1e-3)]
+    # a base metal assayed in ppm: tonnes of metal, not troy ounces
+    assert metal_units("ppm", "t") == [("t", 1e-6)]
+    assert metal_units("%", "lb") == [("lb", 1e4 / 453.59237)]
+    with pytest.raises(ValueError, match="unknown grade unit"):
+        metal_units("oz/t")
+
+
+def test_a_metal_unit_given_for_a_grade_carries_to_the_statement(rng):
+    """report.metal_units: the grade-tonnage rows and the statement's metal column are in
+    the unit given (zinc in ppm reported in tonnes)."""
+    blocks = pd.DataFrame(
+        {
+            "domain": "seam",
+            "class": "Indicated",
+            "tonnes": rng.uniform(1000, 2000, size=50),
+            "zn": rng.lognormal(np.log(9000), 0.5, size=50),
+        }
+    )
+    gt = grade_tonnage(blocks, "zn", "ppm", [0.0, 5000.0], metal_unit="t")
+    assert set(gt["metal_unit"]) == {"t"}
+    table = statement(gt, "ppm", {"seam": 5000.0}, metal_unit="t")
+    total = table[(table["domain"] == "seam") & (table["class"] == "Total")].iloc[0]
+    above = blocks[blocks["zn"] >= 5000.0]
+    assert total["metal (t)"] == pytest.approx((above["tonnes"] * above["zn"]).sum() / 1e6)
+    assert [c for c in table if c.startswith("metal")] == ["metal (t)"]
 
 
 def test_grade_tonnage_identities(blocks):

@@ -8,9 +8,12 @@ from pathlib import Path
 
 from blockmodel.config.schema import setting
 
-__all__ = ["UNITS", "Columns", "DataFiles", "PointColumns"]
+__all__ = ["METAL_GRAMS", "UNITS", "UNIT_GRAMS_PER_TONNE", "Columns", "DataFiles", "PointColumns"]
 
 UNITS = ("g/t", "ppm", "%", "ppb")
+UNIT_GRAMS_PER_TONNE = {"g/t": 1.0, "ppm": 1.0, "ppb": 1e-3, "%": 1e4}  # metal at grade 1
+# grams in each metal unit: the troy ounce and the pound by their international definitions
+METAL_GRAMS = {"troy oz": 31.1034768, "lb": 453.59237, "g": 1.0, "kg": 1e3, "t": 1e6}
 
 
 @dataclass(frozen=True)

@@ -193,6 +193,12 @@ def _check_values(p: Project, r: Reader) -> None:
                 f"report.statement_cutoffs.{name}",
                 f"unknown domain '{name}'; domains are {', '.join(names)}",
             )
+    for name in p.report.metal_units:
+        if name not in p.data.grades:
+            r.fail(
+                f"report.metal_units.{name}",
+                f"unknown grade '{name}'; grades are {', '.join(p.data.grades)}",
+            )
     for setting_name in ("maximum", "models", "local_mean_window"):
         for key in getattr(p.simulation, setting_name):
             domain, _, grade = key.partition(".")

@@ -7,7 +7,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from pathlib import Path
 
-from blockmodel.config.data_files import Columns, DataFiles, PointColumns
+from blockmodel.config.data_files import METAL_GRAMS, Columns, DataFiles, PointColumns
 from blockmodel.config.schema import setting
 from blockmodel.estimation.search import MAX_SAMPLES, MIN_SAMPLES
 from blockmodel.estimation.systems import DISCRETISATION
@@ -438,6 +438,14 @@ class Report:
         (0.0, 0.5, 1.0, 1.5, 2.0, 3.0, 5.0), doc="cut-off grades, increasing", low=0.0
     )
     write_csv: bool = setting(False, doc="also write the block model as CSV")
+    metal_units: dict[str, str] = setting(
+        doc="the unit metal is reported in, per grade, where the grade's unit does not say "
+        'it: g/t and ppm give troy oz (and kg), ppb g and % t; e.g. { zn = "t" } for a '
+        "base metal in ppm",
+        choices=tuple(METAL_GRAMS),
+        entry="GRADE",
+        factory=dict,
+    )
     statement_cutoffs: dict[str, float] = setting(
         doc="reporting cut-off of the statement table per domain; a domain not named takes "
         "the lowest report cut-off above zero",

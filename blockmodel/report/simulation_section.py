@@ -59,10 +59,11 @@ def _dof(nu: float):
 
 def simulation_grade_tonnage(project: Project, sim: Simulation) -> pd.DataFrame:
     """The bands of every grade in one table: ``grade_name`` and ``metal_unit`` columns
-    added, metal in the grade's first metal unit (troy oz for g/t, t for %)."""
+    added, metal in the grade's first metal unit (troy oz for g/t, t for %, or the unit of
+    ``report.metal_units``)."""
     frames = []
     for g in project.grades:
-        unit, factor = metal_units(project.data.grades[g])[0]
+        unit, factor = metal_units(project.data.grades[g], project.report.metal_units.get(g))[0]
         table = sim.grade_tonnage(g)
         metal = [c for c in table if c.startswith("metal_") and c != "metal_cv"]
         table[metal] = table[metal] * factor
@@ -77,7 +78,7 @@ def simulation_volumes(project: Project, sim: Simulation) -> pd.DataFrame:
     cut = _statement_cutoffs(project)
     frames = []
     for g in project.grades:
-        unit, factor = metal_units(project.data.grades[g])[0]
+        unit, factor = metal_units(project.data.grades[g], project.report.metal_units.get(g))[0]
         table = sim.volumes(project.simulation.volumes, g, cut)
         metal = [c for c in table if "metal" in c and c != "metal_cv"]
         table[metal] = table[metal] * factor
@@ -208,7 +209,7 @@ def render_simulation(
     table = simulation_grade_tonnage(project, sim)
     for g in project.grades:
         unit = project.data.grades[g]
-        metal_unit, factor = metal_units(unit)[0]
+        metal_unit, factor = metal_units(unit, project.report.metal_units.get(g))[0]
         curves = sim.curves(g)
         present = {k[0] for k in curves}
         for domain in [d.name for d in project.domains if d.name in present] + ["all"]:

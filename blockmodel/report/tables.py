@@ -9,6 +9,8 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
+from blockmodel.config.data_files import METAL_GRAMS, UNIT_GRAMS_PER_TONNE
+
 __all__ = [
     "CONFIDENCE",
     "STATEMENT_ROUNDING",
@@ -23,21 +25,32 @@ __all__ = [
 
 CONFIDENCE = ("Measured", "Indicated", "Inferred")  # classes, most confident first
 
-TROY_OUNCE_GRAMS = 31.1034768  # grams per troy ounce (international definition)
+TROY_OUNCE_GRAMS = METAL_GRAMS["troy oz"]
+_DEFAULT_METAL_UNITS = {
+    "g/t": ("troy oz", "kg"),
+    "ppm": ("troy oz", "kg"),
+    "ppb": ("g",),
+    "%": ("t",),
+}
 
 
-def metal_units(grade_unit: str) -> list[tuple[str, float]]:
+def metal_units(grade_unit: str, metal_unit: str | None = None) -> list[tuple[str, float]]:
     """(unit name, factor) pairs: metal = tonnes x grade x factor, in the trade's units.
 
-    g/t (and ppm, the same ratio) -> troy ounces and kilograms; ppb -> grams; % -> tonnes.
+    Parameters
+    ----------
+    grade_unit : str
+        g/t (and ppm, the same ratio) -> troy ounces and kilograms; ppb -> grams;
+        % -> tonnes.
+    metal_unit : str, optional
+        The one unit wanted instead (``report.metal_units``, e.g. tonnes of a base metal
+        whose grade is in ppm): one of troy oz, lb, g, kg, t.
     """
-    if grade_unit in ("g/t", "ppm"):
-        return [("troy oz", 1.0 / TROY_OUNCE_GRAMS), ("kg", 1e-3)]
-    if grade_unit == "ppb":
-        return [("g", 1e-3)]
-    if grade_unit == "%":
-        return [("t", 1e-2)]
-    raise ValueError(f"unknown grade unit {grade_unit!r}")
+    if grade_unit not in UNIT_GRAMS_PER_TONNE:
+        raise ValueError(f"unknown grade unit {grade_unit!r}")
+    names = _DEFAULT_METAL_UNITS[grade_unit] if metal_unit is None else (metal_unit,)
+    grams = UNIT_GRAMS_PER_TONNE[grade_unit]
+    return [(n, grams / METAL_GRAMS[n]) for n in names]
 
 
 def grade_tonnage(
@@ -48,6 +61,7 @@ def grade_tonnage(
     *,
     class_column: str = "class",
     class_order: Sequence[str] = CONFIDENCE,
+    metal_unit: str | None = None,
 ) -> pd.DataFrame:
     """Tonnes, grade and metal at or above each cut-off, per domain and class, with totals.
 
@@ -61,6 +75,8 @@ def grade_tonnage(
     class_column : str
     class_order : sequence of str
         Classes in confidence order (most confident first); others follow by name.
+    metal_unit : str, optional
+        The metal unit instead of the grade unit's (:func:`metal_units`).
 
     Returns
     -------
@@ -80,7 +96,7 @@ def grade_tonnage(
             "g": g[est],
         }
     )
-    units = metal_units(grade_unit)
+    units = metal_units(grade_unit, metal_unit)
     rows = []
     groups = [("all", "all", np.ones(len(base), dtype=bool))]
     for dom in pd.unique(base["domain"]):
@@ -115,6 +131,8 @@ def statement(
     grade_unit: str,
     cutoffs: dict[str, float],
     class_order: Sequence[str] = CONFIDENCE,
+    *,
+    metal_unit: str | None = None,
 ) -> pd.DataFrame:
     """The statement table of one grade, unrounded: per domain at its reporting cut-off,
     one row per class in confidence order with ``Measured + Indicated`` after Indicated
@@ -127,13 +145,16 @@ def statement(
         A table from :func:`grade_tonnage` holding every domain's reporting cut-off.
     grade_unit : str
     cutoffs : dict of domain to cut-off grade
+    class_order : sequence of str
+    metal_unit : str, optional
+        As for :func:`grade_tonnage`.
 
     Returns
     -------
     DataFrame with ``domain, class, cutoff, tonnes, grade`` and one ``metal (UNIT)``
     column per metal unit; grade is tonnage-weighted (metal over tonnes).
     """
-    first = gt[gt["metal_unit"] == metal_units(grade_unit)[0][0]]
+    first = gt[gt["metal_unit"] == metal_units(grade_unit, metal_unit)[0][0]]
     rows = []
     for domain, cut in cutoffs.items():
         at = first[(first["domain"] == domain) & np.isclose(first["cutoff"], cut)]
@@ -170,7 +191,7 @@ def statement(
         frame["grade"] = np.where(
             frame["tonnes"] > 0, frame["grade_tonnes"] / frame["tonnes"], np.nan
         )
-    for u, factor in metal_units(grade_unit):
+    for u, factor in metal_units(grade_unit, metal_unit):
         frame[f"metal ({u})"] = frame["grade_tonnes"] * factor
     return frame.drop(columns="grade_tonnes")
 

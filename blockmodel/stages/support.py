@@ -35,12 +35,13 @@ class Support:
     unit: str
     cutoffs: np.ndarray
     by_domain: dict[str, DomainSupport]
+    metal_unit: str | None = None  # report.metal_units' unit for the grade, if given
 
     def table(self) -> pd.DataFrame:
         """``domain, cutoff, tonnes, grade, metal, metal_unit`` (the CSV's rows)."""
         rows = []
         for name, s in self.by_domain.items():
-            for metal_unit, factor in metal_units(self.unit):
+            for metal_unit, factor in metal_units(self.unit, self.metal_unit):
                 rows.append(
                     pd.DataFrame(
                         {
@@ -108,4 +109,6 @@ def support_curves(
             ]
         )
         out[d.name] = DomainSupport(d.name, curve, kt, kg)
-    return Support(primary, project.data.grades[primary], cut, out)
+    return Support(
+        primary, project.data.grades[primary], cut, out, project.report.metal_units.get(primary)
+    )

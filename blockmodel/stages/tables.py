@@ -45,7 +45,14 @@ def grade_tonnage_tables(
     every = sorted({*cutoffs, *statement_cutoffs(project, cutoffs).values()})
     order = class_order(project)
     return {
-        g: grade_tonnage(blocks, g, project.data.grades[g], every, class_order=order)
+        g: grade_tonnage(
+            blocks,
+            g,
+            project.data.grades[g],
+            every,
+            class_order=order,
+            metal_unit=project.report.metal_units.get(g),
+        )
         for g in project.grades
     }
 
@@ -63,6 +70,7 @@ def statement_tables(
             project.data.grades[g],
             {d: c for d, c in cut.items() if (gt["domain"] == d).any()},
             order,
+            metal_unit=project.report.metal_units.get(g),
         )
         for g, gt in tables.items()
     }
