@@ -64,6 +64,8 @@ def run_seconds(previous):
 
 @pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGKILL], ids=["SIGINT", "SIGKILL"])
 def test_interrupted_run_keeps_previous_report(previous, sig):
+    """SIGINT: the run cleans up and exits 130; SIGKILL: it leaves its staging folder, which
+    a rerun clears while it completes."""
     before = _hashes(previous)
     proc = _start(previous)
     staging = _wait_for_staging(previous.parent, previous.name, proc)
@@ -77,9 +79,9 @@ def test_interrupted_run_keeps_previous_report(previous, sig):
     if sig == signal.SIGINT:
         assert proc.returncode == 130 and "Traceback" not in err
         assert not staging.exists()  # cleaned up on the way out
-    else:
-        assert proc.returncode == -signal.SIGKILL
-    # a rerun completes, replaces the report and clears what a killed run left behind
+        return
+    assert proc.returncode == -signal.SIGKILL
+    # a rerun completes, replaces the report and clears what the killed run left behind
     done = subprocess.run(
         [
             sys.executable,
