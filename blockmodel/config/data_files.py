@@ -8,12 +8,46 @@ from pathlib import Path
 
 from blockmodel.config.schema import setting
 
-__all__ = ["METAL_GRAMS", "UNITS", "UNIT_GRAMS_PER_TONNE", "Columns", "DataFiles", "PointColumns"]
+__all__ = [
+    "METAL_GRAMS",
+    "UNITS",
+    "UNIT_GRAMS_PER_TONNE",
+    "Columns",
+    "DataFiles",
+    "PointColumns",
+    "metal_units",
+]
 
 UNITS = ("g/t", "ppm", "%", "ppb")
 UNIT_GRAMS_PER_TONNE = {"g/t": 1.0, "ppm": 1.0, "ppb": 1e-3, "%": 1e4}  # metal at grade 1
 # grams in each metal unit: the troy ounce and the pound by their international definitions
 METAL_GRAMS = {"troy oz": 31.1034768, "lb": 453.59237, "g": 1.0, "kg": 1e3, "t": 1e6}
+
+_DEFAULT_METAL_UNITS = {
+    "g/t": ("troy oz", "kg"),
+    "ppm": ("troy oz", "kg"),
+    "ppb": ("g",),
+    "%": ("t",),
+}
+
+
+def metal_units(grade_unit: str, metal_unit: str | None = None) -> list[tuple[str, float]]:
+    """(unit name, factor) pairs: metal = tonnes x grade x factor, in the trade's units.
+
+    Parameters
+    ----------
+    grade_unit : str
+        g/t (and ppm, the same ratio) -> troy ounces and kilograms; ppb -> grams;
+        % -> tonnes.
+    metal_unit : str, optional
+        The one unit wanted instead (``report.metal_units``, e.g. tonnes of a base metal
+        whose grade is in ppm): one of troy oz, lb, g, kg, t.
+    """
+    if grade_unit not in UNIT_GRAMS_PER_TONNE:
+        raise ValueError(f"unknown grade unit {grade_unit!r}")
+    names = _DEFAULT_METAL_UNITS[grade_unit] if metal_unit is None else (metal_unit,)
+    grams = UNIT_GRAMS_PER_TONNE[grade_unit]
+    return [(n, grams / METAL_GRAMS[n]) for n in names]
 
 
 @dataclass(frozen=True)

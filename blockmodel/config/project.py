@@ -16,6 +16,7 @@ import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
+from blockmodel.config.data_files import metal_units
 from blockmodel.config.reader import Reader
 from blockmodel.config.schema import setting
 from blockmodel.config.sections import (
@@ -81,6 +82,12 @@ class Project:
             return self.report.statement_cutoffs[domain]
         cutoffs = self.report.cutoffs if cutoffs is None else cutoffs
         return min((c for c in cutoffs if c > 0), default=0.0)
+
+    def metal_units(self, grade: str) -> list[tuple[str, float]]:
+        """(unit, factor) pairs of ``grade``'s metal (``metal = tonnes x grade x factor``):
+        the unit of ``report.metal_units``, or those of its grade unit
+        (:func:`~blockmodel.config.data_files.metal_units`)."""
+        return metal_units(self.data.grades[grade], self.report.metal_units.get(grade))
 
     def domain(self, name: str) -> Domain:
         """The domain called ``name``."""

@@ -14,7 +14,7 @@ from blockmodel.config.project import Project
 from blockmodel.report.figures import CLASS_COLOURS, pyplot, save_png
 from blockmodel.report.files import safe_stem, write_table
 from blockmodel.report.html import HtmlReport
-from blockmodel.report.tables import metal_units, round_significant
+from blockmodel.report.tables import round_significant
 from blockmodel.simulation.conditional import FEWEST_DOF
 from blockmodel.stages.simulation import REPRODUCTION_TOLERANCE, Simulation
 
@@ -63,7 +63,7 @@ def simulation_grade_tonnage(project: Project, sim: Simulation) -> pd.DataFrame:
     ``report.metal_units``)."""
     frames = []
     for g in project.grades:
-        unit, factor = metal_units(project.data.grades[g], project.report.metal_units.get(g))[0]
+        unit, factor = project.metal_units(g)[0]
         table = sim.grade_tonnage(g)
         metal = [c for c in table if c.startswith("metal_") and c != "metal_cv"]
         table[metal] = table[metal] * factor
@@ -78,7 +78,7 @@ def simulation_volumes(project: Project, sim: Simulation) -> pd.DataFrame:
     cut = _statement_cutoffs(project)
     frames = []
     for g in project.grades:
-        unit, factor = metal_units(project.data.grades[g], project.report.metal_units.get(g))[0]
+        unit, factor = project.metal_units(g)[0]
         table = sim.volumes(project.simulation.volumes, g, cut)
         metal = [c for c in table if "metal" in c and c != "metal_cv"]
         table[metal] = table[metal] * factor
@@ -209,7 +209,7 @@ def render_simulation(
     table = simulation_grade_tonnage(project, sim)
     for g in project.grades:
         unit = project.data.grades[g]
-        metal_unit, factor = metal_units(unit, project.report.metal_units.get(g))[0]
+        metal_unit, factor = project.metal_units(g)[0]
         curves = sim.curves(g)
         present = {k[0] for k in curves}
         for domain in [d.name for d in project.domains if d.name in present] + ["all"]:

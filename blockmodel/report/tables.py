@@ -9,7 +9,7 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
-from blockmodel.config.data_files import METAL_GRAMS, UNIT_GRAMS_PER_TONNE
+from blockmodel.config.data_files import METAL_GRAMS, metal_units
 
 __all__ = [
     "CONFIDENCE",
@@ -26,31 +26,6 @@ __all__ = [
 CONFIDENCE = ("Measured", "Indicated", "Inferred")  # classes, most confident first
 
 TROY_OUNCE_GRAMS = METAL_GRAMS["troy oz"]
-_DEFAULT_METAL_UNITS = {
-    "g/t": ("troy oz", "kg"),
-    "ppm": ("troy oz", "kg"),
-    "ppb": ("g",),
-    "%": ("t",),
-}
-
-
-def metal_units(grade_unit: str, metal_unit: str | None = None) -> list[tuple[str, float]]:
-    """(unit name, factor) pairs: metal = tonnes x grade x factor, in the trade's units.
-
-    Parameters
-    ----------
-    grade_unit : str
-        g/t (and ppm, the same ratio) -> troy ounces and kilograms; ppb -> grams;
-        % -> tonnes.
-    metal_unit : str, optional
-        The one unit wanted instead (``report.metal_units``, e.g. tonnes of a base metal
-        whose grade is in ppm): one of troy oz, lb, g, kg, t.
-    """
-    if grade_unit not in UNIT_GRAMS_PER_TONNE:
-        raise ValueError(f"unknown grade unit {grade_unit!r}")
-    names = _DEFAULT_METAL_UNITS[grade_unit] if metal_unit is None else (metal_unit,)
-    grams = UNIT_GRAMS_PER_TONNE[grade_unit]
-    return [(n, grams / METAL_GRAMS[n]) for n in names]
 
 
 def grade_tonnage(
