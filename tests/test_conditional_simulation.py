@@ -766,13 +766,14 @@ def test_realisations_on_a_cluster_equal_the_local_ones(rng):
 
 
 def test_reproduction_of_the_declustered_mean(rng):
-    """Oracle: the realisations' tonnes-weighted mean grade per domain, its P10/P50/P90 and
-    its relative difference from the declustered mean, computed by a plain loop; flagged
+    """Oracle: the realisations' tonnes-weighted mean grade per domain, its P10/P50/P90,
+    its relative difference from the declustered mean and the blocks' kriged mean, computed
+    by a plain loop; flagged
     beyond 5 % (common practice) and not within it."""
     from blockmodel.stages.mining_units import MiningUnits
     from blockmodel.stages.simulation import DomainSimulation, Simulation
 
-    blocks = pd.DataFrame({"tonnes": rng.uniform(100.0, 900.0, 40)})
+    blocks = pd.DataFrame({"tonnes": rng.uniform(100.0, 900.0, 40), "au": rng.uniform(0, 2, 40)})
     by_key = {}
     mean = float(np.exp(0.3**2 / 2))  # of the lognormal drawn
     for name, rows, shift in (("near", np.arange(0, 25), 1.0), ("far", np.arange(25, 40), 1.2)):
@@ -791,6 +792,8 @@ def test_reproduction_of_the_declustered_mean(rng):
         assert row["realisations P10"] == pytest.approx(np.percentile(means, 10), rel=1e-12)
         assert row["difference"] == pytest.approx(np.mean(means) / mean - 1.0, rel=1e-12)
         assert row["flagged"] == (abs(np.mean(means) / mean - 1.0) > 0.05)
+        kriged = sum(t[i] * blocks["au"].iloc[d.rows[i]] for i in range(len(t))) / t.sum()
+        assert row["kriged mean"] == pytest.approx(kriged, rel=1e-12)
     assert table.loc["far.au", "flagged"] and not table.loc["near.au", "flagged"]
 
 

@@ -153,15 +153,17 @@ class Simulation:
         return pd.concat(frames, ignore_index=True)
 
     def reproduction(self) -> pd.DataFrame:
-        """Per domain and grade: the declustered mean of the composites beside the mean
-        grade of the simulated blocks (weighted by their tonnes) in each realisation (P10,
-        P50, P90), the relative difference of the realisations' average, and whether it
+        """Per domain and grade: the declustered mean of the composites and the kriged mean
+        of the simulated blocks beside the mean grade of those blocks (each weighted by its
+        tonnes) in each realisation (P10, P50, P90), the relative difference of the
+        realisations' average from the declustered mean, and whether it
         exceeds :data:`REPRODUCTION_TOLERANCE` (the realisations then do not reproduce the
         declustered distribution: a trend within the domain, or data clustered where the
         declustering does not reach)."""
         rows = []
         for key, s in self.by_key.items():
             tonnes = self.units.table["tonnes"].to_numpy(float)[s.rows]
+            kriged = self.units.table[s.grade].to_numpy(float)[s.rows]
             means = tonnes @ s.grades / tonnes.sum()
             p10, p50, p90 = np.percentile(means, [10, 50, 90])
             difference = means.mean() / s.declustered_mean - 1.0
@@ -169,6 +171,7 @@ class Simulation:
                 {
                     "domain.grade": key,
                     "declustered mean": s.declustered_mean,
+                    "kriged mean": float(tonnes @ kriged / tonnes.sum()),
                     "realisations P10": p10,
                     "realisations P50": p50,
                     "realisations P90": p90,
