@@ -698,7 +698,10 @@ COVERAGE_ONE_SIDE = 5
                 "lags along it (25 m, cone 22.5 degrees, band 10 m up and down) gather pairs "
                 "up to 10 m apart vertically, already at the sill, and the fit reads them as "
                 "short continuity along the seam: fitted major ranges of 16 to 54 m in most "
-                "seeds against 150 m, tilts up to 25 degrees",
+                "seeds against 150 m, tilts up to 25 degrees. With only the orientation "
+                "given (level, 060) and everything else fitted: 14, 16 and 16 inside, within "
+                "the bounds, so the orientation search is the step to mend (it reads each lag "
+                "on its cone's axis; branch orientation-pair-means)",
                 strict=True,
             ),
         ),
