@@ -510,8 +510,10 @@ def test_a_structure_fitted_to_no_sill_is_left_out_of_the_normal_scores_model(
 def test_the_realisations_reproduce_the_grades_before_capping(tmp_path):
     """A capped domain is simulated from its composites before capping (the transform's
     table tops at the largest uncapped composite, their mean is the uncapped one);
-    ``simulation.capped_grades = true`` simulates the capped composites instead."""
+    ``simulation.capped_grades = true`` simulates the capped composites instead, and a
+    maximum between the cap and the largest composite is then allowed."""
     from blockmodel.config.project import load_project
+    from blockmodel.errors import InputError
     from blockmodel.stages.run import run_stages, simulate_results
     from tests.conftest import make_box_project
 
@@ -528,7 +530,12 @@ def test_the_realisations_reproduce_the_grades_before_capping(tmp_path):
     assert uncapped.declustered_mean > np.average(
         ore["cu"], weights=results.declustering.weights[ore.index]
     )
-    path.write_text(path.read_text() + "\n[simulation]\ncapped_grades = true\n")
+    # a maximum between the cap and the largest composite is below what is simulated
+    between = path.read_text() + f'\n[simulation]\nmaximum = {{ "ore.cu" = {(cap + top) / 2} }}\n'
+    path.write_text(between)
+    with pytest.raises(InputError, match=r"below the largest composite .*, before capping"):
+        simulate_results(run_stages(load_project(path)), realisations=2, workers=1)
+    path.write_text(between.replace("[simulation]", "[simulation]\ncapped_grades = true"))
     results = run_stages(load_project(path))
     capped = simulate_results(results, realisations=4, workers=1).by_key["ore.cu"]
     assert capped.transform.values[-1] == cap

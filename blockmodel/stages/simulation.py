@@ -101,7 +101,8 @@ def simulate(
             raise setting_error(
                 project.source,
                 f"simulation.maximum.{key}",
-                f"the maximum {maximum:g} is below the largest composite ({values.max():g})",
+                f"the maximum {maximum:g} is below the largest composite ({values.max():g}"
+                f"{', before capping' if column != g else ''})",
             )
         weights = declustering.weights[own]
         scores, transform = gaussian_transform(
