@@ -9,9 +9,9 @@ averaged over its cone (directions spread evenly by solid angle), not read on th
 axis: along a body much thinner than the cone is wide at that distance, the pairs lie partly
 across it, and a lag read on the axis would make the body look short along its length.  The
 fit starts from a grid of orientations (ranges and sills fitted at each), and the best few
-are refined with every parameter free.  How well the orientation is determined is read from the fit:
-standard errors of the axis directions from its Jacobian, and the anisotropy ratios (an axis
-cannot be placed where the ranges around it are equal).
+are refined with every parameter free.  How well the orientation is determined is read
+from the fit: standard errors of the axis directions from its Jacobian, and the anisotropy
+ratios (an axis cannot be placed where the ranges around it are equal).
 
 The numerical core: arrays in, a frozen result out; no pandas, no plotting.
 
