@@ -290,3 +290,35 @@ def test_directional_variogram_matches_gstools(rng):
     )
     assert list(ev.pairs) == list(np.ravel(counts))
     np.testing.assert_allclose(ev.value, np.ravel(gamma), rtol=1e-10)
+
+
+def test_fitted_ranges_stay_within_their_documented_bounds(rng):
+    """Property: whatever the lags say, every fitted range lies between half the shortest
+    lag distance and the extent, major >= semi >= minor (fit_variogram's contract).  A
+    structure much thinner across than any lag (minor range 0.2 to 0.6 m, lags from 2 m)
+    cannot be told from a nugget across; its minor range stops at the bound (1 m), where
+    fitting the semi and minor ranges as ratios of the axis above would go under it."""
+    from blockmodel.variography.experimental import ExperimentalVariogram
+    from blockmodel.variography.models import Structure, VariogramModel
+
+    orientation = bm.Orientation(30.0, 10.0, 40.0)
+    axes = orientation.axes()
+    for _ in range(5):
+        truth = VariogramModel(
+            0.0,
+            [
+                Structure("spherical", 0.5, (rng.uniform(40, 80), 30.0, rng.uniform(0.2, 0.6)),
+                          orientation),
+                Structure("spherical", 0.5, (120.0, 90.0, 20.0), orientation),
+            ],
+        )  # fmt: skip
+        # along the axes, and 3° off the major toward the minor (as holes or a cone see it)
+        off = np.cos(np.radians(3.0)) * axes[0] + np.sin(np.radians(3.0)) * axes[2]
+        evs = []
+        for axis, lag in ((0, 10.0), (1, 10.0), (2, 2.0), (off, 10.0)):
+            h = lag * np.arange(1, 11)
+            value = truth.variogram(h[:, None] * (axes[axis] if np.ndim(axis) == 0 else axis))
+            evs.append((ExperimentalVariogram(np.full(10, 500), h, value, "semivariogram"), axis))
+        model = fit_variogram(evs, ["spherical", "spherical"], orientation, extent=300.0)
+        for s in model.structures:
+            assert 1.0 - 1e-9 <= s.ranges[2] <= s.ranges[1] <= s.ranges[0] <= 300.0, s.ranges

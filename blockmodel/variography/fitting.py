@@ -103,8 +103,9 @@ def fit_variogram(
     Along a unit direction d, a structure's reduced distance is
     ``h * |diag(1/a) R d|``.  Minimises ``sum_j w_j (gamma_model(h_j) - gamma_j)^2`` with
     ``w_j = N_j / h_j^2`` by default (Cressie 1985).  Each structure keeps
-    major >= semi >= minor (free ranges are fitted as the major range and two ratios at most
-    1), and every range lies between half the shortest lag distance and ``extent``.
+    major >= semi >= minor (free ranges are fitted as the major range and, for the semi and
+    the minor, the fraction of the way from the lower bound up to the axis above), and every
+    range lies between half the shortest lag distance and ``extent``.
     """
     return fit_variogram_checked(
         experimental,
@@ -193,7 +194,9 @@ def _fit(experimental, kinds, orientation, fixed, weighting, extent=None, min_pa
                 (float(np.max(h[along])) if np.any(along) else hmax) * (k + 1) / (len(kinds) + 1)
             )
     # Free parameters: nugget and sills as they are; the ranges of a structure none of whose
-    # ranges is fixed as (major, semi/major, minor/semi), so the order can never invert.
+    # ranges is fixed as the major and, for the semi and the minor, the fraction of the way
+    # from the shortest range allowed up to the axis above, so the order can never invert
+    # and no range falls below that bound.
     ordered = [
         k
         for k in range(len(kinds))
@@ -205,7 +208,7 @@ def _fit(experimental, kinds, orientation, fixed, weighting, extent=None, min_pa
             continue
         if n.startswith("range") and int(n[5:].split("_")[0]) - 1 in ordered:
             axis_name = n.split("_")[1]
-            free.append(n if axis_name == "major" else f"ratio{n[5:]}")
+            free.append(n if axis_name == "major" else f"fraction{n[5:]}")
         else:
             free.append(n)
 
@@ -214,8 +217,11 @@ def _fit(experimental, kinds, orientation, fixed, weighting, extent=None, min_pa
         p.update(zip(free, x, strict=True))
         for k in ordered:
             major = p[f"range{k + 1}_major"]
-            p[f"range{k + 1}_semi"] = major * p.pop(f"ratio{k + 1}_semi")
-            p[f"range{k + 1}_minor"] = p[f"range{k + 1}_semi"] * p.pop(f"ratio{k + 1}_minor")
+            semi = range_lo + (major - range_lo) * p.pop(f"fraction{k + 1}_semi")
+            p[f"range{k + 1}_semi"] = semi
+            p[f"range{k + 1}_minor"] = range_lo + (semi - range_lo) * p.pop(
+                f"fraction{k + 1}_minor"
+            )
         return p
 
     def predict(p):
@@ -232,18 +238,19 @@ def _fit(experimental, kinds, orientation, fixed, weighting, extent=None, min_pa
     def bounds(n):
         if n == "nugget" or n.startswith("sill"):
             return 0.0, np.inf
-        if n.startswith("ratio"):
-            return 0.01, 1.0
+        if n.startswith("fraction"):
+            return 0.0, 1.0
         return range_lo, range_hi
 
     lower = np.array([bounds(n)[0] for n in free])
     upper = np.array([bounds(n)[1] for n in free])
 
     def initial(n):
-        if n.startswith("ratio"):
-            k, axis_name = n[5:].split("_")
+        if n.startswith("fraction"):
+            k, axis_name = n.removeprefix("fraction").split("_")
             prev = "major" if axis_name == "semi" else "semi"
-            return start[f"range{k}_{axis_name}"] / start[f"range{k}_{prev}"]
+            above = start[f"range{k}_{prev}"] - range_lo
+            return (start[f"range{k}_{axis_name}"] - range_lo) / above if above > 0 else 1.0
         return start[n]
 
     x0 = np.clip([initial(n) for n in free], lower + 1e-9, upper - 1e-9)
