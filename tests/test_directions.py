@@ -13,11 +13,7 @@ import pytest
 
 from blockmodel.estimation.orientation import Orientation
 from blockmodel.simulation.spectral import simulate_gaussian
-from blockmodel.variography.directions import (
-    cone_directions,
-    find_orientation,
-    hemisphere_directions,
-)
+from blockmodel.variography.directions import find_orientation, hemisphere_directions
 from blockmodel.variography.models import Structure, VariogramModel
 
 CELL = 2.5
@@ -93,41 +89,3 @@ def test_hemisphere_directions_are_unit_downward_and_spread():
     cos = np.abs(d @ d.T) - 2 * np.eye(len(d))
     nearest = np.degrees(np.arccos(np.clip(cos.max(axis=1), -1, 1)))
     assert nearest.max() < 25 and nearest.min() > 8
-
-
-@pytest.mark.parametrize("seed", [3, 5])
-def test_thin_flat_body_drilled_vertically_keeps_its_anisotropy(seed):
-    """A flat body 20 times longer than thick (ranges 100 x 60 x 5 m, level), drilled by
-    vertical holes 12 m apart: a lag along the body gathers pairs up to its cone's width
-    apart vertically (at 50 m and 20°, 18 m: across the body, at the sill), so the model
-    is compared with each lag averaged over its cone.  Read on the cone's axis instead,
-    the lags along the body look short and the anisotropy ratio comes out at 0.13 to 0.16
-    (seeds 1 to 6, measured 2026-12-03); averaged over the cone, 0.06 to 0.09.  Pass: the
-    minor axis within 10° of vertical and minor / major below 0.1 (twice the truth)."""
-    truth = Orientation(60, 0, 0)
-    field = _field(truth, (100.0, 60.0, 5.0), seed=seed)
-    rng = np.random.default_rng(seed)
-    top = SIDE * CELL
-    xy = np.array([(x, y) for x in np.arange(6.0, top, 12.0) for y in np.arange(6.0, top, 12.0)])
-    xy = xy + rng.normal(0, 1.0, xy.shape)
-    z = np.arange(1.0, top, 2.0)
-    points = np.column_stack([np.repeat(xy, len(z), axis=0), np.tile(z, len(xy))])
-    fit = find_orientation(points, _sample(field, points), lag=12.0, n_lags=8)
-    assert _angle(truth.axes()[2], fit.orientation.axes()[2]) < 10.0, fit.describe()
-    assert fit.ranges[2] / fit.ranges[0] < 0.1, fit.describe()
-
-
-def test_cone_directions_cover_the_cone_evenly():
-    axes = np.vstack([hemisphere_directions(5), [[0.0, 0.0, -1.0], [1.0, 0.0, 0.0]]])
-    cone = cone_directions(axes, 20.0, 64)
-    assert cone.shape == (7, 64, 3)
-    np.testing.assert_allclose(np.linalg.norm(cone, axis=2), 1.0)
-    cos = np.einsum("mkj,mj->mk", cone, axes)
-    # within the cone, and even by solid angle: the cosine to the axis is uniform on
-    # [cos 20°, 1], so its mean is the middle of that interval ...
-    assert cos.min() >= np.cos(np.radians(20.0)) - 1e-12
-    np.testing.assert_allclose(cos.mean(axis=1), (1 + np.cos(np.radians(20.0))) / 2, rtol=1e-12)
-    # ... and the directions turn all the way round the axis: their mean lies on it
-    mean = cone.mean(axis=1)
-    off_axis = mean - np.einsum("mj,mj->m", mean, axes)[:, None] * axes
-    assert np.abs(off_axis).max() < 0.01

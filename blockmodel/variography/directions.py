@@ -1,17 +1,13 @@
 """Finding the orientation of continuity — azimuth, plunge and tilt — from the data.
 
 Method: experimental semivariograms of the normal scores of the values (robust to the skew
-of grades, common practice) along directions spread evenly over the lower hemisphere (a
-Fibonacci lattice; each direction gathers the pairs within an angular tolerance cone) are
-fitted jointly by one geometric anisotropy: a nugget and one structure whose three ranges
-(major >= semi >= minor) and orientation are all free.  The model is compared with each lag
-averaged over its cone (directions spread evenly by solid angle), not read on the cone's
-axis: along a body much thinner than the cone is wide at that distance, the pairs lie partly
-across it, and a lag read on the axis would make the body look short along its length.  The
-fit starts from a grid of orientations (ranges and sills fitted at each), and the best few
-are refined with every parameter free.  How well the orientation is determined is read
-from the fit: standard errors of the axis directions from its Jacobian, and the anisotropy
-ratios (an axis cannot be placed where the ranges around it are equal).
+of grades, common practice) along directions spread evenly over the lower hemisphere (a Fibonacci lattice; each direction gathers the pairs within an angular
+tolerance cone) are fitted jointly by one geometric anisotropy: a nugget and one structure
+whose three ranges (major >= semi >= minor) and orientation are all free.  The fit starts
+from a grid of orientations (ranges and sills fitted at each), and the best few are refined
+with every parameter free.  How well the orientation is determined is read from the fit:
+standard errors of the axis directions from its Jacobian, and the anisotropy ratios (an axis
+cannot be placed where the ranges around it are equal).
 
 The numerical core: arrays in, a frozen result out; no pandas, no plotting.
 
@@ -32,34 +28,9 @@ from scipy.optimize import least_squares
 from blockmodel.estimation.orientation import Orientation
 from blockmodel.variography.models import KINDS, correlation, correlation_slope
 
-__all__ = ["OrientationFit", "cone_directions", "find_orientation", "hemisphere_directions"]
+__all__ = ["OrientationFit", "find_orientation", "hemisphere_directions"]
 
 MIN_PAIRS = 30  # fewest pairs for a lag to count (Journel & Huijbregts 1978, common practice)
-CONE_POINTS = 16  # directions over each cone's solid angle at which the model is averaged
-
-
-def cone_directions(axes: np.ndarray, half_angle: float, count: int) -> np.ndarray:
-    """``count`` unit vectors spread evenly by solid angle over the cone of half-angle
-    ``half_angle`` (degrees) about each of ``axes`` (m, 3): (m, count, 3).
-
-    A Fibonacci spiral on the spherical cap: the cosine of the angle from the axis uniform
-    on [cos(half_angle), 1], the turn about the axis by the golden angle.
-    """
-    axes = np.asarray(axes, dtype=np.float64)
-    k = np.arange(count) + 0.5
-    cos_a = 1.0 - k / count * (1.0 - np.cos(np.radians(half_angle)))
-    sin_a = np.sqrt(1.0 - cos_a**2)
-    turn = 2 * np.pi * k / ((1 + 5**0.5) / 2)
-    # two unit vectors normal to each axis
-    helper = np.where(np.abs(axes[:, 2:3]) < 0.9, [[0.0, 0.0, 1.0]], [[1.0, 0.0, 0.0]])
-    e1 = np.cross(axes, helper)
-    e1 /= np.linalg.norm(e1, axis=1, keepdims=True)
-    e2 = np.cross(axes, e1)
-    return (
-        cos_a[None, :, None] * axes[:, None, :]
-        + (sin_a * np.cos(turn))[None, :, None] * e1[:, None, :]
-        + (sin_a * np.sin(turn))[None, :, None] * e2[:, None, :]
-    )
 
 
 def hemisphere_directions(count: int) -> np.ndarray:
@@ -212,9 +183,7 @@ def find_orientation(
     if ok.sum() < 12 or (ok.any(axis=1)).sum() < 6:
         raise ValueError(f"only {int(ok.sum())} direction-lag bins hold {MIN_PAIRS} or more pairs")
     k_dir, _k_lag = np.nonzero(ok)
-    # (q, K, 3): each lag's separations spread over its cone (the pairs lie anywhere in it)
-    cone = cone_directions(dirs, angular_tolerance, CONE_POINTS)
-    h = dist[ok][:, None, None] * cone[k_dir]
+    h = dist[ok][:, None] * dirs[k_dir]  # (q, 3) separation vectors
     g = gamma[ok]
     w = np.sqrt(count[ok] / dist[ok] ** 2)
     w = w / w.mean()
@@ -229,8 +198,8 @@ def find_orientation(
         a1 = np.exp(log_a)
         ranges = np.array([a1, a1 * q2, a1 * q2 * q3])
         local = (h @ Orientation(*angles).axes().T if along is None else along) / ranges
-        r = np.sqrt(np.einsum("ijk,ijk->ij", local, local))
-        return c0 + c1 * (1.0 - correlation(code, r)).mean(axis=1)
+        r = np.sqrt(np.einsum("ij,ij->i", local, local))
+        return c0 + c1 * (1.0 - correlation(code, r))
 
     lower = [0.0, 0.0, np.log(a_lo), 0.05, 0.05]
     upper = [np.inf, np.inf, np.log(a_hi), 1.0, 1.0]
@@ -242,15 +211,15 @@ def find_orientation(
         a1 = np.exp(log_a)
         t = along / np.array([a1, a1 * q2, a1 * q2 * q3])
         t2 = t * t
-        r = np.sqrt(t2.sum(axis=2))
+        r = np.sqrt(t2.sum(axis=1))
         safe = np.where(r > 0.0, r, 1.0)
         slope = -c1 * correlation_slope(code, r)  # d model / d r
         jac = np.empty((len(r), 5))
         jac[:, 0] = 1.0
-        jac[:, 1] = (1.0 - correlation(code, r)).mean(axis=1)
-        jac[:, 2] = (-slope * r).mean(axis=1)  # r scales as 1 / a
-        jac[:, 3] = (-slope * (t2[..., 1] + t2[..., 2]) / (q2 * safe)).mean(axis=1)
-        jac[:, 4] = (-slope * t2[..., 2] / (q3 * safe)).mean(axis=1)
+        jac[:, 1] = 1.0 - correlation(code, r)
+        jac[:, 2] = -slope * r  # r scales as 1 / a
+        jac[:, 3] = -slope * (t2[:, 1] + t2[:, 2]) / (q2 * safe)
+        jac[:, 4] = -slope * t2[:, 2] / (q3 * safe)
         return w[:, None] * jac
 
     def fit_shape(angles):
