@@ -9,12 +9,11 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
-from blockmodel.config.data_files import METAL_GRAMS, metal_units
+from blockmodel.config.data_files import metal_units
 
 __all__ = [
     "CONFIDENCE",
     "STATEMENT_ROUNDING",
-    "TROY_OUNCE_GRAMS",
     "grade_tonnage",
     "grade_tonnage_pivot",
     "metal_units",
@@ -24,8 +23,6 @@ __all__ = [
 ]
 
 CONFIDENCE = ("Measured", "Indicated", "Inferred")  # classes, most confident first
-
-TROY_OUNCE_GRAMS = METAL_GRAMS["troy oz"]
 
 
 def grade_tonnage(
