@@ -4,7 +4,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from blockmodel.assess.declustering import cell_declustering, nearest_neighbour_weights
+from blockmodel.assess.declustering import (
+    cell_declustering,
+    hole_spacing,
+    nearest_neighbour_weights,
+)
 
 from .conftest import DEMO
 
@@ -71,3 +75,90 @@ def test_demo_declustered_lode_mean_closer_to_truth():
     )
     assert abs(declustered - true_mean) < abs(naive - true_mean)
     assert decl.weights.sum() == pytest.approx(len(decl.weights))
+
+
+def _vertical_holes(xy: np.ndarray, depths: np.ndarray):
+    """Samples (n, 3) and their hole numbers down vertical holes at ``xy`` (h, 2)."""
+    pts = np.array([(x, y, z) for x, y in xy for z in depths])
+    return pts, np.repeat(np.arange(len(xy)), len(depths))
+
+
+def test_hole_spacing_of_a_regular_pattern_and_of_infill():
+    # a 20 m pattern: every hole's nearest neighbour is 20 m away
+    g = np.arange(0.0, 200.0, 20.0)
+    xy = np.array(np.meshgrid(g, g)).reshape(2, -1).T
+    pts, holes = _vertical_holes(xy, np.array([-10.0, -12.0, -14.0]))
+    assert hole_spacing(pts, holes) == pytest.approx(20.0)
+    # a 40 m pattern with 10 m infill over one corner (25 of its 121 holes): the sparse
+    # drilling's spacing, whatever the holes are called or their order
+    w = np.arange(0.0, 400.0, 40.0)
+    wide = np.array(np.meshgrid(w, w)).reshape(2, -1).T
+    f = np.arange(0.0, 50.0, 10.0)
+    infill = np.array(np.meshgrid(f, f)).reshape(2, -1).T
+    xy = np.unique(np.vstack([wide, infill]), axis=0)
+    pts, holes = _vertical_holes(xy, np.array([-10.0, -14.0]))
+    assert hole_spacing(pts, holes) == pytest.approx(40.0)
+    order = np.random.default_rng(3).permutation(len(pts))
+    names = np.array([f"H{n:03d}" for n in holes])[order]
+    assert hole_spacing(pts[order], names) == pytest.approx(40.0)
+    with pytest.raises(ValueError, match="one hole"):
+        hole_spacing(pts[:2], np.zeros(2))
+
+
+def test_cell_of_the_hole_spacing_is_unbiased_where_lowest_mean_is_not():
+    """Truth check on invented fields: a lognormal field (its true mean known cell by
+    cell) drilled on a regular 20 m pattern, 30 seeds.  The declustered mean at the cell
+    of the holes' spacing lies within 3 standard errors of the true mean on average; the
+    lowest mean of a cell-size sweep lies more than 3 standard errors below it (why the
+    lowest mean is not the default)."""
+    from blockmodel.estimation.orientation import Orientation
+    from blockmodel.simulation.spectral import simulate_gaussian
+    from blockmodel.variography.models import Structure, VariogramModel
+
+    model = VariogramModel(0.1, [Structure("spherical", 0.9, (80.0, 80.0, 10.0), Orientation())])
+    sizes = np.linspace(10.0, 200.0, 12)
+    errors = {"hole_spacing": [], "lowest_mean": []}
+    for seed in range(30):
+        rng = np.random.default_rng(seed)
+        grades = np.exp(0.8 * simulate_gaussian((96, 96, 2), (2.5, 2.5, 2.5), model, rng))
+        g = np.arange(10.0, 240.0, 20.0)
+        xy = np.array(np.meshgrid(g, g)).reshape(2, -1).T + rng.normal(0.0, 2.0, (144, 2))
+        pts, holes = _vertical_holes(xy, np.array([1.25, 3.75]))
+        cell = np.clip(np.floor(pts / 2.5).astype(int), 0, [95, 95, 1])
+        values = grades[cell[:, 0], cell[:, 1], cell[:, 2]]
+        size = hole_spacing(pts, holes)
+        spaced = cell_declustering(
+            pts, values, sizes, grid_shifts=4, keep="given_size", given_size=size
+        )
+        lowest = cell_declustering(pts, values, sizes, grid_shifts=4, keep="lowest_mean")
+        errors["hole_spacing"].append(spaced.mean / grades.mean() - 1.0)
+        errors["lowest_mean"].append(lowest.mean / grades.mean() - 1.0)
+    spaced, lowest = (np.asarray(errors[k]) for k in ("hole_spacing", "lowest_mean"))
+    se = spaced.std(ddof=1) / np.sqrt(len(spaced))
+    assert abs(spaced.mean()) < 3.0 * se, (spaced.mean(), se)
+    se = lowest.std(ddof=1) / np.sqrt(len(lowest))
+    assert lowest.mean() < -3.0 * se, (lowest.mean(), se)
+
+
+def test_one_hole_domain_asks_for_another_cell_rule(small_project):
+    """A domain sampled by one hole has no hole spacing: one message naming the domain and
+    the setting (the command line turns it into exit status 2)."""
+    from blockmodel import stages
+    from blockmodel.config.project import load_project
+    from blockmodel.errors import InputError
+
+    project = load_project(small_project)
+    table = pd.DataFrame(
+        {
+            "hole": ["A1"] * 4,
+            "x": 10.0,
+            "y": 10.0,
+            "z": [90.0, 88.0, 86.0, 84.0],
+            "au": [1.0, 2.0, 0.5, 1.5],
+            "domain": "ore",
+        }
+    )
+    with pytest.raises(InputError) as caught:
+        stages.decluster(project, table)
+    text = str(caught.value)
+    assert "declustering.keep" in text and "'ore'" in text and "one hole" in text

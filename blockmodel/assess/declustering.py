@@ -5,6 +5,15 @@ References
 ----------
 Journel, A. G. (1983), Nonparametric estimation of spatial distributions, Math. Geol. 15(3).
 Deutsch, C. V. (2015), Cell declustering parameter selection, Geostatistics Lessons.
+
+Keeping the size with the lowest declustered mean suits drilling clustered in high grades
+and only that: on a regular pattern the lowest of the swept means is the most negative of
+their random departures (and, at cells much larger than the spacing, of the weight given
+to the pattern's sparsely filled edges), so it lies below the mean.  On three invented
+deposits drilled on regular patterns (the tests' ``tests/deposits.py``, seeds 1-20) it
+fell 1.9 to 8.3 % below the true mean on average; a cell of the holes' spacing
+(:func:`hole_spacing`) came within -1.6 to +1.8 % (measured 2026-12-03).  Where infill
+drilling is clustered in high grades, the lowest mean is the rule to choose.
 """
 
 from __future__ import annotations
@@ -15,8 +24,10 @@ import numpy as np
 from scipy.spatial import cKDTree
 
 __all__ = [
+    "SPARSE_QUANTILE",
     "CellDeclustering",
     "cell_declustering",
+    "hole_spacing",
     "nearest_neighbour_weights",
     "weighted_quantiles",
 ]
@@ -114,6 +125,47 @@ def cell_declustering(
     else:
         pick = int(np.argmin(means) if keep == "lowest_mean" else np.argmax(means))
     return CellDeclustering(sizes, means, float(sizes[pick]), all_w[pick])
+
+
+# the quantile of the distances between neighbouring holes taken as the sparse spacing
+SPARSE_QUANTILE = 0.9
+
+
+def hole_spacing(points: np.ndarray, holes: np.ndarray) -> float:
+    """The spacing of the drilling where it is sparsest, for the cell size.
+
+    Each hole's intercept is the mean position of its samples; the spacing is the
+    :data:`SPARSE_QUANTILE` quantile of the distance from each intercept to the nearest
+    other.  On a regular pattern it is the pattern's spacing; where infill is added to a
+    wider pattern, the wider spacing (while the wider pattern holds more than a tenth of
+    the holes).  A cell of about the spacing of the sparse drilling gives the clustered
+    data the weight of the area they share (Deutsch 2015, recalled from memory).
+
+    Parameters
+    ----------
+    points : (n, 3) float64, metres
+    holes : (n,) hole names (a point sample on its own is its own hole)
+
+    Returns
+    -------
+    float, metres
+
+    Raises
+    ------
+    ValueError
+        With samples from fewer than two holes, or all intercepts at one place.
+    """
+    points = np.asarray(points, dtype=np.float64)
+    _, hole = np.unique(np.asarray(holes), return_inverse=True)
+    count = np.bincount(hole)
+    if len(count) < 2:
+        raise ValueError("the samples come from one hole: there is no spacing to measure")
+    centres = np.column_stack([np.bincount(hole, weights=points[:, a]) / count for a in range(3)])
+    nearest, _ = cKDTree(centres).query(centres, k=2)
+    spacing = float(np.quantile(nearest[:, 1], SPARSE_QUANTILE))
+    if spacing <= 0.0:
+        raise ValueError("the holes' intercepts lie at one place: there is no spacing")
+    return spacing
 
 
 def nearest_neighbour_weights(points: np.ndarray, cell_centres: np.ndarray) -> np.ndarray:

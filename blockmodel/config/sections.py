@@ -144,9 +144,14 @@ class Declustering:
         8, doc="shifted cell grids averaged for each size (along the diagonal)", low=1
     )
     keep: str = setting(
-        "lowest_mean",
-        doc="the cell size kept: lowest or highest declustered mean, or given_size",
-        choices=("lowest_mean", "highest_mean", "given_size"),
+        "hole_spacing",
+        doc="the cell size kept: hole_spacing: the spacing of the domain's holes where "
+        "sparsest (of the distances from each hole's intercept, the mean position of its "
+        "composites, to the nearest other, the 90th percentile); lowest_mean or "
+        "highest_mean: the size of the lowest or highest declustered mean, for drilling "
+        "clustered in high or low grades only (on a regular pattern the lowest mean lies "
+        "below the true one); given_size",
+        choices=("hole_spacing", "lowest_mean", "highest_mean", "given_size"),
     )
     given_size: float = setting(
         50.0, doc="cell size kept with keep = given_size, metres", low=0.0, strict_low=True

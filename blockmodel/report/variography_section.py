@@ -6,6 +6,7 @@ from __future__ import annotations
 import dataclasses
 from pathlib import Path
 
+from blockmodel.assess.declustering import SPARSE_QUANTILE
 from blockmodel.config.project import Project
 from blockmodel.report.files import safe_stem
 from blockmodel.report.html import HtmlReport
@@ -36,10 +37,20 @@ def render_declustering(
     s = project.declustering
     report.heading("Declustering")
     sweep = s.cell_sizes
+    kept = {
+        "hole_spacing": "the cell of the holes' spacing where sparsest (per domain, the "
+        f"{100 * SPARSE_QUANTILE:.0f}th percentile of the distance from each hole's intercept "
+        "to the nearest other: the table's cell size)",
+        "lowest_mean": "the size of the lowest declustered mean (drilling clustered in high "
+        "grades)",
+        "highest_mean": "the size of the highest declustered mean (drilling clustered in low "
+        "grades)",
+        "given_size": f"the given size, {s.given_size:g} m",
+    }[s.keep]
     report.paragraph(
         f"Method: {s.method}; {sweep.count} cell sizes swept from {sweep.smallest:g} to "
         f"{sweep.largest:g} m, cell shape {s.cell_shape}, {s.grid_shifts} shifted grids per "
-        f"size; kept: {s.keep.replace('_', ' ')}."
+        f"size; kept: {kept}."
     )
     report.table(table)
     for name, d in declustering.by_domain.items():

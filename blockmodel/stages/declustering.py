@@ -10,6 +10,7 @@ import pandas as pd
 from blockmodel.assess.declustering import (
     CellDeclustering,
     cell_declustering,
+    hole_spacing,
     nearest_neighbour_weights,
     weighted_quantiles,
 )
@@ -105,14 +106,24 @@ def decluster(
         cell = None
         w = np.ones(len(rows))
         if s.method == "cell" and ok.sum() > 1:
+            keep, size = s.keep, s.given_size
+            if keep == "hole_spacing":
+                try:
+                    keep, size = "given_size", hole_spacing(pts[ok], part["hole"].to_numpy()[ok])
+                except ValueError as exc:
+                    raise setting_error(
+                        project.source,
+                        "declustering.keep",
+                        f"domain '{d.name}': {exc}; choose another declustering.keep",
+                    ) from None
             cell = cell_declustering(
                 pts[ok],
                 vals[ok],
                 sizes,
                 cell_shape=s.cell_shape,
                 grid_shifts=s.grid_shifts,
-                keep=s.keep,
-                given_size=s.given_size,
+                keep=keep,
+                given_size=size,
             )
             w[ok] = cell.weights
         elif s.method == "nearest":
