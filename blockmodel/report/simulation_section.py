@@ -39,9 +39,9 @@ CAUTION = (
     "leave out the uncertainty of the geological interpretation, the density, the "
     "variogram's shape and ranges, and the sampling and assaying, so the real uncertainty"
     " is wider: on three invented deposits whose truth is known, 20 trials each, the "
-    "P10-P90 band of the metal held the truth in 70 to 85 % of trials (80 % expected; a "
+    "P10-P90 band of the metal held the truth in 75 to 80 % of trials (80 % expected; a "
     "lode's metal fell above the band more often than below it), and that of the tonnes "
-    "above the median grade in 60 % (a thin seam, missed on both sides) to 85 %. They are"
+    "above the median grade in 55 % (a thin seam, missed on both sides) to 90 %. They are"
     " evidence for the qualified person's judgement of relative accuracy and confidence "
     "under the applicable reporting code, not a substitute for it."
 )
