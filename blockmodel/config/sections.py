@@ -7,6 +7,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from pathlib import Path
 
+from blockmodel.assess.declustering import SPARSE_QUANTILE
 from blockmodel.config.data_files import METAL_GRAMS, Columns, DataFiles, PointColumns
 from blockmodel.config.schema import setting
 from blockmodel.estimation.search import MAX_SAMPLES, MIN_SAMPLES
@@ -147,7 +148,8 @@ class Declustering:
         "hole_spacing",
         doc="the cell size kept: hole_spacing: the spacing of the domain's holes where "
         "sparsest (of the distances from each hole's intercept, the mean position of its "
-        "composites, to the nearest other, the 90th percentile); lowest_mean or "
+        f"composites, to the nearest other, the {100 * SPARSE_QUANTILE:.0f}th percentile); "
+        "lowest_mean or "
         "highest_mean: the size of the lowest or highest declustered mean, for drilling "
         "clustered in high or low grades only (on a regular pattern the lowest mean lies "
         "below the true one); given_size",
