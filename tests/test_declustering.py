@@ -140,25 +140,27 @@ def test_cell_of_the_hole_spacing_is_unbiased_where_lowest_mean_is_not():
     assert lowest.mean() < -3.0 * se, (lowest.mean(), se)
 
 
-def test_one_hole_domain_asks_for_another_cell_rule(small_project):
-    """A domain sampled by one hole has no hole spacing: one message naming the domain and
-    the setting (the command line turns it into exit status 2)."""
+def test_one_hole_domain_keeps_equal_weights_and_says_so(small_project):
+    """A domain sampled by one hole has no hole spacing: its composites keep equal weights
+    (the naive statistics) and a warning names the domain and the setting."""
     from blockmodel import stages
     from blockmodel.config.project import load_project
-    from blockmodel.errors import InputError
 
     project = load_project(small_project)
     table = pd.DataFrame(
         {
-            "hole": ["A1"] * 4,
-            "x": 10.0,
-            "y": 10.0,
-            "z": [90.0, 88.0, 86.0, 84.0],
-            "au": [1.0, 2.0, 0.5, 1.5],
-            "domain": "ore",
+            "hole": ["A1"] * 4 + ["A2", "A3"],
+            "x": [10.0] * 4 + [40.0, 10.0],
+            "y": [10.0] * 4 + [10.0, 40.0],
+            "z": [90.0, 88.0, 86.0, 84.0, 90.0, 90.0],
+            "au": [1.0, 2.0, 0.5, 1.5, 3.0, 0.2],
+            "domain": ["ore"] * 4 + ["waste"] * 2,
         }
     )
-    with pytest.raises(InputError) as caught:
-        stages.decluster(project, table)
-    text = str(caught.value)
-    assert "declustering.keep" in text and "'ore'" in text and "one hole" in text
+    decl = stages.decluster(project, table)
+    ore = decl.by_domain["ore"]
+    np.testing.assert_array_equal(ore.weights, 1.0)
+    assert ore.cell is None and ore.declustered_mean["au"] == ore.naive_mean["au"] == 1.25
+    assert decl.by_domain["waste"].cell is not None  # two holes: declustered
+    (message,) = decl.warnings()
+    assert "'ore'" in message and "one hole" in message and "declustering.keep" in message

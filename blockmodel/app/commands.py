@@ -136,10 +136,9 @@ def run_variography(project: Project, out: Path | None = None, *, replace: bool 
         decl = decluster(project, comps.table, domains)
         vario = variography(project, comps.table, decl.weights)
         report = HtmlReport(f"{project.name}: declustering and variography")
-        for res in vario.values():
-            for message in res.warnings():
-                steps.warn(message)
-                report.warn(message)
+        for message in decl.warnings() + [m for r in vario.values() for m in r.warnings()]:
+            steps.warn(message)
+            report.warn(message)
         render_variography(project, decl, vario, staged.path, report)
         write_variography_files(project, decl, vario, staged.path)
         report.write(staged.path / "variography.html")
@@ -181,10 +180,9 @@ def neighbourhood(
             decl = decluster(project, comps.table, domains)
         with steps("variography"):
             vario = variography(project, comps.table, decl.weights)
-        for res in vario.values():
-            for message in res.warnings():
-                steps.warn(message)
-                report.warn(message)
+        for message in decl.warnings() + [m for r in vario.values() for m in r.warnings()]:
+            steps.warn(message)
+            report.warn(message)
         models = {k: v.model for k, v in vario.items()}
         with steps("neighbourhood analysis"):
             result = neighbourhood_analysis(

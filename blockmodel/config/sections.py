@@ -148,8 +148,8 @@ class Declustering:
         "hole_spacing",
         doc="the cell size kept: hole_spacing: the spacing of the domain's holes where "
         "sparsest (of the distances from each hole's intercept, the mean position of its "
-        f"composites, to the nearest other, the {100 * SPARSE_QUANTILE:.0f}th percentile); "
-        "lowest_mean or "
+        f"composites, to the nearest other, the {100 * SPARSE_QUANTILE:.0f}th percentile; "
+        "a domain sampled by one hole keeps equal weights, with a warning); lowest_mean or "
         "highest_mean: the size of the lowest or highest declustered mean, for drilling "
         "clustered in high or low grades only (on a regular pattern the lowest mean lies "
         "below the true one); given_size",

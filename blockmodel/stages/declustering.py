@@ -35,6 +35,7 @@ class DomainDeclustering:
     declustered_mean: dict[str, float]
     declustered_variance: dict[str, float]
     declustered_quantiles: dict[str, np.ndarray]
+    unweighted: str = ""  # why the domain's composites keep equal weights, if they do
 
 
 @dataclass(frozen=True)
@@ -51,6 +52,15 @@ class Declustering:
 
     by_domain: dict[str, DomainDeclustering]
     weights: np.ndarray
+
+    def warnings(self) -> list[str]:
+        """Domains whose composites could not be declustered by the rule asked for."""
+        return [
+            f"declustering of domain '{name}': {d.unweighted}; set declustering.keep to "
+            "given_size to decluster it"
+            for name, d in self.by_domain.items()
+            if d.unweighted
+        ]
 
     def table(self, grades) -> pd.DataFrame:
         """One row per domain and grade: counts, means, variance, quantiles, cell size."""
@@ -105,17 +115,14 @@ def decluster(
         ok = np.isfinite(vals)
         cell = None
         w = np.ones(len(rows))
-        if s.method == "cell" and ok.sum() > 1:
-            keep, size = s.keep, s.given_size
-            if keep == "hole_spacing":
-                try:
-                    keep, size = "given_size", hole_spacing(pts[ok], part["hole"].to_numpy()[ok])
-                except ValueError as exc:
-                    raise setting_error(
-                        project.source,
-                        "declustering.keep",
-                        f"domain '{d.name}': {exc}; choose another declustering.keep",
-                    ) from None
+        unweighted = ""
+        keep, size = s.keep, s.given_size
+        if s.method == "cell" and ok.sum() > 1 and keep == "hole_spacing":
+            try:
+                keep, size = "given_size", hole_spacing(pts[ok], part["hole"].to_numpy()[ok])
+            except ValueError as exc:
+                unweighted = f"{exc}: its composites keep equal weights"
+        if s.method == "cell" and ok.sum() > 1 and not unweighted:
             cell = cell_declustering(
                 pts[ok],
                 vals[ok],
@@ -148,5 +155,5 @@ def decluster(
             if f.any():
                 var[g] = float(w[f] @ (v[f] - decl[g]) ** 2 / w[f].sum())
                 quant[g] = weighted_quantiles(v[f], w[f], QUANTILES)
-        out[d.name] = DomainDeclustering(w, cell, len(rows), naive, decl, var, quant)
+        out[d.name] = DomainDeclustering(w, cell, len(rows), naive, decl, var, quant, unweighted)
     return Declustering(out, weights)

@@ -131,6 +131,8 @@ def run_stages(
         domains = build_domain_model(project, composites.table)
     with steps("declustering"):
         decl = decluster(project, composites.table, domains)
+    for message in decl.warnings():
+        warn(message)
     with steps("variography"):
         vario = variography(project, composites.table, decl.weights)
     for res in vario.values():
