@@ -757,18 +757,62 @@ def test_bands_hold_the_truth_over_many_deposits(tmp_path, name):
 
 def test_realisations_on_a_cluster_equal_the_local_ones(rng):
     """A dask.distributed cluster computes the same realisations as this process (each
-    drawn from its own seed), batch by batch."""
+    drawn from its own seed), batch by batch, with two draws of the model: realisation r
+    follows plan ``r % 2`` (the second made when its turn comes)."""
     from distributed import LocalCluster
 
     from blockmodel.stages.simulation import _run
 
     plan, _, _ = _small_plan(rng)
-    local = simulate_blocks(plan, 12)
+    other = bm.VariogramModel(0.4, [bm.Structure("spherical", 0.6, (8.0, 8.0, 8.0))])
+    second, _, _ = _small_plan(np.random.default_rng(12345), model=other)
+    local = np.empty((plan.block_nodes.size, 12))
+    local[:, 0::2] = simulate_blocks(plan, 6, first=0, step=2)
+    local[:, 1::2] = simulate_blocks(second, 6, first=1, step=2)
+    np.testing.assert_array_equal(local[:, 2::2], simulate_blocks(plan, 5, first=2, step=2))
+    assert np.array_equal(_run([plan, lambda: second], 12, 2, "test", None, "", {}), local)
     with LocalCluster(
         n_workers=2, threads_per_worker=1, host="127.0.0.1", dashboard_address=None, processes=True
     ) as cluster:
-        remote = _run(plan, 12, 2, "test", None, cluster.scheduler_address, {})
+        remote = _run([plan, lambda: second], 12, 2, "test", None, cluster.scheduler_address, {})
     np.testing.assert_array_equal(remote, local)
+
+
+def test_realisations_follow_draws_of_the_model(tmp_path):
+    """``simulation.model_draws = 3``: three draws of the normal scores' model, centred on
+    the fitted model (their mean nugget and sill shares equal its shares where no share was
+    clipped at zero) with its structures' ranges; realisation r the same whatever the number
+    of realisations or threads; ``model_draws = 0`` takes the fitted model as known."""
+    import dataclasses
+
+    from blockmodel.config.project import load_project
+    from blockmodel.simulation.model_uncertainty import _shares
+    from blockmodel.stages.run import run_stages, simulate_results
+    from tests.conftest import make_box_project
+
+    project = load_project(make_box_project(tmp_path))
+    draws3 = dataclasses.replace(
+        project, simulation=dataclasses.replace(project.simulation, model_draws=3)
+    )
+    results = run_stages(draws3)
+    seven = simulate_results(results, realisations=7, workers=1).by_key["ore.cu"]
+    four = simulate_results(results, realisations=4, workers=2).by_key["ore.cu"]
+    np.testing.assert_array_equal(seven.grades[:, :4], four.grades)
+    assert len(seven.model_draws) == 3
+    structures = results.variography["ore.cu"].model.structures
+    shares = np.array([_shares(m, structures) for m in seven.model_draws])
+    assert np.ptp(shares, axis=0).max() > 0.01  # the draws differ
+    assert np.all(shares > 0)  # none clipped here (nugget shares 0.35 to 0.50)
+    np.testing.assert_allclose(shares.mean(axis=0), _shares(seven.model, structures))
+    for m in seven.model_draws:
+        assert {st.ranges for st in m.structures} <= {st.ranges for st in structures}
+    known_model = dataclasses.replace(
+        project, simulation=dataclasses.replace(project.simulation, model_draws=0)
+    )
+    known = simulate_results(dataclasses.replace(results, project=known_model), realisations=4)
+    known = known.by_key["ore.cu"]
+    assert known.model_draws == ()
+    assert not np.array_equal(known.grades, four.grades)
 
 
 def test_reproduction_of_the_declustered_mean(rng):
@@ -884,6 +928,26 @@ def test_ranges_beyond_the_domain_stop_the_simulation(tmp_path, capsys):
         "'exponential', sill = 0.7, ranges = [60.0, 40.0, 20.0] }]\n"
     )
     project_file.write_text(base + given)
+    assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 0
+
+
+def test_a_bootstrap_beyond_its_data_limit_stops_with_the_setting_named(
+    tmp_path, capsys, monkeypatch
+):
+    """More composites than the bootstrap factorises (the limit lowered to 10 here):
+    ``simulate`` stops with exit status 2 naming ``simulation.model_draws`` and writes
+    nothing; ``model_draws = 0`` takes the model as known and runs."""
+    from blockmodel.simulation import model_uncertainty
+    from tests.conftest import make_box_project
+
+    monkeypatch.setattr(model_uncertainty, "MOST_BOOTSTRAP_DATA", 10)
+    project_file = make_box_project(tmp_path)
+    out = tmp_path / "sim"
+    assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "simulation.model_draws" in err and "at most 10 data" in err
+    assert "Traceback" not in err and not out.exists()
+    project_file.write_text(project_file.read_text() + "\n[simulation]\nmodel_draws = 0\n")
     assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 0
 
 

@@ -142,7 +142,8 @@ def main(*, blocks: int = 200_000, quick: bool = False, scale: bool = False) -> 
         _line(
             f"{s['count']} realisations, {'x'.join(map(str, disc))} nodes per block "
             f"({s['nodes']:,} nodes, FFT grid {s['fft']:,}; peak {s['peak_mb']:,.0f} MB of "
-            f"4,096; preparation {s['preparation']:.1f} s; CPU-s unconditional "
+            f"4,096; preparation {s['preparation']:.1f} s, plans of the other model draws "
+            f"{s.get('model draws', 0):.1f} s; CPU-s unconditional "
             f"{s.get('unconditional', 0):.1f}, conditioning {s.get('conditioning', 0):.1f}, "
             f"back to blocks {s.get('to_blocks', 0):.1f})",
             s["seconds"],

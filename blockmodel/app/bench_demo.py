@@ -105,8 +105,9 @@ def demo_stages() -> dict:
 
 def simulation_demo(realisations: int, discretisation: tuple[int, int, int]) -> dict:
     """Conditional simulation of the demo lode (child process, for its peak memory):
-    seconds of preparation and of the realisations, split into unconditional fields,
-    conditioning and back to blocks (summed over threads)."""
+    seconds of preparation and of the realisations, split into the plans of the model's
+    later draws, unconditional fields, conditioning and back to blocks (the last three
+    summed over threads)."""
     return child_peak(
         "import dataclasses, tempfile, time\nfrom pathlib import Path\n"
         "from blockmodel.demo.deposit import write_demo\n"

@@ -345,6 +345,16 @@ class Simulation:
         "chi-square); false: the sill is known and the bands leave out the uncertainty of "
         "the histogram's spread",
     )
+    model_draws: int = setting(
+        10,
+        doc="draws of each fitted normal-score model, by a parametric bootstrap of its fit "
+        "(values drawn at the composites under the model and fitted again; the nugget and "
+        "sills move, the ranges stay): realisation r follows draw r modulo their number, "
+        "each draw costing one more set of conditioning weights; 0 or 1: the model is known "
+        "and the bands leave out its uncertainty (a model given in simulation.models, or "
+        "simulation.model = 'standardised', is always taken as known)",
+        low=0,
+    )
     local_mean_window: dict[str, float] = setting(
         doc="domains and grades whose normal scores follow a trend (e.g. a high-grade "
         "shoot inside the domain), simulated about a local mean: a Gaussian-kernel "

@@ -16,6 +16,7 @@ from blockmodel.report.files import safe_stem, write_table
 from blockmodel.report.html import HtmlReport
 from blockmodel.report.tables import round_significant
 from blockmodel.simulation.conditional import FEWEST_DOF
+from blockmodel.simulation.model_uncertainty import sill_shares
 from blockmodel.stages.simulation import REPRODUCTION_TOLERANCE, Simulation
 
 __all__ = [
@@ -54,6 +55,21 @@ def _dof(nu: float):
     if nu <= FEWEST_DOF:
         return f"{nu:.1f}: too few to draw, taken as known"
     return round(nu)
+
+
+def _draws(d) -> str:
+    """The draws of a domain's normal-score model as the page lists them: their number and
+    the range of the nugget and of each structure's sill, as shares of the total sill."""
+    if not d.model_draws:
+        return "none (the model taken as known)"
+    structures, shares = sill_shares(d.model_draws)
+    low, high = shares.min(axis=0), shares.max(axis=0)
+    parts = [f"nugget {low[0]:.2f}-{high[0]:.2f}"]
+    parts += [
+        f"{st.kind} to {st.ranges[0]:.0f} m {a:.2f}-{b:.2f}"
+        for st, a, b in zip(structures, low[1:], high[1:], strict=True)
+    ]
+    return f"{len(d.model_draws)}; shares of the sill: " + ", ".join(parts)
 
 
 def simulation_grade_tonnage(project: Project, sim: Simulation) -> pd.DataFrame:
@@ -164,6 +180,16 @@ def render_simulation(
         "codes the nodes nearest a composite of its code, as its blocks' proportions; all "
         f"of a block's nodes where none is inside, counted below). {support} Grades are "
         "simulated independently of each other."
+        + (
+            f" The fitted model is uncertain too: {s.model_draws} draws of it (below) come "
+            "from a parametric bootstrap of its fit (values drawn at the composites under "
+            "the model and fitted again the same way; the draws are the fitted model plus "
+            "each refit's deviation from the refits' average, so they centre on the fitted "
+            "model), and realisation r follows draw r modulo their number. The draws move "
+            "the nugget and the sills; the structures' ranges and orientation stay as fitted."
+            if s.model_draws > 1
+            else ""
+        )
     )
     report.box("caution")
     report.paragraph(CAUTION)
@@ -198,6 +224,7 @@ def render_simulation(
                     round(d.mean_sd, 3) if d.mean_sd > 0 else "0 (known)"
                 ),
                 "sill's degrees of freedom": _dof(d.variance_dof),
+                "model draws": _draws(d),
                 "FFT grid nodes": d.fft_cells,
                 "preparation (s)": d.timings["preparation"],
                 "realisations (s)": d.timings["realisations"],

@@ -313,12 +313,13 @@ def simulate_blocks(
     *,
     threads: int = 1,
     first: int = 0,
+    step: int = 1,
     clock: dict | None = None,
 ) -> np.ndarray:
-    """Block grades of realisations ``first .. first + realisations - 1``:
-    (b, realisations) float64, the same for any number of ``threads``; ``clock`` as
+    """Block grades of realisations ``first, first + step, ...`` (``realisations`` of
+    them): (b, realisations) float64, the same for any number of ``threads``; ``clock`` as
     :meth:`SimulationPlan.realisations` (seconds summed over threads)."""
-    which = np.arange(first, first + realisations)
+    which = first + step * np.arange(realisations)
     if threads <= 1 or realisations < 2:
         return plan.realisations(which, clock)
     from concurrent.futures import ThreadPoolExecutor

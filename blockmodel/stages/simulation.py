@@ -1,10 +1,12 @@
 """Conditional simulation as a stage: per estimated domain and grade, a Gaussian
-framework (declustered normal scores, their variogram), realisations of block grades
+framework (declustered normal scores, their variogram and, unless it is taken as known,
+draws of that variogram by a bootstrap of its fit), realisations of block grades
 conditioned to the domain's composites (hard boundaries, as in estimation), and what the
 realisations say per block and per domain and class."""
 
 from __future__ import annotations
 
+import functools
 import os
 import time
 from collections.abc import Callable
@@ -16,6 +18,7 @@ from blockmodel.config.project import Project
 from blockmodel.errors import setting_error
 from blockmodel.simulation.conditional import plan_simulation, simulate_blocks
 from blockmodel.simulation.dispersion import dispersion_sill
+from blockmodel.simulation.model_uncertainty import centred_models, gaussian_at_points
 from blockmodel.simulation.transform import gaussian_transform
 from blockmodel.stages.declustering import Declustering
 from blockmodel.stages.domain_model import code_partition
@@ -28,8 +31,13 @@ from blockmodel.stages.simulation_results import (
 from blockmodel.stages.support import support_curves
 from blockmodel.stages.tables import class_order
 from blockmodel.stages.variography import Variography, normal_score_model, scaled_model
+from blockmodel.variography.models import VariogramModel
 
 __all__ = ["REPRODUCTION_TOLERANCE", "DomainSimulation", "Simulation", "simulate"]
+
+# the stream of the model's bootstrap draws, apart from the realisations' (``r``, then
+# ``r, 1`` for the mean and ``r, 2`` for the sill)
+MODEL_STREAM = 2**31
 
 
 def simulate(
@@ -123,18 +131,19 @@ def simulate(
                 "the window by",
             )
         points = composites.loc[own, ["x", "y", "z"]].to_numpy(float)
+        shape = model
         if window == 0.0 and key not in s.models:
             model, source = _sill_from_data(project, key, model, source, points, weights)
-        plan = plan_simulation(
-            table.iloc[rows][["i", "j", "k"]].to_numpy(np.int64),
-            np.asarray(grid_origin, dtype=float),
-            units.size,
-            units.discretisation,
-            points,
-            scores,
-            model,
-            transform,
-            (seed, stream),
+        plan_of = functools.partial(  # the plan under a given model
+            plan_simulation,
+            blocks=table.iloc[rows][["i", "j", "k"]].to_numpy(np.int64),
+            grid_origin=np.asarray(grid_origin, dtype=float),
+            block_size=units.size,
+            discretisation=units.discretisation,
+            data=points,
+            scores=scores,
+            transform=transform,
+            seed=(seed, stream),
             neighbours=s.neighbours,
             workers=1,
             inside=_inside(project, d.name, solids, composites),
@@ -143,9 +152,23 @@ def simulate(
             variance_uncertainty=s.variance_uncertainty,
             local_mean_window=window,
         )
+        drawn: list[VariogramModel] = []
+        if s.model_draws > 1 and key not in s.models and s.model == "fit" and model.structures:
+            drawn = _model_draws(
+                project,
+                key,
+                (shape, model),
+                composites[own],
+                weights,
+                variography[key],
+                (seed, stream),
+                scaled=window == 0.0,
+            )
+        plan = plan_of(model=drawn[0] if drawn else model)
         prepared = time.perf_counter()
         clock: dict[str, float] = {}
-        grades = _run(plan, realisations, threads, key, progress, cluster, clock)
+        later = [functools.partial(plan_of, model=m) for m in drawn[1:]]
+        grades = _run([plan, *later], realisations, threads, key, progress, cluster, clock)
         out[key] = DomainSimulation(
             d.name,
             g,
@@ -168,6 +191,7 @@ def simulate(
             },
             plan.residual_sd,
             plan.variance_dof,
+            tuple(drawn),
         )
     cutoffs = np.asarray(project.report.cutoffs, dtype=float)
     support = support_curves(
@@ -196,6 +220,55 @@ def _sill_from_data(project: Project, key: str, model, source: str, points, weig
             "normal-score model",
         ) from None
     return scaled_model(model, sill), f"{source}; sill {sill:.2f}, the composites' variance"
+
+
+def _model_draws(
+    project: Project,
+    key: str,
+    fitted: tuple[VariogramModel, VariogramModel],
+    composites: pd.DataFrame,
+    weights: np.ndarray,
+    grade: Variography,
+    seed: tuple[int, int],
+    *,
+    scaled: bool,
+) -> list[VariogramModel]:
+    """``simulation.model_draws`` draws of the normal scores' model of ``key``
+    (:mod:`blockmodel.simulation.model_uncertainty`): Gaussian values drawn at the
+    composites under the model as simulated (``fitted[1]``), from
+    ``default_rng([*seed, MODEL_STREAM])``, each fitted as the data were
+    (:func:`normal_score_model`), the refits' deviations added to the fitted shape
+    (``fitted[0]``, total sill 1) and, when ``scaled``, each draw's sill set from the
+    composites' variance as the fitted model's was."""
+    draws = project.simulation.model_draws
+    points = composites[["x", "y", "z"]].to_numpy(float)
+    rng = np.random.default_rng([*seed, MODEL_STREAM])
+    try:
+        values = gaussian_at_points(points, fitted[1], draws, rng)
+    except (ValueError, np.linalg.LinAlgError) as exc:
+        raise setting_error(
+            project.source,
+            "simulation.model_draws",
+            f"{key}: cannot draw values at the composites for the model's bootstrap ({exc}); "
+            "set simulation.model_draws = 0 to take the model as known",
+        ) from None
+    frame = composites.copy()
+    refits = []
+    for y in values:
+        frame[grade.grade] = y
+        refits.append(normal_score_model(project, frame, weights, grade)[0])
+    out = centred_models(fitted[0], refits, grade.model.structures)
+    if not scaled:
+        return out
+    try:
+        return [scaled_model(m, dispersion_sill(points, weights, m)) for m in out]
+    except ValueError as exc:
+        raise setting_error(
+            project.source,
+            "simulation.model_draws",
+            f"{key}: a draw of the model ({exc}); set simulation.model_draws = 0 to take "
+            "the model as known, or give the model in simulation.models",
+        ) from None
 
 
 def _solids(project: Project) -> dict:
@@ -236,13 +309,36 @@ def _inside(project: Project, name: str, solids: dict, composites: pd.DataFrame)
 
 
 def _run(
-    plan, realisations: int, threads: int, key: str, progress, cluster: str, clock: dict
+    plans: list, realisations: int, threads: int, key: str, progress, cluster: str, clock: dict
 ) -> np.ndarray:
     """The realisations in batches, progress after each: threads within a batch on this
-    machine, or one task per batch on a ``dask.distributed`` cluster (the plan sent to
-    every worker once)."""
+    machine, or one task per batch on a ``dask.distributed`` cluster (each plan sent to
+    every worker once).  ``plans[k]`` (the first a plan, the others callables making one,
+    each made when its turn comes and let go after it) computes realisations ``k, k + K,
+    ...`` of ``K = len(plans)``; the seconds of making them go to ``clock["model draws"]``."""
+    step = len(plans)
     size = max(threads, min(10, realisations))
-    batches = [(f, min(size, realisations - f)) for f in range(0, realisations, size)]
+    out = np.empty((0, realisations))
+    done = 0
+    for k, plan in enumerate(plans[:realisations]):
+        if callable(plan):
+            start = time.perf_counter()
+            plan = plan()
+            clock["model draws"] = clock.get("model draws", 0.0) + time.perf_counter() - start
+        which = np.arange(k, realisations, step)
+        batches = [(which[f], min(size, len(which) - f)) for f in range(0, len(which), size)]
+        parts = _batches(
+            plan, batches, step, threads, cluster, clock, key, progress, done, realisations
+        )
+        if k == 0:
+            out = np.empty((parts.shape[0], realisations))
+        out[:, which] = parts
+        done += len(which)
+    return out
+
+
+def _batches(plan, batches, step, threads, cluster, clock, key, progress, done, total):
+    """The realisations of one plan, batch by batch: (b, n) in the batches' order."""
     parts: dict[int, np.ndarray] = {}
     if cluster:
         try:
@@ -253,14 +349,17 @@ def _run(
             ) from None
         with Client(cluster) as client:
             remote = client.scatter(plan, broadcast=True)
-            tasks = {client.submit(simulate_blocks, remote, n, first=f): f for f, n in batches}
+            tasks = {
+                client.submit(simulate_blocks, remote, n, first=f, step=step): f for f, n in batches
+            }
             for task in as_completed(tasks):
                 parts[tasks[task]] = task.result()
                 if progress is not None:
-                    progress(key, sum(p.shape[1] for p in parts.values()), realisations)
+                    progress(key, done + sum(p.shape[1] for p in parts.values()), total)
     else:
         for f, n in batches:
-            parts[f] = simulate_blocks(plan, n, threads=threads, first=f, clock=clock)
+            parts[f] = simulate_blocks(plan, n, threads=threads, first=f, step=step, clock=clock)
+            done += n
             if progress is not None:
-                progress(key, f + n, realisations)
+                progress(key, done, total)
     return np.concatenate([parts[f] for f, _ in batches], axis=1)

@@ -59,13 +59,20 @@ class DomainSimulation:
         Seconds: ``preparation`` (transform, variogram, kriging weights, spectrum),
         ``realisations`` (wall clock of all realisations) and, summed over threads (not on
         a cluster), its parts ``unconditional`` (spectral fields), ``conditioning``
-        (kriged residuals) and ``to_blocks`` (back-transform, block averages).
+        (kriged residuals) and ``to_blocks`` (back-transform, block averages); with
+        model draws, the bootstrap's refits are in ``preparation`` and the plans of the
+        draws after the first in ``model draws`` (inside ``realisations``).
     residual_sd : float
         Standard deviation of the normal scores about a locally varying mean; 1: the mean
         is one number.
     variance_dof : float
         Degrees of freedom of the composites' declustered variance, from which each
-        realisation draws the factor on its sill; inf: the sill is known.
+        realisation draws the factor on its sill; inf: the sill is known (with model
+        draws: under the first draw).
+    model_draws : tuple of VariogramModel
+        Draws of the normal scores' model (:mod:`blockmodel.simulation.model_uncertainty`);
+        realisation r follows draw ``r % len(model_draws)``.  Empty: every realisation
+        follows ``model``, taken as known.
     """
 
     domain: str
@@ -85,6 +92,7 @@ class DomainSimulation:
     timings: dict[str, float]
     residual_sd: float = 1.0
     variance_dof: float = np.inf
+    model_draws: tuple[VariogramModel, ...] = ()
 
 
 @dataclass(frozen=True)
