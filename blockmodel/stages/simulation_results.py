@@ -54,7 +54,8 @@ class DomainSimulation:
     blocks_without_inside_nodes : int
         Blocks of the domain none of whose nodes lies inside the domain.
     mean_sd : float
-        Standard deviation of each realisation's mean normal score (0: the mean known).
+        Standard deviation of each realisation's mean normal score (0: the mean known;
+        with model draws: under the first draw).
     timings : dict
         Seconds: ``preparation`` (transform, variogram, kriging weights, spectrum),
         ``realisations`` (wall clock of all realisations) and, summed over threads (not on
