@@ -766,6 +766,43 @@ def test_realisations_on_a_cluster_equal_the_local_ones(rng):
     np.testing.assert_array_equal(remote, local)
 
 
+def test_a_plan_like_another_equals_one_made_afresh(rng, monkeypatch):
+    """Oracle: a plan under a second model made ``like`` a first plan (its neighbours and
+    local mean taken over, the two models sharing their longest structure) equals the plan
+    made afresh under the second model, array for array; a model whose longest structure
+    differs searches again and equals its fresh plan too."""
+    from blockmodel.simulation import conditional, conditioning
+
+    searches = []
+    tree, kernel = conditioning.cKDTree, conditional.local_mean
+    monkeypatch.setattr(conditioning, "cKDTree", lambda *a: searches.append(1) or tree(*a))
+    monkeypatch.setattr(conditional, "local_mean", lambda *a: searches.append(2) or kernel(*a))
+    first, data, scores = _small_plan(rng, neighbours=6, local_mean_window=0.5, trend=1.0)
+    ijk = np.stack(np.meshgrid(*[np.arange(n) for n in (12, 12, 2)], indexing="ij"), -1)
+    ijk = ijk.reshape(-1, 3)
+    args = (ijk, np.zeros(3), np.ones(3), (1, 1, 1), data, scores)
+    options = {"neighbours": 6, "local_mean_window": 0.5}
+    longest = MODEL.structures[0]
+    for model, found in (
+        (bm.VariogramModel(0.4, [bm.Structure("spherical", 0.6, longest.ranges)]), []),
+        (bm.VariogramModel(0.4, [bm.Structure("spherical", 0.6, (5.0, 5.0, 2.0))]), [1, 2]),
+    ):
+        searches.clear()
+        like = plan_simulation(*args, model, first.transform, (7,), **options, like=first)
+        assert searches == found  # neighbours and local mean taken over, or found again
+        fresh = plan_simulation(*args, model, first.transform, (7,), **options)
+        for a, b in (
+            (like.weights.index, fresh.weights.index),
+            (like.weights.weights, fresh.weights.weights),
+            (like.weights.variance, fresh.weights.variance),
+            (like.target_mean, fresh.target_mean),
+            (like.data_mean, fresh.data_mean),
+        ):
+            np.testing.assert_array_equal(a, b)
+        assert like.residual_sd == fresh.residual_sd
+        np.testing.assert_array_equal(simulate_blocks(like, 3), simulate_blocks(fresh, 3))
+
+
 def test_realisations_follow_draws_of_the_model(tmp_path):
     """``simulation.model_draws = 3``: three draws of the normal scores' model, centred on
     the fitted model (their mean nugget and sill shares equal its shares where no share was

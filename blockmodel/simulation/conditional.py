@@ -21,8 +21,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from blockmodel.simulation.conditioning import KrigingWeights, simple_kriging_weights
-from blockmodel.simulation.local_mean import local_mean
+from blockmodel.simulation.conditioning import (
+    KrigingWeights,
+    neighbour_metric,
+    simple_kriging_weights,
+)
+from blockmodel.simulation.local_mean import LocalMean, local_mean
 from blockmodel.simulation.mean_uncertainty import declustered_mean_variance
 from blockmodel.simulation.spectral import SpectralSimulator
 from blockmodel.simulation.transform import GaussianTransform
@@ -95,6 +99,9 @@ class SimulationPlan:
         Degrees of freedom of the data's declustered variance; each realisation scales its
         model's sill by ``nu / chi2(nu)`` (:meth:`variance_factor`; not at
         :data:`FEWEST_DOF` or fewer); inf: the variance is known.
+    metric : (3, 3) float64 or None
+        The frame of the neighbour search and of the local mean's kernel
+        (:func:`~blockmodel.simulation.conditioning.neighbour_metric` of the model).
     """
 
     nodes: NodeGrid
@@ -114,6 +121,7 @@ class SimulationPlan:
     target_mean: np.ndarray | None = None
     residual_sd: float = 1.0
     variance_dof: float = np.inf
+    metric: np.ndarray | None = None
 
     def variance_factor(self, r: int) -> float:
         """The factor on the model's sill in realisation ``r``: ``nu / chi2(nu)`` drawn
@@ -184,6 +192,7 @@ def plan_simulation(
     mean_uncertainty: bool = False,
     variance_uncertainty: bool = False,
     local_mean_window: float = 0.0,
+    like: SimulationPlan | None = None,
 ) -> SimulationPlan:
     """Prepare the conditional simulation of one domain and grade.
 
@@ -228,6 +237,11 @@ def plan_simulation(
         Positive: the mean varies locally, a kernel average of the declustered scores
         with a window of this fraction of the longest structure's ranges
         (:func:`~blockmodel.simulation.local_mean.local_mean`); 0: the mean is zero.
+    like : SimulationPlan, optional
+        A plan of the same blocks, data, scores, weights and settings under another model
+        (a draw of the same fit): where both models have the same
+        :func:`~blockmodel.simulation.conditioning.neighbour_metric`, its neighbours and
+        local mean are taken over instead of found again (the result is the same).
 
     Returns
     -------
@@ -271,13 +285,31 @@ def plan_simulation(
     if weights is None:
         weights = np.ones(len(data))
     kept_weights = np.asarray(weights, dtype=np.float64)[keep]
-    kriging = simple_kriging_weights(at_data, at_targets, model, neighbours=neighbours)
+    metric = neighbour_metric(model)
+    same = (
+        like is not None
+        and np.array_equal(like.metric, metric)
+        and np.array_equal(like.targets, targets)
+        and np.array_equal(like.data_nodes, flat[keep])
+    )
+    kriging = simple_kriging_weights(
+        at_data,
+        at_targets,
+        model,
+        neighbours=neighbours,
+        index=like.weights.index if same else None,
+    )
     simulator = SpectralSimulator(shape, tuple(spacing), model, workers=workers)
     local = None
     if local_mean_window > 0.0:
         if not model.structures:
             raise ValueError("a local mean needs a model with a structure (its ranges)")
-        local = local_mean(at_data, kept_scores, kept_weights, at_targets, model, local_mean_window)
+        if same and like.data_mean is not None:
+            local = LocalMean(like.data_mean, like.target_mean, like.residual_sd)
+        else:
+            local = local_mean(
+                at_data, kept_scores, kept_weights, at_targets, model, local_mean_window
+            )
     residual_sd = 1.0 if local is None else local.residual_sd
     mean_sd = 0.0
     if mean_uncertainty:
@@ -304,6 +336,7 @@ def plan_simulation(
         None if local is None else local.at_targets,
         residual_sd,
         dof,
+        metric,
     )
 
 

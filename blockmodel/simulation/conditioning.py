@@ -17,7 +17,7 @@ from scipy.spatial import cKDTree
 
 from blockmodel.variography.models import VariogramModel
 
-__all__ = ["KrigingWeights", "simple_kriging_weights"]
+__all__ = ["KrigingWeights", "neighbour_metric", "simple_kriging_weights"]
 
 # most data whose covariance table is computed once (larger sets: per chunk of nodes)
 TABLE_LIMIT = 5000
@@ -52,6 +52,15 @@ class KrigingWeights:
         return np.einsum("mk,mkr->mr", self.weights, gathered)
 
 
+def neighbour_metric(model: VariogramModel) -> np.ndarray:
+    """(3, 3) matrix taking separations (metres) to the frame in which neighbours are
+    nearest: that of the structure with the longest range (the first of equals), the
+    identity for a pure nugget."""
+    if not model.structures:
+        return np.eye(3)
+    return max(model.structures, key=lambda s: max(s.ranges)).transform()
+
+
 def simple_kriging_weights(
     data: np.ndarray,
     nodes: np.ndarray,
@@ -59,6 +68,7 @@ def simple_kriging_weights(
     *,
     neighbours: int = 24,
     chunk: int = 4096,
+    index: np.ndarray | None = None,
 ) -> KrigingWeights:
     """Simple-kriging weights (known zero mean) of ``data`` at ``nodes``.
 
@@ -73,6 +83,9 @@ def simple_kriging_weights(
         with the longest range (the nugget's metric when there is none).
     chunk : int
         Nodes solved at once (memory about ``chunk * neighbours**2 * 24`` bytes).
+    index : (m, k) int64, optional
+        The data each node uses, found before for these data and nodes in the same
+        :func:`neighbour_metric` (the neighbour search is then skipped); None: searched.
 
     Returns
     -------
@@ -83,12 +96,11 @@ def simple_kriging_weights(
     k = min(int(neighbours), len(data))
     if k < 1:
         raise ValueError("simple kriging needs at least one datum")
-    if model.structures:
-        longest = max(model.structures, key=lambda s: max(s.ranges))
-        metric = longest.transform()
-    else:
-        metric = np.eye(3)
-    tree = cKDTree(data @ metric.T)
+    metric = neighbour_metric(model)
+    found = index
+    if found is not None and found.shape != (len(nodes), k):
+        raise ValueError(f"index must be ({len(nodes)}, {k}); got {found.shape}")
+    tree = cKDTree(data @ metric.T) if found is None else None
     index = np.empty((len(nodes), k), dtype=np.int64)
     weights = np.empty((len(nodes), k))
     variance = np.empty(len(nodes))
@@ -100,8 +112,10 @@ def simple_kriging_weights(
         table = table.reshape(len(data), len(data))
     for start in range(0, len(nodes), chunk):
         part = nodes[start : start + chunk]
-        _, near = tree.query(part @ metric.T, k=k)
-        near = near.reshape(len(part), k)
+        if tree is None:
+            near = found[start : start + len(part)]
+        else:
+            near = tree.query(part @ metric.T, k=k)[1].reshape(len(part), k)
         xyz = data[near]  # (p, k, 3)
         if table is not None:
             lhs = table[near[:, :, None], near[:, None, :]]

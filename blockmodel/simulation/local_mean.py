@@ -27,6 +27,7 @@ import numpy as np
 from numba import njit
 
 from blockmodel.estimation._threads import run_split
+from blockmodel.simulation.conditioning import neighbour_metric
 from blockmodel.variography.models import VariogramModel
 
 __all__ = ["LocalMean", "kernel_mean", "local_mean"]
@@ -161,8 +162,7 @@ def local_mean(
     ``targets`` ((m, 3) float64, metres), in the frame of the ``model``'s longest structure
     with a kernel of ``window`` times its ranges, and the declustered standard deviation
     of the residuals.  ``weights``: (n,) declustering weights."""
-    longest = max(model.structures, key=lambda s: max(s.ranges))
-    metric = longest.transform()
+    metric = neighbour_metric(model)
     at_data = kernel_mean(data, scores, weights, data, metric, window)
     at_targets = kernel_mean(data, scores, weights, targets, metric, window)
     residual = np.asarray(scores, dtype=np.float64) - at_data

@@ -167,7 +167,7 @@ def simulate(
         plan = plan_of(model=drawn[0] if drawn else model)
         prepared = time.perf_counter()
         clock: dict[str, float] = {}
-        later = [functools.partial(plan_of, model=m) for m in drawn[1:]]
+        later = [functools.partial(plan_of, model=m, like=plan) for m in drawn[1:]]
         grades = _run([plan, *later], realisations, threads, key, progress, cluster, clock)
         out[key] = DomainSimulation(
             d.name,
