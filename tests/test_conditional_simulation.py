@@ -976,6 +976,34 @@ def test_a_bootstrap_beyond_its_data_limit_stops_with_the_setting_named(
     assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 0
 
 
+def test_a_failed_refit_of_the_bootstrap_names_its_setting(tmp_path, capsys, monkeypatch):
+    """A bootstrap draw whose fit fails (the fit is made to fail after the data's own fit
+    here) stops ``simulate`` with exit status 2 naming ``simulation.model_draws``, not the
+    variography the data passed."""
+    import importlib
+
+    from blockmodel.errors import setting_error
+    from tests.conftest import make_box_project
+
+    simulation = importlib.import_module("blockmodel.stages.simulation")
+    original = simulation.normal_score_model
+    calls = []
+
+    def fit(project, *args):
+        calls.append(1)
+        if len(calls) > 1:
+            raise setting_error(project.source, "variography", "cannot fit a variogram")
+        return original(project, *args)
+
+    monkeypatch.setattr(simulation, "normal_score_model", fit)
+    project_file = make_box_project(tmp_path)
+    out = tmp_path / "sim"
+    assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "simulation.model_draws" in err and "bootstrap draw 1 failed" in err
+    assert "Traceback" not in err and not out.exists()
+
+
 def test_nodes_of_a_domain_placed_by_codes(tmp_path):
     """Oracle: a domain without a solid (the seam of tests/deposits.py, placed from its
     interval codes) simulates only the nodes of its own part of each block.  With nodes at

@@ -79,22 +79,26 @@ def gaussian_at_points(
     return (factor @ rng.standard_normal((n, draws))).T
 
 
+def _match(st: Structure, structures: Sequence[Structure]) -> int | None:
+    """Index of the first of ``structures`` with ``st``'s kind and ranges (relative
+    difference below 1e-6), or None."""
+    for k, r in enumerate(structures):
+        if r.kind == st.kind and np.allclose(r.ranges, st.ranges, rtol=1e-6, atol=0.0):
+            return k
+    return None
+
+
 def _shares(model: VariogramModel, structures: Sequence[Structure]) -> np.ndarray:
     """Nugget and the sill of each of ``structures`` in ``model``, as shares of ``model``'s
-    total sill: (s + 1,).  Each of ``model``'s structures is matched to the one of
-    ``structures`` with its kind and ranges (relative difference below 1e-6); one that
-    ``model`` left out (its sill fitted to zero) has share 0."""
+    total sill: (s + 1,); a structure ``model`` left out (its sill fitted to zero) has
+    share 0."""
     out = np.zeros(len(structures) + 1)
     out[0] = model.nugget
     for st in model.structures:
-        match = [
-            k
-            for k, r in enumerate(structures)
-            if r.kind == st.kind and np.allclose(r.ranges, st.ranges, rtol=1e-6, atol=0.0)
-        ]
-        if not match:
+        k = _match(st, structures)
+        if k is None:
             raise ValueError("a refitted model's structure matches none of the fitted model's")
-        out[match[0] + 1] += st.sill
+        out[k + 1] += st.sill
     return out / model.total_sill
 
 
@@ -103,12 +107,9 @@ def sill_shares(models: Sequence[VariogramModel]) -> tuple[list[Structure], np.n
     and each model's nugget and sills over them as shares of its total sill:
     (len(models), s + 1), a structure a model lacks at 0."""
     structures: list[Structure] = []
-    for m in models:
-        for st in m.structures:
-            try:
-                _shares(VariogramModel(0.0, [st]), structures)
-            except ValueError:
-                structures.append(st)
+    for st in (st for m in models for st in m.structures):
+        if _match(st, structures) is None:
+            structures.append(st)
     return structures, np.array([_shares(m, structures) for m in models])
 
 

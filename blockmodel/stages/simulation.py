@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 
 from blockmodel.config.project import Project
-from blockmodel.errors import setting_error
+from blockmodel.errors import InputError, setting_error
 from blockmodel.simulation.conditional import plan_simulation, simulate_blocks
 from blockmodel.simulation.dispersion import dispersion_sill
 from blockmodel.simulation.model_uncertainty import centred_models, gaussian_at_points
@@ -254,9 +254,18 @@ def _model_draws(
         ) from None
     frame = composites.copy()
     refits = []
-    for y in values:
+    for n, y in enumerate(values):
         frame[grade.grade] = y
-        refits.append(normal_score_model(project, frame, weights, grade)[0])
+        try:
+            refits.append(normal_score_model(project, frame, weights, grade)[0])
+        except InputError as exc:  # a refit that fails is the bootstrap's, not the data's
+            problem = exc.problems[0].problem
+            raise setting_error(
+                project.source,
+                "simulation.model_draws",
+                f"{key}: the fit of bootstrap draw {n + 1} failed ({problem}); set "
+                "simulation.model_draws = 0 to take the model as known",
+            ) from None
     out = centred_models(fitted[0], refits, grade.model.structures)
     if not scaled:
         return out
