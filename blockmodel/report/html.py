@@ -27,6 +27,7 @@ h1{font-size:1.6em} h2{border-bottom:1px solid #ccc;padding-bottom:.2em;margin-t
 table{border-collapse:collapse;font-size:.85em;margin:.5em 0} td,th{border:1px solid #ccc;padding:2px 6px;text-align:right}
 th{background:#f0f0f0} .caution{background:#fff4e5;border:1px solid #e0a050;padding:.8em;margin:1em 0}
 .truth{background:#eef6ff;border:1px solid #7aa7d6;padding:.8em} img{max-width:100%}
+table.text td{text-align:left;vertical-align:top} table.text th{text-align:left}
 """
 
 
@@ -62,10 +63,15 @@ class HtmlReport:
         """A paragraph of text (escaped)."""
         self.parts.append(Part("paragraph", text))
 
-    def table(self, frame: pd.DataFrame, *, digits: int = 3) -> None:
-        """A table, numbers with ``digits`` decimals and thousands separators."""
+    def table(self, frame: pd.DataFrame, *, digits: int = 3, text: bool = False) -> None:
+        """A table, numbers with ``digits`` decimals and thousands separators; ``text``:
+        its cells hold words more than numbers and align left, at the top."""
         rendered = frame.to_html(
-            index=False, float_format=lambda v: f"{v:,.{digits}f}", na_rep="–", border=0
+            index=False,
+            float_format=lambda v: f"{v:,.{digits}f}",
+            na_rep="–",
+            border=0,
+            classes="text" if text else None,
         )
         self.parts.append(Part("table", html=rendered))
 
