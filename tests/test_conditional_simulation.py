@@ -13,6 +13,8 @@ Sources named beside each check:
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -801,6 +803,52 @@ def test_a_plan_like_another_equals_one_made_afresh(rng, monkeypatch):
             np.testing.assert_array_equal(a, b)
         assert like.residual_sd == fresh.residual_sd
         np.testing.assert_array_equal(simulate_blocks(like, 3), simulate_blocks(fresh, 3))
+
+
+def test_plans_sharing_their_parts_equal_plans_made_afresh(rng, monkeypatch):
+    """Oracle: plans handed one store (``shared``) under models that differ in their nugget
+    and sills only equal the plans made afresh, array for array (spectrum, weights,
+    realisations), and a later plan evaluates no correlation at all where the first plan's
+    periodic embedding holds for it; a model that drops the longest structure (other
+    neighbours) evaluates its own correlations and equals its fresh plan too."""
+    from blockmodel.variography.models import Structure
+
+    calls = []
+    correlation = Structure.correlation
+    monkeypatch.setattr(
+        Structure, "correlation", lambda self, h: calls.append(1) or correlation(self, h)
+    )
+    ijk = np.stack(np.meshgrid(*[np.arange(n) for n in (12, 12, 2)], indexing="ij"), -1)
+    ijk = ijk.reshape(-1, 3)
+    data = ijk[rng.choice(len(ijk), 15, replace=False)] + 0.5
+    scores = rng.standard_normal(15)
+    _, transform = gaussian_transform(rng.lognormal(size=50), np.ones(50))
+    short = bm.Structure("spherical", 0.3, (4.0, 3.0, 2.0), bm.Orientation(30.0, 0.0, 0.0))
+    long_ = bm.Structure("spherical", 0.5, (15.0, 9.0, 3.0), bm.Orientation(30.0, 10.0, 0.0))
+    args = (ijk, np.zeros(3), np.ones(3), (1, 1, 1), data, scores)
+    options = {"neighbours": 8, "seed": (7,)}
+    shared: dict = {}
+    first = plan_simulation(
+        *args, bm.VariogramModel(0.2, [short, long_]), transform, **options, shared=shared
+    )
+    for model, evaluated in (
+        # a larger nugget: the first plan's periodic embedding holds (a model that needs a
+        # wider one transforms its covariance at that width, and stores it)
+        (bm.VariogramModel(0.6, [replace(short, sill=0.25), replace(long_, sill=0.15)]), False),
+        (bm.VariogramModel(0.5, [replace(short, sill=0.5)]), True),
+    ):
+        calls.clear()
+        later = plan_simulation(*args, model, transform, **options, like=first, shared=shared)
+        assert bool(calls) == evaluated
+        fresh = plan_simulation(*args, model, transform, **options)
+        for a, b in (
+            (later.simulator.amplitude, fresh.simulator.amplitude),
+            (later.weights.index, fresh.weights.index),
+            (later.weights.weights, fresh.weights.weights),
+            (later.weights.variance, fresh.weights.variance),
+        ):
+            np.testing.assert_array_equal(a, b)
+        np.testing.assert_array_equal(simulate_blocks(later, 3), simulate_blocks(fresh, 3))
 
 
 def test_realisations_follow_draws_of_the_model(tmp_path):

@@ -193,6 +193,7 @@ def plan_simulation(
     variance_uncertainty: bool = False,
     local_mean_window: float = 0.0,
     like: SimulationPlan | None = None,
+    shared: dict | None = None,
 ) -> SimulationPlan:
     """Prepare the conditional simulation of one domain and grade.
 
@@ -242,6 +243,13 @@ def plan_simulation(
         (a draw of the same fit): where both models have the same
         :func:`~blockmodel.simulation.conditioning.neighbour_metric`, its neighbours and
         local mean are taken over instead of found again (the result is the same).
+    shared : dict, optional
+        A store, empty at first, handed to every plan of these blocks, data and settings:
+        each structure's unit-sill spectrum and correlations are kept in it, so that a
+        later plan under a model that differs from an earlier one in its nugget and sills
+        only (a draw of the same fit) evaluates and transforms no covariance (the result
+        is the same).  It holds about ``8 * (nodes * neighbours + data**2 + FFT grid
+        nodes / 2)`` bytes per structure; let it go with the plans.
 
     Returns
     -------
@@ -292,14 +300,26 @@ def plan_simulation(
         and np.array_equal(like.targets, targets)
         and np.array_equal(like.data_nodes, flat[keep])
     )
+    # the correlations at the targets hold for the targets, data and neighbours they were
+    # found for: a first plan stores them, a later one with the same neighbours reads them
+    kriging_parts = None
+    if shared is not None and like is None:
+        kriging_parts = {}
+    elif shared is not None and same and "kriging" in shared:
+        index, parts = shared["kriging"]
+        kriging_parts = parts if index is like.weights.index else None
     kriging = simple_kriging_weights(
         at_data,
         at_targets,
         model,
         neighbours=neighbours,
         index=like.weights.index if same else None,
+        parts=kriging_parts,
     )
-    simulator = SpectralSimulator(shape, tuple(spacing), model, workers=workers)
+    if shared is not None and like is None:
+        shared["kriging"] = (kriging.index, kriging_parts)
+    spectra = None if shared is None else shared.setdefault("spectra", {})
+    simulator = SpectralSimulator(shape, tuple(spacing), model, workers=workers, parts=spectra)
     local = None
     if local_mean_window > 0.0:
         if not model.structures:

@@ -10,6 +10,8 @@ Chilès & Delfiner 2012, §7.3.1).
 
 from __future__ import annotations
 
+import dataclasses
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -69,6 +71,7 @@ def simple_kriging_weights(
     neighbours: int = 24,
     chunk: int = 4096,
     index: np.ndarray | None = None,
+    parts: dict | None = None,
 ) -> KrigingWeights:
     """Simple-kriging weights (known zero mean) of ``data`` at ``nodes``.
 
@@ -86,6 +89,12 @@ def simple_kriging_weights(
     index : (m, k) int64, optional
         The data each node uses, found before for these data and nodes in the same
         :func:`neighbour_metric` (the neighbour search is then skipped); None: searched.
+    parts : dict, optional
+        A store of each structure's correlations at unit sill among the data and between
+        the nodes and their data, for these data, nodes, neighbours, ``chunk`` and
+        ``index``: filled here and read by a later call under a model that differs in
+        its nugget and sills only (it then evaluates no correlation).  The weights are the
+        same with or without it.
 
     Returns
     -------
@@ -108,7 +117,8 @@ def simple_kriging_weights(
     # the data-to-data covariances once, when they fit in memory (n = 5,000: 200 MB)
     table = None
     if len(data) <= TABLE_LIMIT:
-        table = model.covariance((data[:, None, :] - data[None, :, :]).reshape(-1, 3))
+        pairs = functools.cache(lambda: (data[:, None, :] - data[None, :, :]).reshape(-1, 3))
+        table = _covariance(model, parts, "table", pairs)
         table = table.reshape(len(data), len(data))
     for start in range(0, len(nodes), chunk):
         part = nodes[start : start + chunk]
@@ -122,9 +132,37 @@ def simple_kriging_weights(
         else:
             lhs = model.covariance((xyz[:, :, None, :] - xyz[:, None, :, :]).reshape(-1, 3))
             lhs = lhs.reshape(len(part), k, k)
-        rhs = model.covariance((xyz - part[:, None, :]).reshape(-1, 3)).reshape(len(part), k)
+        offsets = functools.cache(
+            lambda xyz=xyz, part=part: (xyz - part[:, None, :]).reshape(-1, 3)
+        )
+        rhs = _covariance(model, parts, ("nodes", start), offsets).reshape(len(part), k)
         w = np.linalg.solve(lhs, rhs[:, :, None])[:, :, 0]
         index[start : start + len(part)] = near
         weights[start : start + len(part)] = w
         variance[start : start + len(part)] = sill - np.einsum("pk,pk->p", w, rhs)
     return KrigingWeights(index, weights, variance, 1.0 - weights.sum(axis=1))
+
+
+def _covariance(model, parts, name, separations) -> np.ndarray:
+    """``model.covariance(separations())``, summed as that method sums it: each structure's
+    sill times its correlation, plus the nugget at zero separation.  ``separations`` is a
+    cached call giving (q, 3) metres; the correlations (unit sill) and the zero separations
+    are read from ``parts`` under ``name`` where stored, else computed (and stored when
+    ``parts`` is a store)."""
+
+    def stored(key, make):
+        if parts is None:
+            return make()
+        if key not in parts:
+            parts[key] = make()
+        return parts[key]
+
+    out = None
+    for st in model.structures:
+        unit = dataclasses.replace(st, sill=1.0)
+        term = st.sill * stored((name, unit), lambda st=st: st.correlation(separations()))
+        out = term if out is None else out + term
+    zero = stored((name, "at zero"), lambda: np.all(separations() == 0.0, axis=1))
+    if out is None:
+        out = np.zeros(len(zero))
+    return out + np.where(zero, model.nugget, 0.0)

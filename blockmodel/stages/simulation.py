@@ -164,10 +164,12 @@ def simulate(
                 (seed, stream),
                 scaled=window == 0.0,
             )
-        plan = plan_of(model=drawn[0] if drawn else model)
+        # the draws differ in their nugget and sills only: their plans share the rest
+        shared: dict | None = {} if len(drawn) > 1 else None
+        plan = plan_of(model=drawn[0] if drawn else model, shared=shared)
         prepared = time.perf_counter()
         clock: dict[str, float] = {}
-        later = [functools.partial(plan_of, model=m, like=plan) for m in drawn[1:]]
+        later = [functools.partial(plan_of, model=m, like=plan, shared=shared) for m in drawn[1:]]
         grades = _run([plan, *later], realisations, threads, key, progress, cluster, clock)
         out[key] = DomainSimulation(
             d.name,

@@ -111,6 +111,20 @@ class Structure:
         """(3, 3) matrix taking a separation vector (metres) to reduced distance units."""
         return np.diag(1.0 / np.asarray(self.ranges)) @ self.orientation.axes()
 
+    def correlation(self, h: np.ndarray) -> np.ndarray:
+        """Correlation of this structure alone (its covariance over its sill).
+
+        Parameters
+        ----------
+        h : (n, 3) float64, separation vectors in metres
+
+        Returns
+        -------
+        (n,) float64, 1 at zero separation
+        """
+        h = np.atleast_2d(np.asarray(h, dtype=np.float64))
+        return correlation(KINDS[self.kind], np.linalg.norm(h @ self.transform().T, axis=1))
+
 
 @dataclass(frozen=True)
 class VariogramModel:
@@ -178,8 +192,7 @@ class VariogramModel:
         h = np.atleast_2d(np.asarray(h, dtype=np.float64))
         out = np.zeros(len(h))
         for s in self.structures:
-            r = np.linalg.norm(h @ s.transform().T, axis=1)
-            out += s.sill * correlation(KINDS[s.kind], r)
+            out += s.sill * s.correlation(h)
         return out
 
     def covariance(self, h: np.ndarray) -> np.ndarray:
