@@ -13,6 +13,7 @@ Sources named beside each check:
 
 from __future__ import annotations
 
+import pickle
 from dataclasses import replace
 
 import numpy as np
@@ -849,6 +850,8 @@ def test_plans_sharing_their_parts_equal_plans_made_afresh(rng, monkeypatch):
         ):
             np.testing.assert_array_equal(a, b)
         np.testing.assert_array_equal(simulate_blocks(later, 3), simulate_blocks(fresh, 3))
+        # the store stays with the caller: a plan sent to a cluster's workers carries none
+        assert len(pickle.dumps(later)) == len(pickle.dumps(fresh))
 
 
 def test_realisations_follow_draws_of_the_model(tmp_path):

@@ -75,9 +75,8 @@ class SpectralSimulator:
         spacing = np.asarray(spacing, dtype=np.float64)
         self.shape = tuple(int(a) for a in shape)
         self.workers = int(workers)
-        self._parts = parts
         if padding is not None:
-            self._embed(tuple(int(p) for p in padding), spacing, model)
+            self._embed(tuple(int(p) for p in padding), spacing, model, parts)
             return
         # padding by the model's reach along each axis, grown until the embedded covariance
         # is positive definite (no negative spectrum to clip; Dietrich & Newsam 1997)
@@ -87,11 +86,12 @@ class SpectralSimulator:
                 tuple(int(np.ceil(factor * reach[a] / spacing[a])) for a in range(3)),
                 spacing,
                 model,
+                parts,
             )
             if self.negative_share <= NEGATIVE_TOLERANCE:
                 break
 
-    def _embed(self, padding, spacing, model) -> None:
+    def _embed(self, padding, spacing, model, parts) -> None:
         from scipy import fft
 
         # even lengths keep the real transforms' sizes simple; the padding only grows
@@ -101,13 +101,13 @@ class SpectralSimulator:
         spectrum = np.full((*self.padded[:2], self.padded[2] // 2 + 1), model.nugget)
         for st in model.structures:
             key = (self.padded, tuple(spacing), dataclasses.replace(st, sill=1.0))
-            unit = None if self._parts is None else self._parts.get(key)
+            unit = None if parts is None else parts.get(key)
             if unit is None:
                 grid = _periodic(self.padded, spacing, st.correlation)
                 # a copy: the real part alone, not a view holding the complex transform
                 unit = np.ascontiguousarray(fft.rfftn(grid, workers=self.workers).real)
-                if self._parts is not None:
-                    self._parts[key] = unit
+                if parts is not None:
+                    parts[key] = unit
             spectrum += st.sill * unit
         # share of the spectrum lost where it is negative and clipped (0 when exact)
         self.negative_share = float(-spectrum[spectrum < 0].sum() / np.abs(spectrum).sum())
