@@ -39,6 +39,12 @@ def _progress(message: str) -> None:
         print(f"\r{message.rstrip()}\033[K", end=end, file=sys.stderr, flush=True)
 
 
+def _timings(timings: dict[str, float]) -> str:
+    """The seconds of each step as a sentence for a page."""
+    steps = "; ".join(f"{name} {seconds:,.1f} s" for name, seconds in timings.items())
+    return f"Time per step: {steps}."
+
+
 def step_reporter() -> Steps:
     """Steps announced, warnings and progress printed on the terminal (stderr)."""
     return Steps(_say, lambda message: _say(f"  warning: {message}"), _progress)
@@ -226,7 +232,7 @@ def run(
                 from blockmodel.report.simulation_section import write_simulation_files
 
                 write_simulation_files(project, results.simulation, staged.path)
-        report.paragraph(f"Timings (s): {steps.timings}")
+        report.paragraph(_timings(steps.timings))
         report.write(staged.path / "report.html")
         staged.commit(
             _manifest(
@@ -281,7 +287,7 @@ def simulate(
         with steps("figures and files"):
             render_simulation(project, sim, staged.path, report, kriged=results.tables)
             write_simulation_files(project, sim, staged.path)
-        report.paragraph(f"Timings (s): {steps.timings}")
+        report.paragraph(_timings(steps.timings))
         report.write(staged.path / "simulation.html")
         staged.commit(
             _manifest(

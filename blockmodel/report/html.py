@@ -64,11 +64,20 @@ class HtmlReport:
         self.parts.append(Part("paragraph", text))
 
     def table(self, frame: pd.DataFrame, *, digits: int = 3, text: bool = False) -> None:
-        """A table, numbers with ``digits`` decimals and thousands separators; ``text``:
-        its cells hold words more than numbers and align left, at the top."""
+        """A table, numbers with thousands separators and ``digits`` decimals (none for
+        whole numbers and for real numbers of 1,000 or more that are whole, e.g. metal
+        rounded to 3 significant figures); ``text``: its cells hold words more than numbers and align left, at the
+        top."""
+
+        def number(v: float) -> str:
+            whole = abs(v) >= 1000 and v == round(v)
+            return f"{v:,.0f}" if whole else f"{v:,.{digits}f}"
+
+        counts = [c for c in frame.columns if pd.api.types.is_integer_dtype(frame[c])]
         rendered = frame.to_html(
             index=False,
-            float_format=lambda v: f"{v:,.{digits}f}",
+            formatters={c: "{:,}".format for c in counts},
+            float_format=number,
             na_rep="–",
             border=0,
             classes="text" if text else None,
