@@ -65,9 +65,9 @@ class HtmlReport:
 
     def table(self, frame: pd.DataFrame, *, digits: int = 3, text: bool = False) -> None:
         """A table, numbers with thousands separators and ``digits`` decimals (none for
-        whole numbers and for real numbers of 1,000 or more that are whole, e.g. metal
-        rounded to 3 significant figures); ``text``: its cells hold words more than numbers and align left, at the
-        top."""
+        whole numbers, nor for real numbers of 1,000 or more that are whole, e.g. metal
+        rounded to 3 significant figures); ``text``: its cells hold words more than
+        numbers and align left, at the top."""
 
         def number(v: float) -> str:
             whole = abs(v) >= 1000 and v == round(v)

@@ -118,8 +118,8 @@ def simple_kriging_weights(
     table = None
     if len(data) <= TABLE_LIMIT:
         pairs = functools.cache(lambda: (data[:, None, :] - data[None, :, :]).reshape(-1, 3))
-        table = _covariance(model, parts, "table", pairs)
-        table = table.reshape(len(data), len(data))
+        table = _covariance(model, parts, "table", pairs).reshape(len(data), len(data))
+        del pairs  # the separations (n = 5,000: 600 MB), not needed beyond the table
     for start in range(0, len(nodes), chunk):
         part = nodes[start : start + chunk]
         if tree is None:
