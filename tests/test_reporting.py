@@ -212,3 +212,22 @@ def test_html_page_from_its_template_escapes_text(tmp_path):
     assert "Project &lt;b&gt;" in page and "1,234.500" in page and "<table" in page
     assert '<div class="truth">' in page and "1 warning(s)" in page
     assert page.count("Caution.") == 2 and CAUTIONS.split(".")[0] in page
+
+
+def test_html_tables_show_numbers_as_a_reader_expects():
+    """Decimals where they carry something: metal rounded to 3 significant figures shows
+    no '.000', counts get thousands separators, a missing value a dash, and a text table
+    is marked to align left."""
+    from blockmodel.report.html import HtmlReport
+
+    r = HtmlReport("numbers")
+    frame = pd.DataFrame(
+        {"metal": [711000.0, 1234.567, 12.5, np.nan], "blocks": [6948, 1, 20, 300]}
+    )
+    r.table(frame)
+    r.table(pd.DataFrame({"setting": ["source"], "ore.cu": ["fitted"]}), text=True)
+    html = r.parts[0].html
+    for shown in ("711,000<", "1,234.567<", "12.500<", "–<", "6,948<", "300<"):
+        assert shown in html, shown
+    assert "711,000.000" not in html
+    assert 'class="dataframe text"' in r.parts[1].html
