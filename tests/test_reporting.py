@@ -216,8 +216,8 @@ def test_html_page_from_its_template_escapes_text(tmp_path):
 
 def test_html_tables_show_numbers_as_a_reader_expects():
     """Decimals where they carry something: metal rounded to 3 significant figures shows
-    no '.000', counts get thousands separators, a missing value a dash, and a text table
-    is marked to align left."""
+    no '.000', counts get thousands separators, a missing value a dash; columns of words
+    align left, columns of numbers right."""
     from blockmodel.report.html import HtmlReport
 
     r = HtmlReport("numbers")
@@ -225,9 +225,12 @@ def test_html_tables_show_numbers_as_a_reader_expects():
         {"metal": [711000.0, 1234.567, 12.5, np.nan], "blocks": [6948, 1, 20, 300]}
     )
     r.table(frame)
-    r.table(pd.DataFrame({"setting": ["source"], "ore.cu": ["fitted"]}), text=True)
+    r.table(pd.DataFrame({"setting": ["source", "nodes"], "ore.cu": ["fitted", "1,024"]}))
+    r.table(pd.DataFrame({"tonnes (t)": ["2,150,000", ""], "difference": ["+8.8%", "–"]}))
     html = r.parts[0].html
-    for shown in ("711,000<", "1,234.567<", "12.500<", "–<", "6,948<", "300<"):
+    for shown in (">711,000<", ">1,234.567<", ">12.500<", ">–<", ">6,948<", ">300<"):
         assert shown in html, shown
-    assert "711,000.000" not in html
-    assert 'class="dataframe text"' in r.parts[1].html
+    assert "711,000.000" not in html and 'class="words"' not in html
+    words = r.parts[1].html
+    assert words.count('<td class="words">') == 4 and 'class="number"' not in words
+    assert 'class="words"' not in r.parts[2].html  # numbers written out stay right

@@ -7,6 +7,7 @@ import dataclasses
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 __all__ = ["CAUTIONS", "HtmlReport", "Part"]
@@ -27,7 +28,7 @@ h1{font-size:1.6em} h2{border-bottom:1px solid #ccc;padding-bottom:.2em;margin-t
 table{border-collapse:collapse;font-size:.85em;margin:.5em 0} td,th{border:1px solid #ccc;padding:2px 6px;text-align:right}
 th{background:#f0f0f0} .caution{background:#fff4e5;border:1px solid #e0a050;padding:.8em;margin:1em 0}
 .truth{background:#eef6ff;border:1px solid #7aa7d6;padding:.8em} img{max-width:100%}
-table.text td{text-align:left;vertical-align:top} table.text th{text-align:left}
+td{vertical-align:top} .words{text-align:left}
 """
 
 
@@ -63,25 +64,44 @@ class HtmlReport:
         """A paragraph of text (escaped)."""
         self.parts.append(Part("paragraph", text))
 
-    def table(self, frame: pd.DataFrame, *, digits: int = 3, text: bool = False) -> None:
-        """A table, numbers with thousands separators and ``digits`` decimals (none for
-        whole numbers, nor for real numbers of 1,000 or more that are whole, e.g. metal
-        rounded to 3 significant figures); ``text``: its cells hold words more than
-        numbers and align left, at the top."""
+    def table(self, frame: pd.DataFrame, *, digits: int = 3) -> None:
+        """A table: numbers aligned right, with thousands separators and ``digits``
+        decimals (none for whole numbers, nor for real numbers of 1,000 or more that are
+        whole, e.g. metal rounded to 3 significant figures); a column holding words aligned
+        left (numbers given as text, e.g. rounded for a statement, stay right); a missing
+        value shown as a dash (all text escaped)."""
+        import markupsafe
 
-        def number(v: float) -> str:
-            whole = abs(v) >= 1000 and v == round(v)
-            return f"{v:,.0f}" if whole else f"{v:,.{digits}f}"
+        def shown(v) -> str:
+            if isinstance(v, str):
+                return v
+            if v is None or (np.isscalar(v) and pd.isna(v)):
+                return "–"
+            if isinstance(v, (bool, np.bool_)):
+                return str(v)
+            if isinstance(v, (int, np.integer)):
+                return f"{v:,}"
+            if isinstance(v, (float, np.floating)):
+                whole = abs(v) >= 1000 and v == round(v)
+                return f"{v:,.0f}" if whole else f"{v:,.{digits}f}"
+            return str(v)
 
-        counts = [c for c in frame.columns if pd.api.types.is_integer_dtype(frame[c])]
-        rendered = frame.to_html(
-            index=False,
-            formatters={c: "{:,}".format for c in counts},
-            float_format=number,
-            na_rep="–",
-            border=0,
-            classes="text" if text else None,
+        words = [any(_is_words(v) for v in frame[c]) for c in frame.columns]
+        kind = ['class="words"' if w else 'class="number"' for w in words]
+        head = "".join(
+            f"<th {k}>{markupsafe.escape(str(c))}</th>"
+            for c, k in zip(frame.columns, kind, strict=True)
         )
+        rows = "".join(
+            "<tr>"
+            + "".join(
+                f"<td {k}>{markupsafe.escape(shown(v))}</td>"
+                for v, k in zip(row, kind, strict=True)
+            )
+            + "</tr>"
+            for row in frame.itertuples(index=False, name=None)
+        )
+        rendered = f"<table><thead><tr>{head}</tr></thead><tbody>{rows}</tbody></table>"
         self.parts.append(Part("table", html=rendered))
 
     def image(self, path: Path, caption: str = "") -> None:
@@ -122,3 +142,18 @@ class HtmlReport:
     def write(self, path: Path) -> None:
         """Write the page to ``path``."""
         Path(path).write_text(self.render(), encoding="utf-8")
+
+
+def _is_words(value) -> bool:
+    """Whether a table cell holds words: text that is not a number written out (with
+    thousands separators, a sign or a per cent), a blank or a dash."""
+    if not isinstance(value, str):
+        return False
+    text = value.strip().replace(",", "").removesuffix("%")
+    if text in ("", "–", "-"):
+        return False
+    try:
+        float(text)
+    except ValueError:
+        return True
+    return False

@@ -243,7 +243,7 @@ def render_simulation(
     # one column per domain and grade: the settings and sizes read down, not across
     settings = pd.DataFrame(rows).set_index("domain.grade").T.map(_cell)
     settings.columns.name = None
-    report.table(settings.rename_axis("domain.grade").reset_index(), text=True)
+    report.table(settings.rename_axis("domain.grade").reset_index())
     _reproduction(sim, report)
     table = simulation_grade_tonnage(project, sim)
     for g in project.grades:
