@@ -14,7 +14,7 @@ from blockmodel.config.project import Project
 from blockmodel.report.figures import CLASS_COLOURS, pyplot, save_png
 from blockmodel.report.files import safe_stem, write_table
 from blockmodel.report.html import HtmlReport
-from blockmodel.report.tables import round_significant
+from blockmodel.report.tables import round_significant, significant_text
 from blockmodel.simulation.conditional import FEWEST_DOF
 from blockmodel.simulation.model_uncertainty import sill_shares
 from blockmodel.stages.simulation import REPRODUCTION_TOLERANCE, Simulation
@@ -305,14 +305,14 @@ def _volumes(project: Project, sim: Simulation, report: HtmlReport) -> None:
         )
         out = rows[["volume", "blocks"]].copy()
         for q in ("p10", "p50", "p90"):
-            out[f"Mt {q.upper()}"] = round_significant(rows[f"tonnes_{q}"] / 1e6, 3)
-        out["Mt kriged"] = round_significant(rows["kriged_tonnes"] / 1e6, 3)
+            out[f"Mt {q.upper()}"] = significant_text(rows[f"tonnes_{q}"] / 1e6)
+        out["Mt kriged"] = significant_text(rows["kriged_tonnes"] / 1e6)
         for q in ("p10", "p50", "p90"):
             out[f"grade {q.upper()} ({unit})"] = rows[f"grade_{q}"].round(3)
         out[f"grade kriged ({unit})"] = rows["kriged_grade"].round(3)
         for q in ("p10", "p50", "p90"):
-            out[f"metal {q.upper()}"] = round_significant(rows[f"metal_{q}"], 3)
-        out["metal kriged"] = round_significant(rows["kriged_metal"], 3)
+            out[f"metal {q.upper()}"] = significant_text(rows[f"metal_{q}"])
+        out["metal kriged"] = significant_text(rows["kriged_metal"])
         out["metal CV"] = rows["metal_cv"].round(3)
         report.table(out.reset_index(drop=True))
 
@@ -370,11 +370,11 @@ def _shown(rows: pd.DataFrame, unit: str, metal_unit: str) -> pd.DataFrame:
     """Band rows as a reader sees them: tonnes and metal to 3 significant figures."""
     out = rows[["domain", "class", "cutoff"]].copy()
     for q in ("p10", "p50", "p90"):
-        out[f"Mt {q.upper()}"] = round_significant(rows[f"tonnes_{q}"] / 1e6, 3)
+        out[f"Mt {q.upper()}"] = significant_text(rows[f"tonnes_{q}"] / 1e6)
     for q in ("p10", "p50", "p90"):
         out[f"grade {q.upper()} ({unit})"] = rows[f"grade_{q}"].round(3)
     for q in ("p10", "p50", "p90"):
-        out[f"metal {q.upper()} ({metal_unit})"] = round_significant(rows[f"metal_{q}"], 3)
+        out[f"metal {q.upper()} ({metal_unit})"] = significant_text(rows[f"metal_{q}"])
     out["metal CV"] = rows["metal_cv"].round(3)
     return out.reset_index(drop=True)
 

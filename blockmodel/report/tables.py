@@ -19,6 +19,7 @@ __all__ = [
     "metal_units",
     "round_significant",
     "rounded_statement",
+    "significant_text",
     "statement",
 ]
 
@@ -200,12 +201,19 @@ def rounded_statement(frame: pd.DataFrame) -> pd.DataFrame:
     and written with thousands separators and no false decimals."""
     out = frame[["domain", "class"]].copy()
     out["cut-off"] = ["" if not np.isfinite(c) else f"{c:g}" for c in frame["cutoff"]]
-    out["tonnes"] = [_plain(v) for v in round_significant(frame["tonnes"], finest=1000.0)]
-    out["grade"] = [_plain(v) for v in round_significant(frame["grade"])]
+    out["tonnes"] = significant_text(frame["tonnes"], finest=1000.0)
+    out["grade"] = significant_text(frame["grade"])
     for c in frame.columns:
         if c.startswith("metal"):
-            out[c] = [_plain(v) for v in round_significant(frame[c])]
+            out[c] = significant_text(frame[c])
     return out
+
+
+def significant_text(values, figures: int = 3, *, finest: float = 0.0) -> list[str]:
+    """``values`` rounded as :func:`round_significant` rounds them, written with thousands
+    separators and only the decimals the rounding leaves (e.g. 17.2, 711,000, 0.002; a
+    missing value as a dash)."""
+    return [_plain(v) for v in round_significant(values, figures, finest=finest)]
 
 
 def _plain(v: float) -> str:
@@ -230,13 +238,7 @@ def grade_tonnage_pivot(rows: pd.DataFrame, grade_unit: str, metal_unit: str) ->
     for cls in classes:
         part = rows[rows["class"] == cls]
         label = "all classes" if cls == "all" else cls
-        out[f"{label}: tonnes (t)"] = [
-            _plain(v) for v in round_significant(part["tonnes"], finest=1000.0)
-        ]
-        out[f"{label}: grade ({grade_unit})"] = [
-            _plain(v) for v in round_significant(part["grade"])
-        ]
-        out[f"{label}: metal ({metal_unit})"] = [
-            _plain(v) for v in round_significant(part["metal"])
-        ]
+        out[f"{label}: tonnes (t)"] = significant_text(part["tonnes"], finest=1000.0)
+        out[f"{label}: grade ({grade_unit})"] = significant_text(part["grade"])
+        out[f"{label}: metal ({metal_unit})"] = significant_text(part["metal"])
     return out
