@@ -60,13 +60,6 @@ def _dof(nu: float):
     return round(nu)
 
 
-def _cell(value) -> str:
-    """A table cell as text: whole numbers with thousands separators."""
-    if isinstance(value, (int, np.integer)) and not isinstance(value, bool):
-        return f"{value:,}"
-    return str(value)
-
-
 def _draws(d) -> str:
     """The draws of a domain's normal-score model as the page lists them: their number and
     the range of the nugget and of each structure's sill, as shares of the total sill."""
@@ -241,7 +234,7 @@ def render_simulation(
             }
         )
     # one column per domain and grade: the settings and sizes read down, not across
-    settings = pd.DataFrame(rows).set_index("domain.grade").T.map(_cell)
+    settings = pd.DataFrame(rows).set_index("domain.grade").T
     settings.columns.name = None
     report.table(settings.rename_axis("domain.grade").reset_index())
     _reproduction(sim, report)
