@@ -144,11 +144,10 @@ def simple_kriging_weights(
 
 
 def _covariance(model, parts, name, separations) -> np.ndarray:
-    """``model.covariance(separations())``, summed as that method sums it: each structure's
-    sill times its correlation, plus the nugget at zero separation.  ``separations`` is a
-    cached call giving (q, 3) metres; the correlations (unit sill) and the zero separations
-    are read from ``parts`` under ``name`` where stored, else computed (and stored when
-    ``parts`` is a store)."""
+    """``model.covariance(separations())`` by :meth:`VariogramModel.covariance_of`, its
+    own sum.  ``separations`` is a cached call giving (q, 3) metres; the correlations (unit
+    sill) and the zero separations are read from ``parts`` under ``name`` where stored,
+    else computed (and stored when ``parts`` is a store)."""
 
     def stored(key, make):
         if parts is None:
@@ -157,12 +156,11 @@ def _covariance(model, parts, name, separations) -> np.ndarray:
             parts[key] = make()
         return parts[key]
 
-    out = None
-    for st in model.structures:
-        unit = dataclasses.replace(st, sill=1.0)
-        term = st.sill * stored((name, unit), lambda st=st: st.correlation(separations()))
-        out = term if out is None else out + term
+    correlations = (
+        stored(
+            (name, dataclasses.replace(st, sill=1.0)), lambda st=st: st.correlation(separations())
+        )
+        for st in model.structures
+    )
     zero = stored((name, "at zero"), lambda: np.all(separations() == 0.0, axis=1))
-    if out is None:
-        out = np.zeros(len(zero))
-    return out + np.where(zero, model.nugget, 0.0)
+    return model.covariance_of(correlations, zero)

@@ -10,7 +10,7 @@ reduced distance ``r = |diag(1/a) R h|``; covariance and variogram both derive f
 from __future__ import annotations
 
 import warnings
-from collections.abc import Sequence
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -190,10 +190,9 @@ class VariogramModel:
         (n,) float64
         """
         h = np.atleast_2d(np.asarray(h, dtype=np.float64))
-        out = np.zeros(len(h))
-        for s in self.structures:
-            out += s.sill * s.correlation(h)
-        return out
+        return self.covariance_of(
+            (s.correlation(h) for s in self.structures), np.zeros(len(h), dtype=bool)
+        )
 
     def covariance(self, h: np.ndarray) -> np.ndarray:
         """Covariance ``C(h) = total sill - gamma(h)``; ``C(0)`` includes the nugget.
@@ -207,8 +206,33 @@ class VariogramModel:
         (n,) float64
         """
         h = np.atleast_2d(np.asarray(h, dtype=np.float64))
-        at_zero = np.all(h == 0.0, axis=1)
-        return self.structured_covariance(h) + np.where(at_zero, self.nugget, 0.0)
+        return self.covariance_of(
+            (s.correlation(h) for s in self.structures), np.all(h == 0.0, axis=1)
+        )
+
+    def covariance_of(self, correlations: Iterable[np.ndarray], at_zero: np.ndarray) -> np.ndarray:
+        """The covariance at some separations from each structure's correlation there:
+        each sill times its correlation, summed in the structures' order, plus the nugget
+        where the separation is zero.  Every covariance of the model is summed here, so a
+        caller that holds the correlations (of models differing only in nugget and sills)
+        gets :meth:`covariance`'s numbers bit for bit.
+
+        Parameters
+        ----------
+        correlations : iterable of (n,) float64
+            One per structure, in order: :meth:`Structure.correlation` at the separations
+            (read one at a time).
+        at_zero : (n,) bool
+            Where the separation is zero.
+
+        Returns
+        -------
+        (n,) float64
+        """
+        out = np.zeros(len(at_zero))
+        for s, c in zip(self.structures, correlations, strict=True):
+            out += s.sill * c
+        return out + np.where(at_zero, self.nugget, 0.0)
 
     def variogram(self, h: np.ndarray) -> np.ndarray:
         """Semivariogram ``gamma(h)``, 0 at h = 0.
