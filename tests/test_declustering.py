@@ -164,3 +164,69 @@ def test_one_hole_domain_keeps_equal_weights_and_says_so(small_project):
     assert decl.by_domain["waste"].cell is not None  # two holes: declustered
     (message,) = decl.warnings()
     assert "'ore'" in message and "one hole" in message and "declustering.keep" in message
+
+
+def test_a_domain_with_its_own_declustering(tmp_path):
+    """A domain's own ``[domains.declustering]`` keys replace the project's for that domain
+    alone; the keys it leaves out are the project's.  Oracle: each domain's weights equal
+    those of the project declustered throughout with that domain's settings."""
+    import dataclasses
+    import shutil
+
+    from blockmodel import stages
+    from blockmodel.config.project import load_project
+
+    shutil.copytree(DEMO, tmp_path / "demo")
+    path = tmp_path / "demo" / "project.toml"
+    text = path.read_text()
+    project = load_project(path)
+    assert project.domain("lode").declustering.keep == "lowest_mean"  # the demo's own
+    assert project.domain("halo").declustering is None
+    own = '\n[domains.declustering]\nkeep = "given_size"\ngiven_size = 30.0\n'
+    assert text.count("density = 2.70\n") == 1  # the halo's
+    text = text.replace("density = 2.70\n", "density = 2.70\n" + own)
+    text = text.replace("grid_shifts = 8", "grid_shifts = 3")
+    path.write_text(text)
+    project = load_project(path)
+    lode = project.declustering_for("lode")
+    halo = project.declustering_for("halo")
+    assert (lode.keep, lode.grid_shifts) == ("lowest_mean", 3)  # shifts: the project's
+    assert (halo.keep, halo.given_size, halo.grid_shifts) == ("given_size", 30.0, 3)
+    assert project.declustering.keep == "hole_spacing"
+    comps = stages.load_and_composite(project).table
+    both = stages.decluster(project, comps)
+    assert both.by_domain["halo"].cell.chosen_size == 30.0
+    for name, settings in (("lode", lode), ("halo", halo)):
+        alone = dataclasses.replace(
+            project,
+            declustering=settings,
+            domains=tuple(dataclasses.replace(d, declustering=None) for d in project.domains),
+        )
+        expected = stages.decluster(alone, comps).by_domain[name]
+        np.testing.assert_array_equal(both.by_domain[name].weights, expected.weights)
+
+
+def test_a_domains_declustering_key_is_checked_and_named(tmp_path, capsys):
+    """A misspelt or out-of-range key of a domain's own declustering stops the run with the
+    key named (exit status 2, no traceback)."""
+    import shutil
+
+    from blockmodel.app.cli import main
+
+    shutil.copytree(DEMO, tmp_path / "demo")
+    path = tmp_path / "demo" / "project.toml"
+    original = path.read_text()
+    for old, new, key in (
+        ('keep = "lowest_mean"', 'kep = "lowest_mean"', "domains[0].declustering.kep"),
+        ('keep = "lowest_mean"', 'keep = "lowest"', "domains[0].declustering.keep"),
+        (
+            'keep = "lowest_mean"',
+            "cell_sizes = { smallest = 50.0, largest = 20.0 }",
+            "domains[0].declustering.cell_sizes",
+        ),
+    ):
+        assert old in original
+        path.write_text(original.replace(old, new, 1))
+        assert main(["check", str(path)]) == 2
+        err = capsys.readouterr().err
+        assert key in err and "Traceback" not in err, err

@@ -137,7 +137,8 @@ def run_variography(project: Project, out: Path | None = None, *, replace: bool 
     with OutputFolder(out, input_files(project), replace=replace) as staged:
         comps = load_and_composite(project)
         domains = None
-        if project.declustering.method == "nearest":  # weights come from the blocks
+        # nearest-neighbour weights come from the blocks
+        if any(project.declustering_for(d.name).method == "nearest" for d in project.domains):
             domains = build_domain_model(project, comps.table)
         decl = decluster(project, comps.table, domains)
         vario = variography(project, comps.table, decl.weights)

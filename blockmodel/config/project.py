@@ -75,6 +75,10 @@ class Project:
         """The search passes of a domain: its own, or the project's."""
         return self.domain(domain).search or self.search
 
+    def declustering_for(self, domain: str) -> Declustering:
+        """The declustering of a domain: its own, or the project's."""
+        return self.domain(domain).declustering or self.declustering
+
     def statement_cutoff(self, domain: str, cutoffs=None) -> float:
         """The statement's reporting cut-off of ``domain``: its own, or the lowest of the
         report cut-offs (``cutoffs``, default the project's) above zero (zero when none)."""
@@ -246,13 +250,24 @@ def _check_values(p: Project, r: Reader) -> None:
                 f"each side of 'high' must exceed 'low'; got low {list(v.low)}, "
                 f"high {list(v.high)}",
             )
-    sweep = p.declustering.cell_sizes
-    if not sweep.smallest < sweep.largest:
-        r.fail(
-            "declustering.cell_sizes",
-            "'declustering.cell_sizes' needs smallest < largest; "
-            f"got smallest {sweep.smallest:g}, largest {sweep.largest:g}",
-        )
+    own = [(f"domains[{n}].", d.declustering) for n, d in enumerate(p.domains) if d.declustering]
+    for where, dc in [("", p.declustering), *own]:
+        sweep = dc.cell_sizes
+        if not sweep.smallest < sweep.largest:
+            r.fail(
+                f"{where}declustering.cell_sizes",
+                f"'{where}declustering.cell_sizes' needs smallest < largest; "
+                f"got smallest {sweep.smallest:g}, largest {sweep.largest:g}",
+            )
+
+
+def _own_declustering(project: Project, domain: Domain, raw: dict) -> Declustering | None:
+    """A domain's own declustering: the project's with the keys the domain's table gives
+    (``raw``, as read) replaced; None when it gives none."""
+    if domain.declustering is None:
+        return None
+    given = {k: getattr(domain.declustering, k) for k in raw["declustering"]}
+    return dataclasses.replace(project.declustering, **given)
 
 
 def _flat_models(models):
@@ -313,7 +328,12 @@ def load_project(path: str | Path) -> Project:
     project = dataclasses.replace(
         project,
         source=path,
-        domains=tuple(dataclasses.replace(d, code=d.code or d.name) for d in project.domains),
+        domains=tuple(
+            dataclasses.replace(
+                d, code=d.code or d.name, declustering=_own_declustering(project, d, given)
+            )
+            for d, given in zip(project.domains, raw.get("domains", []), strict=True)
+        ),
     )
     _check_values(project, r)
     missing = [

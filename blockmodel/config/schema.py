@@ -33,6 +33,9 @@ class Rule:
         Names of a list's entries, quoted in messages (e.g. azimuth, plunge, tilt).
     entry : str
         What the keys of a table of tables stand for, in the table of keys.
+    keys_of : str
+        For a table that takes the keys of another section (those given replacing its
+        values), that section's name: the table of keys lists them there only.
     """
 
     doc: str
@@ -42,6 +45,7 @@ class Rule:
     strict_low: bool = False
     parts: tuple[str, ...] | None = None
     entry: str = "NAME"
+    keys_of: str = ""
 
     def problem(self, value: Any) -> str | None:
         """Why ``value`` is not allowed, or None (a table's or list's entries each)."""
@@ -118,10 +122,11 @@ def setting(
     strict_low: bool = False,
     parts: tuple[str, ...] | None = None,
     entry: str = "NAME",
+    keys_of: str = "",
     factory: Any = MISSING,
 ) -> Any:
     """A dataclass field declaring one setting (see :class:`Rule`)."""
-    rule = Rule(doc, choices, low, high, strict_low, parts, entry)
+    rule = Rule(doc, choices, low, high, strict_low, parts, entry, keys_of)
     return dataclasses.field(default=default, default_factory=factory, metadata={"rule": rule})
 
 
@@ -180,6 +185,9 @@ def settings_rows(cls, prefix: str = "") -> list[tuple[str, str, str, str, str]]
         key = f"{prefix}{f.name}"
         tp = hints[f.name]
         nested = _nested(tp)
+        if rule.keys_of:
+            rows.append((key, _type_name(tp), "none", f"keys of [{rule.keys_of}]", rule.doc))
+            continue
         if nested is not None:
             rows.append((key, _type_name(tp), "", "", rule.doc))
             origin = typing.get_origin(tp)

@@ -86,6 +86,13 @@ class Domain:
     search: tuple[SearchPass, ...] = setting(
         (), doc="this domain's own search passes; none: the project's"
     )
+    declustering: Declustering | None = setting(
+        None,
+        doc="this domain's own declustering (e.g. infill clustered in its high grades only): "
+        "the keys given replace the project's [declustering] values, the others are the "
+        "project's; none: the project's",
+        keys_of="declustering",
+    )
 
 
 @dataclass(frozen=True)

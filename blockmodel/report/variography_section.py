@@ -34,8 +34,33 @@ def render_declustering(
                 project.data.grades[primary],
             )
     table = declustering.table(project.grades)
-    s = project.declustering
     report.heading("Declustering")
+    if not any(d.declustering is not None for d in project.domains):
+        text = _settings_text(project.declustering)
+        report.paragraph(f"{text[:1].upper()}{text[1:]}.")
+    else:
+        report.paragraph(
+            "Each domain's own settings, where it has them, or the project's: "
+            + "; ".join(
+                f"{d.name}: {_settings_text(project.declustering_for(d.name))}"
+                for d in project.domains
+                if d.name in declustering.by_domain
+            )
+            + "."
+        )
+    report.table(table)
+    for name, d in declustering.by_domain.items():
+        if d.cell is not None:
+            p = folder / f"declustering_{safe_stem(name)}.png"
+            report.image(p, f"Declustered mean against cell size, {name}")
+
+
+def _settings_text(s) -> str:
+    """One declustering's settings in words."""
+    if s.method == "nearest":
+        return "weights by the share of the domain's blocks nearest each composite"
+    if s.method == "none":
+        return "none (equal weights)"
     sweep = s.cell_sizes
     kept = {
         "hole_spacing": "the cell of the holes' spacing where sparsest (per domain, the "
@@ -47,16 +72,11 @@ def render_declustering(
         "grades)",
         "given_size": f"the given size, {s.given_size:g} m",
     }[s.keep]
-    report.paragraph(
-        f"Method: {s.method}; {sweep.count} cell sizes swept from {sweep.smallest:g} to "
+    return (
+        f"cell declustering, {sweep.count} cell sizes swept from {sweep.smallest:g} to "
         f"{sweep.largest:g} m, cell shape {s.cell_shape}, {s.grid_shifts} shifted grids per "
-        f"size; kept: {kept}."
+        f"size; kept: {kept}"
     )
-    report.table(table)
-    for name, d in declustering.by_domain.items():
-        if d.cell is not None:
-            p = folder / f"declustering_{safe_stem(name)}.png"
-            report.image(p, f"Declustered mean against cell size, {name}")
 
 
 def render_variography(

@@ -56,8 +56,8 @@ class Declustering:
     def warnings(self) -> list[str]:
         """Domains whose composites could not be declustered by the rule asked for."""
         return [
-            f"declustering of domain '{name}': {d.unweighted}; set declustering.keep to "
-            "given_size to decluster it"
+            f"declustering of domain '{name}': {d.unweighted}; set its declustering.keep "
+            "to given_size to decluster it"
             for name, d in self.by_domain.items()
             if d.unweighted
         ]
@@ -89,7 +89,7 @@ class Declustering:
 def decluster(
     project: Project, composites: pd.DataFrame, domains: DomainModel | None = None
 ) -> Declustering:
-    """Declustering weights per domain by the project's method.
+    """Declustering weights per domain by its method (its own or the project's).
 
     Parameters
     ----------
@@ -99,16 +99,16 @@ def decluster(
     domains : DomainModel, optional
         Needed by nearest-neighbour declustering (weights from the blocks).
     """
-    s = project.declustering
     weights = np.ones(len(composites))
     out = {}
-    sweep = s.cell_sizes
-    sizes = np.linspace(sweep.smallest, sweep.largest, sweep.count)
     primary = project.grades[0]
     for d_index, d in enumerate(project.domains):
         rows = np.flatnonzero((composites["domain"] == d.name).to_numpy())
         if len(rows) == 0:
             continue
+        s = project.declustering_for(d.name)
+        sweep = s.cell_sizes
+        sizes = np.linspace(sweep.smallest, sweep.largest, sweep.count)
         part = composites.iloc[rows]
         pts = part[["x", "y", "z"]].to_numpy(float)
         vals = part[primary].to_numpy(float)
@@ -138,9 +138,10 @@ def decluster(
                 raise ValueError("nearest-neighbour declustering needs the domain model")
             flat = np.flatnonzero(domains.proportions[:, d_index] > 0)
             if len(flat) == 0:
+                own = f"domains[{d_index}]." if d.declustering is not None else ""
                 raise setting_error(
                     project.source,
-                    "declustering.method",
+                    f"{own}declustering.method",
                     f"nearest-neighbour declustering of domain '{d.name}' needs blocks of the "
                     "domain in the grid, and there are none",
                 )
