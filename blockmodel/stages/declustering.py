@@ -63,7 +63,7 @@ class Declustering:
         ]
 
     def table(self, grades) -> pd.DataFrame:
-        """One row per domain and grade: counts, means, variance, quantiles, cell size."""
+        """One row per domain and grade: count, cell size kept, means, variance, quantiles."""
         rows = []
         for name, d in self.by_domain.items():
             for g in grades:
@@ -73,6 +73,7 @@ class Declustering:
                         "domain": name,
                         "grade": g,
                         "composites": d.composites,
+                        "cell_size": d.cell.chosen_size if d.cell else float("nan"),
                         "naive_mean": d.naive_mean[g],
                         "declustered_mean": d.declustered_mean[g],
                         "declustered_variance": d.declustered_variance.get(g, float("nan")),
@@ -80,7 +81,6 @@ class Declustering:
                             f"declustered_p{round(100 * q)}": v
                             for q, v in zip(QUANTILES, quantiles, strict=True)
                         },
-                        "cell_size": d.cell.chosen_size if d.cell else float("nan"),
                     }
                 )
         return pd.DataFrame(rows)
