@@ -7,7 +7,9 @@ whose three ranges (major >= semi >= minor) and orientation are all free.  The f
 from a grid of orientations (ranges and sills fitted at each), and the best few are refined
 with every parameter free.  How well the orientation is determined is read from the fit:
 standard errors of the axis directions from its Jacobian, and the anisotropy ratios (an axis
-cannot be placed where the ranges around it are equal).
+cannot be placed where the ranges around it are equal).  The standard errors are local: a
+second orientation far away may fit almost as well, so the best fit whose major axis lies
+over 30° from the found one's (the rival) is refined too and its misfit stated beside.
 
 The numerical core: arrays in, a frozen result out; no pandas, no plotting.
 
@@ -31,6 +33,10 @@ from blockmodel.variography.models import KINDS, correlation, correlation_slope
 __all__ = ["OrientationFit", "find_orientation", "hemisphere_directions"]
 
 MIN_PAIRS = 30  # fewest pairs for a lag to count (Journel & Huijbregts 1978, common practice)
+# a rival orientation's major axis lies this far (degrees) from the found one's at least
+RIVAL_ANGLE = 30.0
+# refined starts, besides the best few, in search of a rival
+_RIVAL_STARTS = 3
 
 
 def hemisphere_directions(count: int) -> np.ndarray:
@@ -62,6 +68,14 @@ class OrientationFit:
         perfect; below about 0.5 the directions are not well told apart).
     directions : int
         Directional variograms used.
+    rival : Orientation, optional
+        The best fit whose major axis lies more than :data:`RIVAL_ANGLE` degrees from
+        ``orientation``'s (refined from the best starting orientations so placed); None
+        when every such start ends at the found axis.
+    rival_misfit : float
+        The rival's weighted sum of squared residuals over the found one's (at least 1;
+        near 1: the data tell the two apart poorly, whatever the standard errors say);
+        NaN without a rival.
     """
 
     orientation: Orientation
@@ -71,6 +85,8 @@ class OrientationFit:
     axis_uncertainty: tuple[float, float, float]
     fit_quality: float
     directions: int
+    rival: Orientation | None = None
+    rival_misfit: float = float("nan")
 
     def loose_axes(
         self, *, max_error: float = 15.0, max_ratio: float = 0.85, min_quality: float = 0.5
@@ -99,12 +115,20 @@ class OrientationFit:
         """One line for a report."""
         o, (a, b, c) = self.orientation, self.ranges
         u = self.axis_uncertainty
-        return (
+        text = (
             f"azimuth {o.azimuth:.0f}, plunge {o.plunge:.0f}, tilt {o.tilt:.0f} degrees; "
             f"ranges {a:.0f} / {b:.0f} / {c:.0f} m (ratios {b / a:.2f}, {c / b:.2f}); "
             f"axes determined within ±{u[0]:.0f}°, ±{u[1]:.0f}°, ±{u[2]:.0f}° (one standard "
             f"error); joint fit R² {self.fit_quality:.2f} over {self.directions} directions"
         )
+        if self.rival is not None:
+            r = self.rival
+            text += (
+                f"; the best fit with the major axis over {RIVAL_ANGLE:.0f}° away: azimuth "
+                f"{r.azimuth:.0f}, plunge {r.plunge:.0f}, tilt {r.tilt:.0f} degrees, misfit "
+                f"{100 * (self.rival_misfit - 1):+.0f} %"
+            )
+        return text
 
 
 def _fan(points, values, directions, lag, n_lags, tolerance_deg, max_points):
@@ -246,15 +270,28 @@ def find_orientation(
     def residual_all(x):
         return w * (model(x[:5], x[5:]) - g)
 
-    best = None
-    for _, angles, p in trials[:6]:
-        x0 = np.concatenate([p, angles])
-        lo = lower + [-360.0, -90.0, -180.0]
-        hi = upper + [360.0, 90.0, 180.0]
-        x0 = np.clip(x0, np.array(lo) + 1e-9, np.array(hi) - 1e-9)
-        res = least_squares(residual_all, x0, bounds=(lo, hi), method="trf", x_scale="jac")
-        if best is None or res.cost < best.cost:
-            best = res
+    lo = lower + [-360.0, -90.0, -180.0]
+    hi = upper + [360.0, 90.0, 180.0]
+
+    def refine(p, angles):
+        x0 = np.clip(np.concatenate([p, angles]), np.array(lo) + 1e-9, np.array(hi) - 1e-9)
+        return least_squares(residual_all, x0, bounds=(lo, hi), method="trf", x_scale="jac")
+
+    def major(res):
+        return Orientation(*res.x[5:]).axes()[0]
+
+    refined = [refine(p, angles) for _, angles, p in trials[:6]]
+    best = min(refined, key=lambda res: res.cost)
+    # without a refined fit whose major axis lies away from the found one's, the best
+    # starts so placed are refined in turn (one may end at a better fit, then found)
+    starts = [t for t in trials[6:] if _apart(Orientation(*t[1]).axes()[0], major(best))]
+    for _, angles, p in starts[:_RIVAL_STARTS]:
+        if any(_apart(major(res), major(best)) for res in refined):
+            break
+        refined.append(refine(p, angles))
+        best = min(refined, key=lambda res: res.cost)
+    away = [res for res in refined if _apart(major(res), major(best))]
+    rival = min(away, key=lambda res: res.cost) if away else None
     x = best.x
     c0, c1, log_a, q2, q3 = x[:5]
     a1 = float(np.exp(log_a))
@@ -265,8 +302,22 @@ def find_orientation(
     spread = w * (g - np.average(g, weights=w**2))
     quality = float(1.0 - np.sum(resid**2) / max(np.sum(spread**2), 1e-300))
     return OrientationFit(
-        orientation, ranges, float(c0), float(c1), uncertainty, quality, int(ok.any(axis=1).sum())
+        orientation,
+        ranges,
+        float(c0),
+        float(c1),
+        uncertainty,
+        quality,
+        int(ok.any(axis=1).sum()),
+        None if rival is None else _normalised(Orientation(*rival.x[5:])),
+        float("nan") if rival is None else float(rival.cost / max(best.cost, 1e-300)),
     )
+
+
+def _apart(a: np.ndarray, b: np.ndarray) -> bool:
+    """Whether axes (unit vectors, either sense) ``a`` and ``b`` lie more than
+    :data:`RIVAL_ANGLE` degrees apart."""
+    return abs(float(a @ b)) < np.cos(np.radians(RIVAL_ANGLE))
 
 
 def _normal_scores(values: np.ndarray) -> np.ndarray:
