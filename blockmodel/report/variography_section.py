@@ -108,7 +108,9 @@ def render_variography(
                 f"{s.kind} sill {s.sill:.4g} ranges {tuple(round(a, 1) for a in s.ranges)}"
                 for s in res.model.structures
             )
-            + f"; orientation (azimuth, plunge, tilt) {dataclasses.astuple(res.orientation)}."
+            + "; orientation (azimuth, plunge, tilt) ("
+            + ", ".join(f"{a:.1f}" for a in dataclasses.astuple(res.orientation))
+            + ") degrees."
         )
         if res.orientation_fit is not None:
             report.paragraph(
