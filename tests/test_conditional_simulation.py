@@ -857,8 +857,10 @@ def test_plans_sharing_their_parts_equal_plans_made_afresh(rng, monkeypatch):
 def test_realisations_follow_draws_of_the_model(tmp_path):
     """``simulation.model_draws = 3``: three draws of the normal scores' model, centred on
     the fitted model (their mean nugget and sill shares equal its shares where no share was
-    clipped at zero) with its structures' ranges; realisation r the same whatever the number
-    of realisations or threads; ``model_draws = 0`` takes the fitted model as known."""
+    clipped at zero), their ranges drawn, their kinds and orientation kept; with
+    ``draw_ranges = false`` they keep its structures' ranges; realisation r the same
+    whatever the number of realisations or threads; ``model_draws = 0`` takes the fitted
+    model as known."""
     import dataclasses
 
     from blockmodel.config.project import load_project
@@ -880,7 +882,16 @@ def test_realisations_follow_draws_of_the_model(tmp_path):
     assert np.ptp(shares, axis=0).max() > 0.01  # the draws differ
     assert np.all(shares > 0)  # none clipped here (nugget shares 0.35 to 0.50)
     np.testing.assert_allclose(shares.mean(axis=0), _shares(seven.model, structures))
+    ranges = np.array([[st.ranges for st in m.structures] for m in seven.model_draws])
+    assert ranges.shape == (3, len(structures), 3)  # each draw holds every structure
+    assert np.ptp(ranges[:, 0, 0]) > 1.0  # the short structure's major ranges differ (m)
     for m in seven.model_draws:
+        assert [(st.kind, st.orientation) for st in m.structures] == [
+            (st.kind, st.orientation) for st in structures
+        ]
+    fixed = dataclasses.replace(draws3.simulation, draw_ranges=False)
+    fixed = dataclasses.replace(results, project=dataclasses.replace(draws3, simulation=fixed))
+    for m in simulate_results(fixed, realisations=2, workers=1).by_key["ore.cu"].model_draws:
         assert {st.ranges for st in m.structures} <= {st.ranges for st in structures}
     known_model = dataclasses.replace(
         project, simulation=dataclasses.replace(project.simulation, model_draws=0)
@@ -1040,11 +1051,11 @@ def test_a_failed_refit_of_the_bootstrap_names_its_setting(tmp_path, capsys, mon
     original = simulation.normal_score_model
     calls = []
 
-    def fit(project, *args):
+    def fit(project, *args, fit_ranges=False):
         calls.append(1)
         if len(calls) > 1:
             raise setting_error(project.source, "variography", "cannot fit a variogram")
-        return original(project, *args)
+        return original(project, *args, fit_ranges=fit_ranges)
 
     monkeypatch.setattr(simulation, "normal_score_model", fit)
     project_file = make_box_project(tmp_path)

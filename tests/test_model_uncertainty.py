@@ -119,10 +119,72 @@ def test_draws_take_the_structures_the_fit_may_keep():
     assert [st.sill for st in draws[0].structures] == pytest.approx(first[1:])
 
 
-def test_a_structure_not_in_the_fitted_model_is_an_error():
-    other = VariogramModel(0.1, [Structure("spherical", 0.9, (12.0, 12.0, 12.0))])
+def test_a_structure_of_a_kind_the_fitted_model_lacks_is_an_error():
+    other = VariogramModel(0.1, [Structure("gaussian", 0.9, (12.0, 12.0, 12.0))])
     with pytest.raises(ValueError, match="matches none"):
         centred_models(MODEL, [other, other])
+
+
+def _scaled(st: Structure, factors) -> Structure:
+    return Structure(st.kind, st.sill, tuple(np.multiply(st.ranges, factors)), st.orientation)
+
+
+def test_drawn_ranges_move_by_the_refits_ratios(rng):
+    """Oracle, by hand: each drawn range is the fitted range times the refit's ratio to the
+    geometric mean of the refits' (the bootstrap's bias correction on a log scale, Efron &
+    Tibshirani 1993, ch. 10): the draws' geometric mean is the fitted range; the kinds,
+    orientations and the total sill stay; a range that all refits share stays as fitted."""
+    short, long = MODEL.structures
+    # within 0.9-1.1 of each other: no semi passes its major (the next test)
+    factors = rng.uniform(0.9, 1.1, (6, 2, 3))
+    factors[:, 1, 2] = 1.3  # every refit's long minor range the same: no spread to draw
+    refits = [VariogramModel(0.2, [_scaled(short, f[0]), _scaled(long, f[1])]) for f in factors]
+    draws = centred_models(MODEL, refits)
+    logs = np.log(factors)
+    expected = np.exp(logs - logs.mean(axis=0))
+    expected[:, 1, 2] = 1.0
+    for m, e in zip(draws, expected, strict=True):
+        assert m.total_sill == pytest.approx(MODEL.total_sill)
+        for st, ref, ratio in zip(m.structures, MODEL.structures, e, strict=True):
+            assert (st.kind, st.orientation) == (ref.kind, ref.orientation)
+            np.testing.assert_allclose(st.ranges, np.multiply(ref.ranges, ratio), rtol=1e-12)
+    for k, ref in enumerate(MODEL.structures):
+        drawn = np.array([m.structures[k].ranges for m in draws])
+        np.testing.assert_allclose(np.exp(np.log(drawn).mean(axis=0)), ref.ranges, rtol=1e-12)
+    assert {m.structures[1].ranges[2] for m in draws} == {long.ranges[2]}
+
+
+def test_drawn_ranges_keep_their_order_and_the_longest():
+    """A draw's ranges never grow from major to minor (a semi that would pass the major is
+    set to it) and none passes ``longest`` (the fit's own bound)."""
+    short, long = MODEL.structures
+    refits = [
+        VariogramModel(0.2, [_scaled(short, (0.5, 2.0, 1.0)), long]),
+        VariogramModel(0.2, [_scaled(short, (2.0, 0.5, 1.0)), _scaled(long, (3.0, 1.0, 1.0))]),
+    ]
+    first, second = centred_models(MODEL, refits, longest=200.0)
+    # the short structure's ratios: (0.5, 2, 1) and (2, 0.5, 1) over their geometric mean 1
+    assert first.structures[0].ranges == pytest.approx((20.0, 20.0, 10.0))
+    assert second.structures[0].ranges == pytest.approx((80.0, 12.5, 10.0))
+    # the long major: 150 times 1 / sqrt(3) (86.6, below the semi, which follows it) and
+    # sqrt(3) (259.8, beyond 200)
+    assert first.structures[1].ranges == pytest.approx((150.0 / 3**0.5, 150.0 / 3**0.5, 30.0))
+    assert second.structures[1].ranges == pytest.approx((200.0, 90.0, 30.0))
+
+
+def test_a_refits_structures_pair_with_the_nearest_of_their_kind():
+    """Two structures of one kind, refitted in the other order and with other ranges, pair
+    with the fitted structure whose ranges are nearest (log ratios summed over the axes),
+    not by their place in the refit; one left out pairs with the nearer."""
+    from blockmodel.simulation.model_uncertainty import _counterparts
+
+    short = Structure("spherical", 0.4, (40.0, 25.0, 10.0), TILTED)
+    long = Structure("spherical", 0.4, (42.0, 40.0, 30.0), TILTED)
+    fitted = [short, long]
+    swapped = VariogramModel(0.2, [_scaled(long, (1.2, 0.9, 1.1)), _scaled(short, 0.8)])
+    assert _counterparts(swapped, fitted) == [1, 0]
+    assert _counterparts(VariogramModel(0.2, [_scaled(long, 0.7)]), fitted) == [1]
+    assert _counterparts(VariogramModel(0.2, [_scaled(short, 1.4)]), fitted) == [0]
 
 
 def test_too_many_points_are_refused(monkeypatch):
@@ -133,12 +195,14 @@ def test_too_many_points_are_refused(monkeypatch):
         gaussian_at_points(np.zeros((11, 3)), MODEL, 1, np.random.default_rng(0))
 
 
-def test_sill_shares_list_every_structure_once():
-    """The page's listing: each structure met once, in order, and each model's shares
-    over them (a structure a model lacks at 0)."""
-    from blockmodel.simulation.model_uncertainty import sill_shares
+def test_the_spread_of_the_draws_lists_every_structure_once():
+    """The page's listing: each structure met once (a draw lacking one counts 0 and NaN
+    ranges), each draw's shares and ranges over them."""
+    from blockmodel.simulation.model_uncertainty import draws_spread
 
     short, long = MODEL.structures
-    structures, shares = sill_shares([VariogramModel(0.5, [long]), MODEL])
+    structures, shares, ranges = draws_spread([VariogramModel(0.5, [long]), MODEL])
     assert structures == [long, short]
     np.testing.assert_allclose(shares, [[0.5 / 0.8, 0.3 / 0.8, 0.0], [0.2, 0.3, 0.5]])
+    np.testing.assert_allclose(ranges[1], [long.ranges, short.ranges])
+    assert np.isnan(ranges[0, 1]).all()

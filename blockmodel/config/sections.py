@@ -355,12 +355,20 @@ class Simulation:
     model_draws: int = setting(
         10,
         doc="draws of each fitted normal-score model, by a parametric bootstrap of its fit "
-        "(values drawn at the composites under the model and fitted again; the nugget and "
-        "sills move, the ranges stay): realisation r follows draw r modulo their number, "
+        "(values drawn at the composites under the model and fitted again; the nugget, the "
+        "sills and, with simulation.draw_ranges, the ranges move): realisation r follows "
+        "draw r modulo their number, "
         "each draw costing one more set of conditioning weights; 0 or 1: the model is known "
         "and the bands leave out its uncertainty (a model given in simulation.models, or "
         "simulation.model = 'standardised', is always taken as known)",
         low=0,
+    )
+    draw_ranges: bool = setting(
+        True,
+        doc="the model's draws move the structures' ranges too (refitted freely, orientation "
+        "and kinds kept): each draw's conditioning weights and spectrum are its own; false: "
+        "the ranges stay as fitted and the draws share them (faster; the bands leave out "
+        "the ranges' uncertainty)",
     )
     local_mean_window: dict[str, float] = setting(
         doc="domains and grades whose normal scores follow a trend (e.g. a high-grade "

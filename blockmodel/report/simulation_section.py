@@ -16,7 +16,7 @@ from blockmodel.report.files import safe_stem, write_table
 from blockmodel.report.html import HtmlReport
 from blockmodel.report.tables import round_significant, significant_text
 from blockmodel.simulation.conditional import FEWEST_DOF
-from blockmodel.simulation.model_uncertainty import sill_shares
+from blockmodel.simulation.model_uncertainty import draws_spread
 from blockmodel.stages.simulation import REPRODUCTION_TOLERANCE, Simulation
 
 __all__ = [
@@ -61,18 +61,21 @@ def _dof(nu: float):
 
 
 def _draws(d) -> str:
-    """The draws of a domain's normal-score model as the page lists them: their number and
-    the range of the nugget and of each structure's sill, as shares of the total sill."""
+    """The draws of a domain's normal-score model as the page lists them: their number, the
+    span of the nugget and of each structure's sill, as shares of the total sill, and of
+    its major range."""
     if not d.model_draws:
         return "none (the model taken as known)"
-    structures, shares = sill_shares(d.model_draws)
+    structures, shares, ranges = draws_spread(d.model_draws)
     low, high = shares.min(axis=0), shares.max(axis=0)
     parts = [f"nugget {low[0]:.2f}-{high[0]:.2f}"]
-    parts += [
-        f"{st.kind} to {st.ranges[0]:.0f} m {a:.2f}-{b:.2f}"
-        for st, a, b in zip(structures, low[1:], high[1:], strict=True)
-    ]
-    return f"{len(d.model_draws)}; shares of the sill: " + ", ".join(parts)
+    for k, st in enumerate(structures):
+        major = ranges[:, k, 0][np.isfinite(ranges[:, k, 0])]
+        reach = (
+            f"{major.min():.0f}" if np.ptp(major) < 0.5 else f"{major.min():.0f}-{major.max():.0f}"
+        )
+        parts.append(f"{st.kind} {low[k + 1]:.2f}-{high[k + 1]:.2f} to {reach} m")
+    return f"{len(d.model_draws)}; shares of the sill and major ranges: " + ", ".join(parts)
 
 
 def simulation_grade_tonnage(project: Project, sim: Simulation) -> pd.DataFrame:
@@ -188,8 +191,15 @@ def render_simulation(
             "from a parametric bootstrap of its fit (values drawn at the composites under "
             "the model and fitted again the same way; the draws are the fitted model plus "
             "each refit's deviation from the refits' average, so they centre on the fitted "
-            "model), and realisation r follows draw r modulo their number. The draws move "
-            "the nugget and the sills; the structures' ranges and orientation stay as fitted."
+            "model), and realisation r follows draw r modulo their number. "
+            + (
+                "The refits fit the ranges too; the draws move the nugget, the sills and "
+                "the ranges (by the refits' ratios), the structures' kinds and orientation "
+                "stay as fitted."
+                if s.draw_ranges
+                else "The draws move the nugget and the sills; the structures' ranges and "
+                "orientation stay as fitted."
+            )
             if s.model_draws > 1
             else ""
         )

@@ -8,19 +8,22 @@ on the tonnes above a cut-off, more closely than the data allow.
 The spread of the fit is found by a parametric bootstrap (Efron & Tibshirani 1993, *An
 Introduction to the Bootstrap*, ch. 6; recalled from memory), applied here to the
 variogram fit: Gaussian values are drawn at the composites' own positions under the
-fitted model (:func:`gaussian_at_points`), and the same fitting procedure is applied to
-each draw.  The refits do not centre on the model
-they were drawn from: the fit of a finite sample is biased (for long structures, the
+fitted model (:func:`gaussian_at_points`), and the fit is applied to each draw, its
+ranges free (the structures' kinds and orientation kept).  The refits do not centre on the
+model they were drawn from: the fit of a finite sample is biased (for long structures, the
 sample's variance is below the sill, and the fit gives the short scales more of it).  The
 model draws therefore take the refits' deviations from their own average and add them to
 the fitted model (the bootstrap's bias correction, Efron & Tibshirani 1993, ch. 10;
-:func:`centred_models`): they centre on the model fitted to the data and spread as the fit
-does.  Each draw keeps the fitted model's structures, ranges and orientation; its nugget
-and sills, as shares of the total, move.
+:func:`centred_models`): the nugget and sills as shares of the total, the ranges on a log
+scale (their ratios).  The draws centre on the model fitted to the data and spread as the
+fit does; each keeps the fitted structures' kinds and orientation.  A refit's structure
+stands for the fitted structure of its kind whose ranges are nearest
+(:func:`_counterparts`): the fit numbers its structures but may leave one out or swap two.
 """
 
 from __future__ import annotations
 
+import itertools
 from collections.abc import Sequence
 
 import numpy as np
@@ -28,7 +31,7 @@ import scipy.linalg
 
 from blockmodel.variography.models import Structure, VariogramModel
 
-__all__ = ["MOST_BOOTSTRAP_DATA", "centred_models", "gaussian_at_points", "sill_shares"]
+__all__ = ["MOST_BOOTSTRAP_DATA", "centred_models", "draws_spread", "gaussian_at_points"]
 
 # the covariance matrix of more data than this (12000: 1.2 GB) is not factorised
 MOST_BOOTSTRAP_DATA = 12000
@@ -79,48 +82,90 @@ def gaussian_at_points(
     return (factor @ rng.standard_normal((n, draws))).T
 
 
-def _match(st: Structure, structures: Sequence[Structure]) -> int | None:
-    """Index of the first of ``structures`` with ``st``'s kind and ranges (relative
-    difference below 1e-6), or None."""
-    for k, r in enumerate(structures):
-        if r.kind == st.kind and np.allclose(r.ranges, st.ranges, rtol=1e-6, atol=0.0):
-            return k
-    return None
+def _counterparts(model: VariogramModel, structures: Sequence[Structure]) -> list[int]:
+    """Index among ``structures`` of the counterpart of each of ``model``'s structures: of
+    the same kind, each taken once, the pairing whose ranges differ least (the sum of
+    their absolute log ratios over the three axes).  A fit leaves out a structure whose
+    sill it fits to zero, so some of ``structures`` may be left unpaired; structures with
+    ``model``'s own ranges pair with themselves."""
+    out = [-1] * len(model.structures)
+    for kind in dict.fromkeys(st.kind for st in model.structures):
+        mine = [k for k, st in enumerate(model.structures) if st.kind == kind]
+        theirs = [k for k, st in enumerate(structures) if st.kind == kind]
+        if len(mine) > len(theirs):
+            raise ValueError("a refitted model's structure matches none of the fitted model's")
+        log_mine = np.log([model.structures[k].ranges for k in mine])
+        best = min(
+            itertools.permutations(theirs, len(mine)),
+            key=lambda pick: float(
+                np.abs(log_mine - np.log([structures[k].ranges for k in pick])).sum()
+            ),
+        )
+        for k, j in zip(mine, best, strict=True):
+            out[k] = j
+    return out
 
 
 def _shares(model: VariogramModel, structures: Sequence[Structure]) -> np.ndarray:
-    """Nugget and the sill of each of ``structures`` in ``model``, as shares of ``model``'s
-    total sill: (s + 1,); a structure ``model`` left out (its sill fitted to zero) has
-    share 0."""
+    """Nugget and the sill of each of ``structures`` in ``model`` (its counterparts,
+    :func:`_counterparts`), as shares of ``model``'s total sill: (s + 1,); a structure
+    ``model`` left out (its sill fitted to zero) has share 0."""
     out = np.zeros(len(structures) + 1)
     out[0] = model.nugget
-    for st in model.structures:
-        k = _match(st, structures)
-        if k is None:
-            raise ValueError("a refitted model's structure matches none of the fitted model's")
+    for st, k in zip(model.structures, _counterparts(model, structures), strict=True):
         out[k + 1] += st.sill
     return out / model.total_sill
 
 
-def sill_shares(models: Sequence[VariogramModel]) -> tuple[list[Structure], np.ndarray]:
-    """The structures of ``models`` (each kind and ranges once, in the order first met)
-    and each model's nugget and sills over them as shares of its total sill:
-    (len(models), s + 1), a structure a model lacks at 0."""
+def _log_ranges(model: VariogramModel, structures: Sequence[Structure]) -> np.ndarray:
+    """Logarithms of the ranges of ``model``'s counterpart of each of ``structures``:
+    (s, 3), NaN for a structure ``model`` left out."""
+    out = np.full((len(structures), 3), np.nan)
+    for st, k in zip(model.structures, _counterparts(model, structures), strict=True):
+        out[k] = np.log(st.ranges)
+    return out
+
+
+def draws_spread(
+    models: Sequence[VariogramModel],
+) -> tuple[list[Structure], np.ndarray, np.ndarray]:
+    """The structures the draws ``models`` hold between them (per kind, as many as the
+    draw with most of that kind; each stands for its counterparts, :func:`_counterparts`)
+    and each draw's nugget and sills over them as shares of its total sill, and its
+    ranges.
+
+    Returns
+    -------
+    structures : list of Structure
+    shares : (len(models), s + 1) float64
+        Nugget first; a structure a draw lacks at 0.
+    ranges : (len(models), s, 3) float64, metres
+        Major, semi, minor; NaN for a structure a draw lacks.
+    """
     structures: list[Structure] = []
-    for st in (st for m in models for st in m.structures):
-        if _match(st, structures) is None:
-            structures.append(st)
-    return structures, np.array([_shares(m, structures) for m in models])
+    for m in models:
+        for kind in dict.fromkeys(st.kind for st in m.structures):
+            own = [st for st in m.structures if st.kind == kind]
+            extra = len(own) - sum(st.kind == kind for st in structures)
+            structures += own[len(own) - extra :] if extra > 0 else []
+    shares = np.array([_shares(m, structures) for m in models])
+    ranges = np.exp(np.array([_log_ranges(m, structures) for m in models]))
+    return structures, shares, ranges
 
 
 def centred_models(
     reference: VariogramModel,
     refits: Sequence[VariogramModel],
     structures: Sequence[Structure] | None = None,
+    *,
+    longest: float | None = None,
 ) -> list[VariogramModel]:
     """Draws of the model centred on ``reference``: per refit, the reference's nugget and
     sill shares plus the refit's deviation from the refits' average shares, negative shares
-    set to zero and the shares rescaled to the reference's total sill.
+    set to zero and the shares rescaled to the reference's total sill; each structure's
+    ranges times the ratio of its counterpart's in the refit to their geometric mean over
+    the refits that kept it (ranges that all refits share stay as they are), made
+    non-increasing from major to minor and at most ``longest``.
 
     Parameters
     ----------
@@ -132,24 +177,38 @@ def centred_models(
         Every structure the fit may keep (kind, ranges, orientation; a fit leaves out a
         structure whose sill it fits to zero, so the reference and each refit hold some of
         them); default: the reference's.
+    longest : float, optional, metres
+        No range is drawn beyond it (the fit's own bound, the data's extent) unless the
+        structure's fitted range is longer, where that is the bound.
 
     Returns
     -------
     list of VariogramModel
-        One per refit, with structures of ``structures`` (their kinds, ranges and
-        orientations); a structure whose share is zero is left out.
+        One per refit, with structures of ``structures`` (their kinds and orientations,
+        their ranges drawn); a structure whose share is zero is left out.
     """
     structures = reference.structures if structures is None else tuple(structures)
     shares = np.array([_shares(m, structures) for m in refits])
     drawn = _shares(reference, structures) + shares - shares.mean(axis=0)
     drawn = np.clip(drawn, 0.0, None)
     drawn *= reference.total_sill / drawn.sum(axis=1, keepdims=True)
+    logs = np.array([_log_ranges(m, structures) for m in refits])
+    ratios = np.ones_like(logs)  # drawn over fitted ranges
+    for k in range(len(structures)):
+        have = np.isfinite(logs[:, k, 0])
+        own = logs[have, k]
+        if have.any():
+            moved = np.where(np.ptp(own, axis=0) > 0, own - own.mean(axis=0), 0.0)
+            ratios[have, k] = np.exp(moved)
     out = []
-    for row in drawn:
-        kept = [
-            Structure(st.kind, s, st.ranges, st.orientation)
-            for st, s in zip(structures, row[1:], strict=True)
-            if s > 0.0
-        ]
+    for row, ratio in zip(drawn, ratios, strict=True):
+        kept = []
+        for st, s, r in zip(structures, row[1:], ratio, strict=True):
+            if s <= 0.0:
+                continue
+            ranges = np.minimum.accumulate(np.multiply(st.ranges, r))
+            if longest is not None:
+                ranges = np.minimum(ranges, max(longest, st.ranges[0]))
+            kept.append(Structure(st.kind, s, tuple(ranges.tolist()), st.orientation))
         out.append(VariogramModel(row[0], kept))
     return out

@@ -164,8 +164,8 @@ def simulate(
                 (seed, stream),
                 scaled=window == 0.0,
             )
-        # the draws differ in their nugget and sills only: their plans share the rest
-        shared: dict | None = {} if len(drawn) > 1 else None
+        # draws that differ in their nugget and sills only share the rest of their plans
+        shared: dict | None = {} if len(drawn) > 1 and not s.draw_ranges else None
         plan = plan_of(model=drawn[0] if drawn else model, shared=shared)
         prepared = time.perf_counter()
         clock: dict[str, float] = {}
@@ -239,7 +239,8 @@ def _model_draws(
     (:mod:`blockmodel.simulation.model_uncertainty`): Gaussian values drawn at the
     composites under the model as simulated (``fitted[1]``), from
     ``default_rng([*seed, MODEL_STREAM])``, each fitted as the data were
-    (:func:`normal_score_model`), the refits' deviations added to the fitted shape
+    (:func:`normal_score_model`; with ``simulation.draw_ranges`` the ranges fitted too),
+    the refits' deviations added to the fitted shape
     (``fitted[0]``, total sill 1) and, when ``scaled``, each draw's sill set from the
     composites' variance as the fitted model's was."""
     draws = project.simulation.model_draws
@@ -259,7 +260,10 @@ def _model_draws(
     for n, y in enumerate(values):
         frame[grade.grade] = y
         try:
-            refits.append(normal_score_model(project, frame, weights, grade)[0])
+            refit = normal_score_model(
+                project, frame, weights, grade, fit_ranges=project.simulation.draw_ranges
+            )
+            refits.append(refit[0])
         except InputError as exc:  # a refit that fails is the bootstrap's, not the data's
             problem = exc.problems[0].problem
             raise setting_error(
@@ -268,7 +272,8 @@ def _model_draws(
                 f"{key}: the fit of bootstrap draw {n + 1} failed ({problem}); set "
                 "simulation.model_draws = 0 to take the model as known",
             ) from None
-    out = centred_models(fitted[0], refits, grade.model.structures)
+    longest = float(np.linalg.norm(np.ptp(points, axis=0)))  # the fit's bound
+    out = centred_models(fitted[0], refits, grade.model.structures, longest=longest)
     if not scaled:
         return out
     try:

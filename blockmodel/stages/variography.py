@@ -290,7 +290,12 @@ def _directional(v, pts, values, orient: Orientation, common: dict) -> list:
 
 
 def normal_score_model(
-    project: Project, composites: pd.DataFrame, weights: np.ndarray, grade: Variography
+    project: Project,
+    composites: pd.DataFrame,
+    weights: np.ndarray,
+    grade: Variography,
+    *,
+    fit_ranges: bool = False,
 ) -> tuple[VariogramModel, str]:
     """The normal scores' variogram model (total sill 1) of the composites of one domain
     and grade (with their declustering weights), and where it came from: with
@@ -298,7 +303,8 @@ def normal_score_model(
     orientation with the nugget and sills fitted to the normal scores' experimental
     variograms along its axes; with ``"standardised"``, the grade model scaled to sill 1.
     A model given in ``[simulation.models]`` for this domain and grade takes precedence and
-    is used as given."""
+    is used as given.  ``fit_ranges`` (the bootstrap's refits) fits the ranges too, the
+    grade model's structure kinds and its first structure's orientation kept."""
     given = project.simulation.models.get(f"{grade.domain}.{grade.grade}")
     if given is not None:
         return _model_from_spec(given), "given in the project file"
@@ -318,13 +324,15 @@ def normal_score_model(
         orientation=(o.azimuth, o.plunge, o.tilt),
         structures=len(m.structures),
         kinds=tuple(st.kind for st in m.structures),
-        fixed=ranges,
+        fixed={} if fit_ranges else ranges,
     )
     scores_project = dataclasses.replace(project, variography=v, variogram={})
     fitted = domain_variography(
         scores_project, grade.domain, grade.grade, composites, weights, scan=False
     )
     model = fitted.fit.model
+    if fit_ranges:
+        return scaled_model(model, 1.0 / model.total_sill), "fitted to the normal scores"
     # the grade model's orientation per structure (the fit takes the first's for all); a
     # structure whose sill was fitted to zero is left out, so each is found by its ranges
     model = VariogramModel(
