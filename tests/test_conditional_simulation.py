@@ -1069,6 +1069,34 @@ def test_a_failed_refit_of_the_bootstrap_names_its_setting(tmp_path, capsys, mon
     assert "Traceback" not in err and not out.exists()
 
 
+def test_a_draw_whose_ranges_cannot_fix_its_sill_names_its_settings(tmp_path, capsys, monkeypatch):
+    """A draw of the model whose sill the composites' variance cannot fix (its ranges too
+    long against the domain; made to happen here after the fitted model's own sill) stops
+    ``simulate`` with exit status 2 naming ``simulation.model_draws`` and the ways out,
+    ``simulation.draw_ranges`` first."""
+    import importlib
+
+    from tests.conftest import make_box_project
+
+    simulation = importlib.import_module("blockmodel.stages.simulation")
+    original = simulation.dispersion_sill
+    calls = []
+
+    def sill(*args):
+        calls.append(1)
+        if len(calls) > 1:
+            raise ValueError("its ranges are too long against the domain")
+        return original(*args)
+
+    monkeypatch.setattr(simulation, "dispersion_sill", sill)
+    project_file = make_box_project(tmp_path)
+    out = tmp_path / "sim"
+    assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "simulation.model_draws" in err and "simulation.draw_ranges = false" in err
+    assert "Traceback" not in err and not out.exists()
+
+
 def test_nodes_of_a_domain_placed_by_codes(tmp_path):
     """Oracle: a domain without a solid (the seam of tests/deposits.py, placed from its
     interval codes) simulates only the nodes of its own part of each block.  With nodes at

@@ -282,8 +282,9 @@ def _model_draws(
         raise setting_error(
             project.source,
             "simulation.model_draws",
-            f"{key}: a draw of the model ({exc}); set simulation.model_draws = 0 to take "
-            "the model as known, or give the model in simulation.models",
+            f"{key}: a draw of the model ({exc}); set simulation.draw_ranges = false to "
+            "keep the fitted ranges, simulation.model_draws = 0 to take the model as known, "
+            "or give the model in simulation.models",
         ) from None
 
 
