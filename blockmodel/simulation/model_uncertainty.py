@@ -164,8 +164,8 @@ def centred_models(
     sill shares plus the refit's deviation from the refits' average shares, negative shares
     set to zero and the shares rescaled to the reference's total sill; each structure's
     ranges times the ratio of its counterpart's in the refit to their geometric mean over
-    the refits that kept it (ranges that all refits share stay as they are), made
-    non-increasing from major to minor and at most ``longest``.
+    the refits that kept it, made non-increasing from major to minor and at most
+    ``longest`` (a structure whose ranges all refits share stays as it is).
 
     Parameters
     ----------
@@ -206,9 +206,12 @@ def centred_models(
         for st, s, r in zip(structures, row[1:], ratio, strict=True):
             if s <= 0.0:
                 continue
-            ranges = np.minimum.accumulate(np.multiply(st.ranges, r))
-            if longest is not None:
-                ranges = np.minimum(ranges, max(longest, st.ranges[0]))
-            kept.append(Structure(st.kind, s, tuple(ranges.tolist()), st.orientation))
+            ranges = st.ranges
+            if np.any(r != 1.0):  # moved: kept in order and within the bound
+                ranges = np.minimum.accumulate(np.multiply(st.ranges, r))
+                if longest is not None:
+                    ranges = np.minimum(ranges, max(longest, st.ranges[0]))
+                ranges = tuple(ranges.tolist())
+            kept.append(Structure(st.kind, s, ranges, st.orientation))
         out.append(VariogramModel(row[0], kept))
     return out
