@@ -1041,32 +1041,44 @@ def test_a_bootstrap_beyond_its_data_limit_stops_with_the_setting_named(
     assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 0
 
 
-def test_a_failed_refit_of_the_bootstrap_names_its_setting(tmp_path, capsys, monkeypatch):
-    """A bootstrap draw whose fit fails (the fit is made to fail after the data's own fit
-    here) stops ``simulate`` with exit status 2 naming ``simulation.model_draws``, not the
-    variography the data passed."""
+def _simulate_stopped_by_a_later_call(tmp_path, capsys, monkeypatch, name, fail):
+    """``blockmodel simulate`` on the box project with ``blockmodel.stages.simulation.name``
+    calling ``fail(*args)`` from its second call on (the first, the data's own, goes
+    through): exit status 2, no traceback, nothing written; the message."""
     import importlib
 
-    from blockmodel.errors import setting_error
     from tests.conftest import make_box_project
 
     simulation = importlib.import_module("blockmodel.stages.simulation")
-    original = simulation.normal_score_model
+    original = getattr(simulation, name)
     calls = []
 
-    def fit(project, *args, fit_ranges=False):
+    def later_fails(*args, **kwargs):
         calls.append(1)
-        if len(calls) > 1:
-            raise setting_error(project.source, "variography", "cannot fit a variogram")
-        return original(project, *args, fit_ranges=fit_ranges)
+        return fail(*args) if len(calls) > 1 else original(*args, **kwargs)
 
-    monkeypatch.setattr(simulation, "normal_score_model", fit)
+    monkeypatch.setattr(simulation, name, later_fails)
     project_file = make_box_project(tmp_path)
     out = tmp_path / "sim"
     assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 2
     err = capsys.readouterr().err
-    assert "simulation.model_draws" in err and "bootstrap draw 1 failed" in err
     assert "Traceback" not in err and not out.exists()
+    return err
+
+
+def test_a_failed_refit_of_the_bootstrap_names_its_setting(tmp_path, capsys, monkeypatch):
+    """A bootstrap draw whose fit fails (the fit is made to fail after the data's own fit
+    here) stops ``simulate`` with exit status 2 naming ``simulation.model_draws``, not the
+    variography the data passed."""
+    from blockmodel.errors import setting_error
+
+    def fit(project, *args):
+        raise setting_error(project.source, "variography", "cannot fit a variogram")
+
+    err = _simulate_stopped_by_a_later_call(
+        tmp_path, capsys, monkeypatch, "normal_score_model", fit
+    )
+    assert "simulation.model_draws" in err and "bootstrap draw 1 failed" in err
 
 
 def test_a_draw_whose_ranges_cannot_fix_its_sill_names_its_settings(tmp_path, capsys, monkeypatch):
@@ -1074,27 +1086,12 @@ def test_a_draw_whose_ranges_cannot_fix_its_sill_names_its_settings(tmp_path, ca
     long against the domain; made to happen here after the fitted model's own sill) stops
     ``simulate`` with exit status 2 naming ``simulation.model_draws`` and the ways out,
     ``simulation.draw_ranges`` first."""
-    import importlib
-
-    from tests.conftest import make_box_project
-
-    simulation = importlib.import_module("blockmodel.stages.simulation")
-    original = simulation.dispersion_sill
-    calls = []
 
     def sill(*args):
-        calls.append(1)
-        if len(calls) > 1:
-            raise ValueError("its ranges are too long against the domain")
-        return original(*args)
+        raise ValueError("its ranges are too long against the domain")
 
-    monkeypatch.setattr(simulation, "dispersion_sill", sill)
-    project_file = make_box_project(tmp_path)
-    out = tmp_path / "sim"
-    assert main(["simulate", str(project_file), "--realisations", "3", "--out", str(out)]) == 2
-    err = capsys.readouterr().err
+    err = _simulate_stopped_by_a_later_call(tmp_path, capsys, monkeypatch, "dispersion_sill", sill)
     assert "simulation.model_draws" in err and "simulation.draw_ranges = false" in err
-    assert "Traceback" not in err and not out.exists()
 
 
 def test_nodes_of_a_domain_placed_by_codes(tmp_path):
