@@ -14,6 +14,7 @@ Sources named beside each check:
 from __future__ import annotations
 
 import pickle
+import re
 from dataclasses import replace
 
 import numpy as np
@@ -427,7 +428,9 @@ def test_back_transform_tails(rng):
 
     z = rng.lognormal(0, 1, 300)
     w = rng.uniform(0.5, 1.5, 300)
-    y, t = gaussian_transform(z, w, minimum=0.0, maximum=3 * z.max(), omega=2.0)
+    y, t = gaussian_transform(
+        z, w, minimum=0.0, maximum=3 * z.max(), upper_tail="hyperbolic", omega=2.0
+    )
     np.testing.assert_allclose(t.back(y), z, rtol=1e-12)
     lo, hi = t.scores[0], t.scores[-1]
     below = t.back(np.array([lo - 0.5]))[0]
@@ -438,6 +441,46 @@ def test_back_transform_tails(rng):
     assert t.back(np.array([40.0]))[0] == 3 * z.max()
     many = t.back(np.linspace(-8, 8, 2001))
     assert np.all(np.diff(many) >= 0) and many.min() >= 0.0
+
+
+def test_lognormal_tail_follows_the_lognormal_slope(rng):
+    """The lognormal tail (the default): for lognormal composites, whose log is linear in
+    the normal score, z = exp(mu + sigma y) (Rivoirard 1994, ch. 2: the lognormal
+    anamorphosis), the tail's slope is sigma: from 100 000 values within 5 %, about 5
+    standard deviations of the fit's sampling error (0.0092 over 100 seeds, measured
+    2026-12-04).  Above the table the grade is the largest value times exp(slope (y -
+    y_last)), with no bound unless one is given."""
+    mu, sigma = -1.0, 0.9
+    z = np.exp(mu + sigma * rng.standard_normal(100_000))
+    _, t = gaussian_transform(z, np.ones_like(z))
+    assert t.upper_tail == "lognormal" and np.isinf(t.maximum)
+    assert t.slope == pytest.approx(sigma, rel=0.05)
+    y = np.array([5.0, 6.0, 7.0])
+    above = t.back(y)
+    assert above == pytest.approx(z.max() * np.exp(t.slope * (y - t.scores[-1])), rel=1e-12)
+    assert np.all(np.diff(t.back(np.linspace(-8, 8, 2001))) >= 0)
+    _, bounded = gaussian_transform(z, np.ones_like(z), maximum=1.2 * z.max())
+    assert bounded.back(np.array([8.0]))[0] == 1.2 * z.max()
+
+
+def test_lognormal_tail_slope_is_the_top_least_squares_line():
+    """Oracle: the slope is numpy's least-squares line of log grade on score through the
+    table's points at declustered probability 0.9 and above, or its three highest if
+    more; with one positive value up there, no tail (the largest value is the top)."""
+    from scipy.special import ndtri
+
+    rng = np.random.default_rng(7)
+    for n in (13, 400):
+        z = np.round(rng.lognormal(0.0, 1.0, n), 2)
+        w = rng.uniform(0.5, 2.0, n)
+        _, t = gaussian_transform(z, w)
+        top = t.scores >= min(ndtri(0.9), t.scores[-3])
+        assert top.sum() >= 3
+        expected = np.polyfit(t.scores[top], np.log(t.values[top]), 1)[0]
+        assert t.slope == pytest.approx(expected, rel=1e-12)
+    _, flat = gaussian_transform(np.r_[np.zeros(30), 1.0], np.ones(31))
+    assert flat.slope == 0.0
+    assert flat.back(np.array([5.0]))[0] == 1.0
 
 
 def test_simulate_command_writes_its_outputs(box_site, tmp_path, capsys):
@@ -467,7 +510,8 @@ def test_simulate_command_writes_its_outputs(box_site, tmp_path, capsys):
     page = (out / "simulation.html").read_text()
     assert "Reproduction: the mean grade" in page
     assert "about a locally varying mean" in page and "residual standard deviation" in page
-    assert "(the largest composite: nothing above it)" in page  # no maximum given
+    # no maximum given: the lognormal tail, its slope as a factor per unit score, no bound
+    assert re.search(r"from [0-9.]+, x[0-9.]+ per unit score, unbounded", page)
     # the same seed gives the same realisations
     again = tmp_path / "again"
     assert main([*args[:-1], str(again)]) == 0
@@ -617,20 +661,7 @@ def demo_bands(tmp_path_factory):
     "domain",
     [
         "lode",
-        pytest.param(
-            "halo",
-            marks=pytest.mark.xfail(
-                reason="not met (measured 2026-12-04, 100 realisations, the grades before "
-                "capping, 10 draws of the model moving its nugget, sills and ranges, the "
-                "halo declustered by its holes' spacing): 10 of 14 points inside (11 with "
-                "the ranges kept); the truth has a pocket of 2 to 4 g/t halo at the foot of "
-                "the model (z 900-920 m, x 512355-512375), undrilled and Inferred, where the "
-                "data give 0.5 g/t: the true tonnes and metal above 2 and 3 g/t lie above "
-                "P90 (at the 92nd, 97th, 100th and 100th percentiles), the simulated grades "
-                "stopping at the default maximum, the largest composite (3.9 g/t)",
-                strict=True,
-            ),
-        ),
+        "halo",
     ],
 )
 def test_demo_truth_lies_in_the_bands(demo_bands, domain):
@@ -639,7 +670,11 @@ def test_demo_truth_lies_in_the_bands(demo_bands, domain):
     80 % or more of the cut-offs with true tonnes, and the true metal above the middle
     report cut-off (1.5 g/t) inside the P5-P95 band (acceptance bar of the simulation,
     100 realisations).  The demo project simulates about a locally varying mean (the
-    lode's shoot is a trend inside the domain)."""
+    lode's shoot is a trend inside the domain).  Measured 2026-12-04: the lode 16 of 16
+    points inside, the halo 12 of 14 (its true tonnes and metal above 3 g/t, an undrilled
+    pocket at the model's foot, at the 99th percentile).  With the upper tail stopped at
+    the largest composite (3.9 g/t), the halo had 10 of 14: the tonnes and metal above 2
+    g/t lay above P90 too."""
     share, middle = demo_bands[f"{domain}.au"]
     assert share >= 0.8 and middle, (share, middle)
 
@@ -652,9 +687,11 @@ def test_demo_truth_lies_in_the_bands(demo_bands, domain):
             "pipe",
             marks=pytest.mark.xfail(
                 reason="not met (measured 2026-12-04, 100 realisations, 10 draws of the "
-                "model moving its nugget, sills and ranges): 3 of the 4 points inside; the "
-                "true tonnes above the median lie at the 5th percentile of the realisations "
-                "(the 1st with the ranges kept; the fitted major axis plunges 16 degrees, "
+                "model moving its nugget, sills and ranges, lognormal upper tail): 3 of the "
+                "4 points inside; the true tonnes above the median lie at the 5th "
+                "percentile of the realisations (the 1st with the ranges kept; the fitted "
+                "major range is 44 m, the true one 90 m; the fitted major axis plunges 16 "
+                "degrees, "
                 "the true one 75, and the draws keep the orientation). One seed decides "
                 "this check (see the docstring)",
                 strict=True,
@@ -669,9 +706,9 @@ def test_invented_deposits_truth_lies_in_the_bands(tmp_path, name):
     known: the same bar as the demo's, at their report cut-offs (0 and the median true
     block grade), 100 realisations.  One seed decides this check: a calibrated band
     passes it in 51 to 80 % of seeds (see the calibration test below); over seeds 1 to 20
-    it passed in about 16 of the pipe, 11 of the seam and 17 of the lode (measured
-    2026-12-04, 10 draws of the model moving its nugget, sills and ranges; 15, 11 and 16
-    with the ranges kept), seed 1 in the seam and the lode."""
+    it passed in 15 of the pipe, 11 of the seam and 17 of the lode (measured 2026-12-04,
+    10 draws of the model moving its nugget, sills and ranges, the lognormal upper tail;
+    about 15, 11 and 16 with the ranges kept), seed 1 in the seam and the lode."""
     from blockmodel.config.project import load_project
     from blockmodel.stages.run import run_stages, simulate_results
 
@@ -710,10 +747,13 @@ def test_bands_hold_the_truth_over_many_deposits(tmp_path, name):
     asks for three such 80 % events at once (true metal above 0, tonnes and metal above
     the median), which a calibrated band meets in 51 % (independent events) to 80 % (fully
     dependent) of seeds.  Measured 2026-12-04 with 10 draws of the model moving its
-    nugget, sills and ranges (``simulation.model_draws``; tonnes above the median, metal
-    above the median, metal above 0): inside in 18, 17, 17 seeds of the pipe (below 2, 1,
-    1; above 0, 2, 2), 13, 16, 17 of the seam (below 4, 1, 0; above 3, 3, 3) and 19, 17,
-    17 of the lode (below 0, 0, 0; above 1, 3, 3).  With the ranges kept (2026-12-03): 18,
+    nugget, sills and ranges (``simulation.model_draws``) and the lognormal upper tail
+    (tonnes above the median, metal above the median, metal above 0): inside in 18, 17,
+    16 seeds of the pipe (below 2, 1, 2; above 0, 2, 2), 13, 16, 17 of the seam (below 4,
+    1, 0; above 3, 3, 3) and 19, 17, 17 of the lode (below 0, 0, 0; above 1, 3, 3).  With
+    the upper tail stopped at the largest composite the counts were the same but for the
+    pipe's metal above 0 (17: one seed moved from the 11th to the 10th percentile).  With
+    the ranges kept (2026-12-03): 18,
     15, 16 of the pipe, 13, 15, 16 of the seam and 18, 16, 16 of the lode.  With the model
     taken as known the seam's tonnes were inside in 11 seeds (below 4, above 5): too
     narrow a band, from the nugget's share that the fit cannot pin down."""

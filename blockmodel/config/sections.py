@@ -405,16 +405,20 @@ class Simulation:
     minimum: float = setting(0.0, doc="lowest grade of the back-transform (lower tail)", low=0.0)
     maximum: dict[str, float] = setting(
         doc="highest grade of the back-transform per domain and grade, e.g. "
-        '{ "lode.au" = 60.0 }; none: the largest composite simulated',
+        '{ "lode.au" = 60.0 }; none: no bound for the lognormal tail, the largest composite '
+        "for the linear and hyperbolic tails (which then add nothing above it)",
         entry="DOMAIN.GRADE",
         low=0.0,
         strict_low=True,
         factory=dict,
     )
     upper_tail: str = setting(
-        "hyperbolic",
-        doc="upper tail between the largest composite and the maximum",
-        choices=("hyperbolic", "linear"),
+        "lognormal",
+        doc="upper tail above the largest composite, up to the maximum: lognormal: the log "
+        "of the grade goes on linearly in the normal score at the slope fitted to the top "
+        "tenth of the declustered composites; linear: linear in probability to the maximum; "
+        "hyperbolic: a power law of the probability above, exponent omega",
+        choices=("lognormal", "hyperbolic", "linear"),
     )
     omega: float = setting(
         1.5, doc="exponent of the hyperbolic tail (larger: thinner)", low=1.0, strict_low=True

@@ -30,7 +30,9 @@ CAUTION = (
     "The bands are the spread of the realisations under the stated model: one Gaussian "
     "field per domain about one mean (or about a local mean where "
     "simulation.local_mean_window asks for one), this variogram of the normal scores, "
-    "these tails and these domain boundaries. Each realisation draws its domain's mean "
+    "these tails (by default a lognormal upper tail with no bound, so that simulated "
+    "grades pass the largest composite as a larger sample's would; a maximum given in "
+    "simulation.maximum bounds it) and these domain boundaries. Each realisation draws its domain's mean "
     "from the uncertainty of the declustered mean when simulation.mean_uncertainty is on "
     "(its standard deviation is listed below), and the factor on its sill from the "
     "uncertainty of the composites' variance when simulation.variance_uncertainty is on "
@@ -144,7 +146,12 @@ def render_simulation(
         f"{u / d:g}" for u, d in zip(units.size, units.discretisation, strict=True)
     )
     size = " x ".join(f"{u:g}" for u in units.size)
-    tail = f"hyperbolic (omega {s.omega:g})" if s.upper_tail == "hyperbolic" else "linear"
+    tail = {
+        "lognormal": "lognormal (the log of the grade going on linearly in the normal score at "
+        "the slope of its top tenth, below)",
+        "hyperbolic": f"hyperbolic (omega {s.omega:g})",
+        "linear": "linear",
+    }[s.upper_tail]
     if units.are_blocks:
         support = (
             f"Each block ({size} m) is a selective mining unit here; its tonnes are the block "
@@ -181,7 +188,7 @@ def render_simulation(
         f"{mean}conditioned by simple kriging of its residuals from the {s.neighbours} nearest "
         "composites of the domain (hard boundaries; each composite moved to the node it "
         "falls in); back-transformed to grades (lower tail linear to "
-        f"{s.minimum:g}, upper tail {tail} up to the maximum below) and averaged over each "
+        f"{s.minimum:g}, upper tail {tail}, bounded as in the table below) and averaged over each "
         "simulated block's nodes inside the domain (its solid, or for a domain placed by "
         "codes the nodes nearest a composite of its code, as its blocks' proportions; all "
         f"of a block's nodes where none is inside, counted below). {support} Grades are "
@@ -219,11 +226,7 @@ def render_simulation(
                 "domain.grade": key,
                 "normal-score model": f"nugget {m.nugget:.2f}; {structures}",
                 "source": d.model_source,
-                "maximum": (
-                    f"{d.transform.maximum:g} (given)"
-                    if key in s.maximum
-                    else f"{d.transform.maximum:g} (the largest composite: nothing above it)"
-                ),
+                "upper tail": _upper_tail(d.transform, given=key in s.maximum),
                 "composites": d.data,
                 "sharing a node (dropped)": d.data_dropped,
                 "nodes": d.nodes,
@@ -446,3 +449,18 @@ def _bands_figure(cutoffs, by_class: dict, kriged, cos, labels, path: Path) -> N
     )
     fig.tight_layout(rect=(0, 0, 1, top))
     save_png(fig, path)
+
+
+def _upper_tail(transform, *, given: bool) -> str:
+    """The upper tail of one domain's back-transform, in words."""
+    last = f"from {transform.values[-1]:g}"
+    if transform.upper_tail == "lognormal":
+        ratio = np.exp(transform.slope)
+        tail = f"{last}, x{ratio:.2f} per unit score" if transform.slope > 0 else f"none {last}"
+    else:
+        tail = last
+    if given:
+        return f"{tail}, up to {transform.maximum:g} (given)"
+    if np.isinf(transform.maximum):
+        return f"{tail}, unbounded"
+    return f"{tail}: nothing above it (the largest composite)"

@@ -3,14 +3,29 @@
 Forward: the declustered cumulative distribution of the composites, each value at the
 mid-point of its weight (ties share their mean), mapped through the standard normal
 quantile function.  Back: linear between the table's points; below the lowest score
-linear in probability down to a minimum grade; above the highest score either linear in
-probability up to a maximum grade or a hyperbolic tail
-``z = z_last ((1 - p_last) / (1 - p)) ** (1 / omega)``, never beyond the maximum.
+linear in probability down to a minimum grade; above the highest score one of
+
+- ``lognormal``: the log of the grade goes on linearly in the normal score,
+  ``z = z_last exp(slope (y - y_last))``, at the slope of the least-squares line of
+  ``log z`` on the score through the table's top tenth (declustered probability 0.9 and
+  above, and at least its three highest points; positive grades): the tail of a lognormal distribution, whose log is linear in
+  the normal score everywhere, and for a tail heavier than lognormal a line that
+  bends below it.  A slope of 0 (fewer than two positive grades in the top tenth) adds
+  nothing above the largest value;
+- ``linear``: linear in probability up to a maximum grade;
+- ``hyperbolic``: ``z = z_last ((1 - p_last) / (1 - p)) ** (1 / omega)``;
+
+never beyond the maximum.  A Gaussian field on many more nodes than there are
+composites reaches scores above the table's highest: where their grades stop at the
+largest composite, the simulated blocks of a rich patch stop short of it too.
 
 References
 ----------
 Deutsch, C. V. & Journel, A. G. (1998), *GSLIB: Geostatistical Software Library and
 User's Guide*, 2nd ed., §V.1.6 (tail extrapolation: linear, power and hyperbolic models).
+Rivoirard, J. (1994), *Introduction to Disjunctive Kriging and Non-Linear Geostatistics*,
+Clarendon Press, ch. 2 (Gaussian anamorphosis; the lognormal one is the exponential of a
+linear function of the normal score).
 """
 
 from __future__ import annotations
@@ -22,7 +37,8 @@ from scipy.special import ndtr, ndtri
 
 __all__ = ["GaussianTransform", "gaussian_transform"]
 
-TAILS = ("linear", "hyperbolic")
+TAILS = ("lognormal", "linear", "hyperbolic")
+TOP_TENTH = 0.9  # declustered probability from which the lognormal tail's slope is fitted
 
 
 @dataclass(frozen=True)
@@ -37,18 +53,21 @@ class GaussianTransform:
         Their normal scores, increasing.
     minimum, maximum : float
         The back-transform's bounds (grade units): lower tail ends at ``minimum``, upper
-        tail never passes ``maximum``.
-    upper_tail : {"linear", "hyperbolic"}
+        tail never passes ``maximum`` (may be infinite for the lognormal tail).
+    upper_tail : {"lognormal", "linear", "hyperbolic"}
     omega : float
         Exponent of the hyperbolic tail (> 1; larger is thinner).
+    slope : float
+        Of the lognormal tail: natural log of grade per unit normal score (>= 0).
     """
 
     values: np.ndarray
     scores: np.ndarray
     minimum: float
     maximum: float
-    upper_tail: str = "hyperbolic"
+    upper_tail: str = "lognormal"
     omega: float = 1.5
+    slope: float = 0.0
 
     def forward(self, z: np.ndarray) -> np.ndarray:
         """Normal scores of grades ``z`` (within the table; clamped at its ends)."""
@@ -67,7 +86,9 @@ class GaussianTransform:
         if above.any():
             p, p1 = ndtr(y[above]), ndtr(hi)
             last = self.values[-1]
-            if self.upper_tail == "linear":
+            if self.upper_tail == "lognormal":
+                z[above] = last * np.exp(self.slope * (y[above] - hi))
+            elif self.upper_tail == "linear":
                 z[above] = last + (self.maximum - last) * (p - p1) / (1.0 - p1)
             else:
                 with np.errstate(divide="ignore"):
@@ -82,7 +103,7 @@ def gaussian_transform(
     *,
     minimum: float = 0.0,
     maximum: float | None = None,
-    upper_tail: str = "hyperbolic",
+    upper_tail: str = "lognormal",
     omega: float = 1.5,
 ) -> tuple[np.ndarray, GaussianTransform]:
     """Normal scores of ``values`` under declustering ``weights`` and the transform.
@@ -94,9 +115,9 @@ def gaussian_transform(
     minimum : float
         Lowest grade the back-transform returns (at most the smallest value).
     maximum : float, optional
-        Highest grade the back-transform returns; default the largest value (no
-        extrapolation above the data).
-    upper_tail : {"linear", "hyperbolic"}
+        Highest grade the back-transform returns; default: none for the lognormal tail,
+        the largest value for the others (which then add nothing above the data).
+    upper_tail : {"lognormal", "linear", "hyperbolic"}
     omega : float
         Hyperbolic tail exponent, > 1.
 
@@ -116,13 +137,34 @@ def gaussian_transform(
     cdf = (np.cumsum(w) - 0.5 * w) / w.sum()
     uniq, inverse = np.unique(v, return_inverse=True)
     mean_cdf = np.bincount(inverse.ravel(), weights=cdf) / np.bincount(inverse.ravel())
-    top = float(uniq[-1]) if maximum is None else float(maximum)
+    if maximum is not None:
+        top = float(maximum)
+    else:
+        top = np.inf if upper_tail == "lognormal" else float(uniq[-1])
     if minimum > uniq[0] or top < uniq[-1]:
         raise ValueError(
             f"the tails' bounds [{minimum:g}, {top:g}] must hold the data "
             f"[{uniq[0]:g}, {uniq[-1]:g}]"
         )
+    scores = ndtri(mean_cdf)
     table = GaussianTransform(
-        uniq, ndtri(mean_cdf), float(minimum), top, upper_tail=upper_tail, omega=float(omega)
+        uniq,
+        scores,
+        float(minimum),
+        top,
+        upper_tail=upper_tail,
+        omega=float(omega),
+        slope=_log_slope(uniq, scores),
     )
     return table.forward(values), table
+
+
+def _log_slope(values: np.ndarray, scores: np.ndarray) -> float:
+    """Least-squares slope of log grade on normal score over the table's top tenth, or its
+    three highest points if more (positive grades); 0 with fewer than two such points."""
+    top = (scores >= min(ndtri(TOP_TENTH), scores[-min(3, len(scores))])) & (values > 0.0)
+    if top.sum() < 2:
+        return 0.0
+    y, z = scores[top], np.log(values[top])
+    y0 = y - y.mean()
+    return float(max((y0 @ (z - z.mean())) / (y0 @ y0), 0.0))
