@@ -511,7 +511,7 @@ def test_simulate_command_writes_its_outputs(box_site, tmp_path, capsys):
     assert "Reproduction: the mean grade" in page
     assert "about a locally varying mean" in page and "residual standard deviation" in page
     # no maximum given: the lognormal tail, its slope as a factor per unit score, no bound
-    assert re.search(r"from [0-9.]+, x[0-9.]+ per unit score, unbounded", page)
+    assert re.search(r"above [0-9.]+: times [0-9.]+ per unit of normal score, unbounded", page)
     # the same seed gives the same realisations
     again = tmp_path / "again"
     assert main([*args[:-1], str(again)]) == 0

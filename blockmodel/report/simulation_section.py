@@ -453,14 +453,15 @@ def _bands_figure(cutoffs, by_class: dict, kriged, cos, labels, path: Path) -> N
 
 def _upper_tail(transform, *, given: bool) -> str:
     """The upper tail of one domain's back-transform, in words."""
-    last = f"from {transform.values[-1]:g}"
-    if transform.upper_tail == "lognormal":
-        ratio = np.exp(transform.slope)
-        tail = f"{last}, x{ratio:.2f} per unit score" if transform.slope > 0 else f"none {last}"
+    last = f"above {transform.values[-1]:g}"
+    if transform.upper_tail == "lognormal" and transform.slope > 0:
+        tail = f"{last}: times {np.exp(transform.slope):.2f} per unit of normal score"
+    elif transform.upper_tail == "lognormal":
+        tail = f"{last}: none (fewer than two positive grades in the top tenth)"
     else:
-        tail = last
+        tail = f"{last}: {transform.upper_tail}"
     if given:
         return f"{tail}, up to {transform.maximum:g} (given)"
     if np.isinf(transform.maximum):
         return f"{tail}, unbounded"
-    return f"{tail}: nothing above it (the largest composite)"
+    return f"{tail}, up to {transform.maximum:g}: nothing (the largest composite)"
