@@ -8,10 +8,10 @@ linear in probability down to a minimum grade; above the highest score one of
 - ``lognormal``: the log of the grade goes on linearly in the normal score,
   ``z = z_last exp(slope (y - y_last))``, at the slope of the least-squares line of
   ``log z`` on the score through the table's top tenth (declustered probability 0.9 and
-  above, and at least its three highest points; positive grades): the tail of a lognormal distribution, whose log is linear in
-  the normal score everywhere, and for a tail heavier than lognormal a line that
-  bends below it.  A slope of 0 (fewer than two positive grades in the top tenth) adds
-  nothing above the largest value;
+  above, and at least its three highest points; positive grades).  That is the tail of
+  a lognormal distribution, whose log is linear in the normal score everywhere; under a
+  tail heavier than lognormal the line stays below it.  A slope of 0 (fewer than two
+  positive grades in the top tenth) adds nothing above the largest value;
 - ``linear``: linear in probability up to a maximum grade;
 - ``hyperbolic``: ``z = z_last ((1 - p_last) / (1 - p)) ** (1 / omega)``;
 
