@@ -691,9 +691,8 @@ def test_demo_truth_lies_in_the_bands(demo_bands, domain):
                 "4 points inside; the true tonnes above the median lie at the 5th "
                 "percentile of the realisations (the 1st with the ranges kept; the fitted "
                 "major range is 44 m, the true one 90 m; the fitted major axis plunges 16 "
-                "degrees, "
-                "the true one 75, and the draws keep the orientation). One seed decides "
-                "this check (see the docstring)",
+                "degrees, the true one 75, and the draws keep the orientation). One seed "
+                "decides this check (see the docstring)",
                 strict=True,
             ),
         ),
@@ -753,10 +752,10 @@ def test_bands_hold_the_truth_over_many_deposits(tmp_path, name):
     1, 0; above 3, 3, 3) and 19, 17, 17 of the lode (below 0, 0, 0; above 1, 3, 3).  With
     the upper tail stopped at the largest composite the counts were the same but for the
     pipe's metal above 0 (17: one seed moved from the 11th to the 10th percentile).  With
-    the ranges kept (2026-12-03): 18,
-    15, 16 of the pipe, 13, 15, 16 of the seam and 18, 16, 16 of the lode.  With the model
-    taken as known the seam's tonnes were inside in 11 seeds (below 4, above 5): too
-    narrow a band, from the nugget's share that the fit cannot pin down."""
+    the ranges kept (2026-12-03): 18, 15, 16 of the pipe, 13, 15, 16 of the seam and 18,
+    16, 16 of the lode.  With the model taken as known the seam's tonnes were inside in 11
+    seeds (below 4, above 5): too narrow a band, from the nugget's share that the fit
+    cannot pin down."""
     from blockmodel.config.project import load_project
     from blockmodel.stages.run import run_stages, simulate_results
 
