@@ -478,8 +478,9 @@ def test_lognormal_tail_slope_is_the_top_least_squares_line():
         assert top.sum() >= 3
         expected = np.polyfit(t.scores[top], np.log(t.values[top]), 1)[0]
         assert t.slope == pytest.approx(expected, rel=1e-12)
+        assert t.slope_points == top.sum()
     _, flat = gaussian_transform(np.r_[np.zeros(30), 1.0], np.ones(31))
-    assert flat.slope == 0.0
+    assert flat.slope == 0.0 and flat.slope_points == 0
     assert flat.back(np.array([5.0]))[0] == 1.0
 
 
@@ -511,7 +512,11 @@ def test_simulate_command_writes_its_outputs(box_site, tmp_path, capsys):
     assert "Reproduction: the mean grade" in page
     assert "about a locally varying mean" in page and "residual standard deviation" in page
     # no maximum given: the lognormal tail, its slope as a factor per unit score, no bound
-    assert re.search(r"above [0-9.]+: times [0-9.]+ per unit of normal score, unbounded", page)
+    assert re.search(
+        r"above [0-9.]+: times [0-9.]+ per unit of normal score \(fitted to the top [0-9]+ "
+        r"grades\), unbounded",
+        page,
+    )
     # the same seed gives the same realisations
     again = tmp_path / "again"
     assert main([*args[:-1], str(again)]) == 0

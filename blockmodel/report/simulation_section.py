@@ -455,7 +455,10 @@ def _upper_tail(transform, *, given: bool) -> str:
     """The upper tail of one domain's back-transform, in words."""
     last = f"above {transform.values[-1]:g}"
     if transform.upper_tail == "lognormal" and transform.slope > 0:
-        tail = f"{last}: times {np.exp(transform.slope):.2f} per unit of normal score"
+        tail = (
+            f"{last}: times {np.exp(transform.slope):.2f} per unit of normal score (fitted "
+            f"to the top {transform.slope_points} grades)"
+        )
     elif transform.upper_tail == "lognormal":
         tail = f"{last}: none (fewer than two positive grades in the top tenth)"
     else:

@@ -59,6 +59,8 @@ class GaussianTransform:
         Exponent of the hyperbolic tail (> 1; larger is thinner).
     slope : float
         Of the lognormal tail: natural log of grade per unit normal score (>= 0).
+    slope_points : int
+        How many of the table's points the slope was fitted to (0: no slope).
     """
 
     values: np.ndarray
@@ -68,6 +70,7 @@ class GaussianTransform:
     upper_tail: str = "lognormal"
     omega: float = 1.5
     slope: float = 0.0
+    slope_points: int = 0
 
     def forward(self, z: np.ndarray) -> np.ndarray:
         """Normal scores of grades ``z`` (within the table; clamped at its ends)."""
@@ -147,6 +150,7 @@ def gaussian_transform(
             f"[{uniq[0]:g}, {uniq[-1]:g}]"
         )
     scores = ndtri(mean_cdf)
+    slope, points = _log_slope(uniq, scores)
     table = GaussianTransform(
         uniq,
         scores,
@@ -154,17 +158,19 @@ def gaussian_transform(
         top,
         upper_tail=upper_tail,
         omega=float(omega),
-        slope=_log_slope(uniq, scores),
+        slope=slope,
+        slope_points=points,
     )
     return table.forward(values), table
 
 
-def _log_slope(values: np.ndarray, scores: np.ndarray) -> float:
+def _log_slope(values: np.ndarray, scores: np.ndarray) -> tuple[float, int]:
     """Least-squares slope of log grade on normal score over the table's top tenth, or its
-    three highest points if more (positive grades); 0 with fewer than two such points."""
+    three highest points if more (positive grades), and how many points it was fitted to;
+    (0, 0) with fewer than two such points."""
     top = (scores >= min(ndtri(TOP_TENTH), scores[-min(3, len(scores))])) & (values > 0.0)
     if top.sum() < 2:
-        return 0.0
+        return 0.0, 0
     y, z = scores[top], np.log(values[top])
     y0 = y - y.mean()
-    return float(max((y0 @ (z - z.mean())) / (y0 @ y0), 0.0))
+    return float(max((y0 @ (z - z.mean())) / (y0 @ y0), 0.0)), int(top.sum())
